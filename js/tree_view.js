@@ -1,0 +1,1 @@
+// tree view module (in progress)

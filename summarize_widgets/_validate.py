@@ -1,0 +1,108 @@
+"""Small validators shared by every public entry point.
+
+Every message has one shape: which argument, what it must be, what it got.
+"""
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from numbers import Integral, Real
+
+import numpy as np
+import pandas as pd
+
+
+class SummaryError(ValueError):
+    """Raised for input that cannot be summarized (a ValueError, so callers can catch either)."""
+
+
+def _fmt_names(names: Iterable[object], limit: int = 12) -> str:
+    names = [str(n) for n in names]
+    shown = ", ".join(repr(n) for n in names[:limit])
+    if len(names) > limit:
+        shown += f", ... ({len(names) - limit} more)"
+    return shown
+
+
+def check_int(value, name: str, *, low: int | None = None, high: int | None = None) -> int:
+    """Return ``value`` as int, or raise naming ``name`` and the allowed range."""
+    if isinstance(value, bool) or not isinstance(value, Integral):
+        raise SummaryError(f"`{name}` must be an integer; got {value!r} ({type(value).__name__}).")
+    value = int(value)
+    if low is not None and value < low:
+        rng = f"between {low} and {high}" if high is not None else f">= {low}"
+        raise SummaryError(f"`{name}` must be {rng}; got {value}.")
+    if high is not None and value > high:
+        rng = f"between {low} and {high}" if low is not None else f"<= {high}"
+        raise SummaryError(f"`{name}` must be {rng}; got {value}.")
+    return value
+
+
+def check_level(level) -> float:
+    """A credible level strictly between 0 and 1."""
+    if isinstance(level, bool) or not isinstance(level, Real) or not 0.0 < float(level) < 1.0:
+        raise SummaryError(f"`level` must be a number strictly between 0 and 1 (for example 0.95); got {level!r}.")
+    return float(level)
+
+
+INTERVAL_KINDS = ("equal-tailed", "highest-density")
+
+
+def check_interval(kind) -> str:
+    if kind not in INTERVAL_KINDS:
+        raise SummaryError(f"`interval` must be one of {_fmt_names(INTERVAL_KINDS)}; got {kind!r}.")
+    return kind
+
+
+def check_columns(columns, available: Sequence[str], name: str = "columns") -> list[str]:
+    """Resolve a column selection against the covariate table; unknown names are listed."""
+    available = list(available)
+    if columns is None:
+        return available
+    if isinstance(columns, str):
+        columns = [columns]
+    columns = list(columns)
+    if not columns:
+        raise SummaryError(f"`{name}` must name at least one covariate; got an empty list.")
+    missing = [c for c in columns if c not in available]
+    if missing:
+        raise SummaryError(
+            f"`{name}` names covariates that are not in the covariate table: {_fmt_names(missing)}. "
+            f"Available: {_fmt_names(available)}."
+        )
+    if len(set(columns)) != len(columns):
+        dup = sorted({str(c) for c in columns if columns.count(c) > 1})
+        raise SummaryError(f"`{name}` lists some covariates more than once: {_fmt_names(dup)}.")
+    return columns
+
+
+def check_covariates(covariates, n_units: int | None = None, name: str = "covariates") -> pd.DataFrame:
+    """A DataFrame with unique string-able column names and (optionally) ``n_units`` rows."""
+    if not isinstance(covariates, pd.DataFrame):
+        raise SummaryError(
+            f"`{name}` must be a pandas DataFrame with one row per unit; got {type(covariates).__name__}."
+        )
+    cols = [str(c) for c in covariates.columns]
+    dup = sorted({c for c in cols if cols.count(c) > 1})
+    if dup:
+        raise SummaryError(f"`{name}` has duplicated column names: {_fmt_names(dup)}. Rename them so each is unique.")
+    if covariates.shape[1] == 0:
+        raise SummaryError(f"`{name}` has no columns; summaries need at least one covariate.")
+    if n_units is not None and covariates.shape[0] != n_units:
+        raise SummaryError(
+            f"`{name}` has {covariates.shape[0]} rows but the draws have {n_units} units; "
+            "they must have one covariate row per unit, in the same order."
+        )
+    out = covariates.reset_index(drop=True)
+    out.columns = cols
+    return out
+
+
+def describe_nonfinite(mask_rows: np.ndarray, mask_cols: np.ndarray, count: int, name: str) -> str:
+    """Message for NaN/inf draws: how many, in how many draws and units."""
+    return (
+        f"`{name}` contains {count} NaN or infinite value{'s' if count != 1 else ''} "
+        f"in {int(mask_rows.sum())} draw{'s' if mask_rows.sum() != 1 else ''} and "
+        f"{int(mask_cols.sum())} unit{'s' if mask_cols.sum() != 1 else ''} "
+        f"(first draw {int(np.flatnonzero(mask_rows)[0])}, first unit {int(np.flatnonzero(mask_cols)[0])}). "
+        "Drop or repair those draws before summarizing."
+    )

@@ -1,0 +1,409 @@
+"""The one data contract for posterior draws of unit-level effects.
+
+An :class:`EffectDraws` holds the draw matrix (never copied), the covariate
+table, optional weights, and a few per-draw and per-unit sums computed in one
+validation pass. Every summary reads the draws only through
+:func:`summarize_widgets._passes.run_pass`, a chunked reduction over blocks of
+draws, so the same code serves in-memory arrays and memory-mapped files.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from ._validate import SummaryError, check_covariates, check_int, describe_nonfinite
+
+__all__ = ["EffectDraws"]
+
+# Rows per block in a pass: about 8 MB of float64 at 100,000 units.
+_BLOCK_BYTES = 8 * 2**20
+# Units used to pick each draw's centring constant (any constant is exact; a typical value avoids cancellation).
+_CENTRE_UNITS = 256
+
+
+@dataclass(frozen=True)
+class DrawBlock:
+    """One block of consecutive draws, as the reducers see it.
+
+    Attributes
+    ----------
+    rows : slice
+        Which draws (rows of the full matrix) this block holds.
+    wt : ndarray, shape (n_rows, n_units)
+        Weighted values ``w_si * T_si`` (for complier-weighted draws: the outcome ITT
+        times the unit weight). A view of the user's matrix when there are no weights.
+        May be float32; reducers accumulate in float64.
+    w : None or ndarray, shape (n_units,) or (n_rows, n_units)
+        The weights: None means every unit weighs 1.
+    """
+
+    rows: slice
+    wt: np.ndarray
+    w: np.ndarray | None
+
+
+def _as_matrix(values, name: str):
+    """Return (2-D float array without copying floats, n_chains from dims or None)."""
+    chains = None
+    try:  # xarray is optional at import time of this module
+        import xarray as xr
+    except ImportError:  # pragma: no cover - xarray is a dependency
+        xr = None
+    if xr is not None and isinstance(values, xr.DataArray):
+        dims = list(values.dims)
+        if "chain" in dims and "draw" in dims:
+            others = [d for d in dims if d not in ("chain", "draw")]
+            if len(others) != 1:
+                raise SummaryError(
+                    f"`{name}` must have dims (chain, draw, <unit>) with exactly one unit dimension; got dims {tuple(dims)}."
+                )
+            chains = int(values.sizes["chain"])
+            arr = values.transpose("chain", "draw", others[0]).to_numpy()
+            arr = arr.reshape(arr.shape[0] * arr.shape[1], arr.shape[2])
+        elif "draw" in dims and len(dims) == 2:
+            other = [d for d in dims if d != "draw"][0]
+            arr = values.transpose("draw", other).to_numpy()
+        elif len(dims) == 2:
+            arr = values.to_numpy()
+        else:
+            raise SummaryError(
+                f"`{name}` must be 2-D (draws x units) or have dims (chain, draw, <unit>); got dims {tuple(dims)}."
+            )
+    elif isinstance(values, pd.DataFrame):
+        arr = values.to_numpy()
+    elif isinstance(values, np.ndarray):
+        arr = values
+    else:
+        try:
+            arr = np.asarray(values)
+        except Exception as exc:  # noqa: BLE001 - report what was passed
+            raise SummaryError(f"`{name}` must be an array of shape (n_draws, n_units); got {type(values).__name__}.") from exc
+    if arr.ndim != 2:
+        raise SummaryError(f"`{name}` must be 2-D with shape (n_draws, n_units); got {arr.ndim}-D shape {arr.shape}.")
+    if arr.dtype.kind == "b" or arr.dtype.kind in "iu":
+        arr = arr.astype(np.float64)
+    elif arr.dtype.kind != "f":
+        raise SummaryError(f"`{name}` must hold numbers; got dtype {arr.dtype}.")
+    elif arr.dtype not in (np.float32, np.float64):
+        arr = arr.astype(np.float64)
+    return arr, chains
+
+
+def _check_shape(arr, n_units: int, name: str, covariates_name: str = "covariates"):
+    if arr.shape[1] != n_units:
+        hint = ""
+        if arr.shape[0] == n_units:
+            hint = f" It looks transposed: pass `{name}.T` (shape {arr.shape[::-1]})."
+        raise SummaryError(
+            f"`{name}` has shape {arr.shape} but `{covariates_name}` has {n_units} rows; "
+            f"`{name}` must be (n_draws, n_units) = (?, {n_units}).{hint}"
+        )
+    if arr.shape[0] < 2:
+        raise SummaryError(f"`{name}` has {arr.shape[0]} draw; at least 2 posterior draws are needed for intervals.")
+    if arr.shape[1] < 2:
+        raise SummaryError(f"`{name}` has {arr.shape[1]} unit; at least 2 units are needed to summarize heterogeneity.")
+
+
+def _check_weights(weights, n_draws: int, n_units: int, name: str = "weights"):
+    if weights is None:
+        return None
+    if isinstance(weights, (pd.Series, pd.DataFrame)):
+        weights = weights.to_numpy()
+    w = np.asarray(weights)
+    if w.dtype.kind not in "biuf":
+        raise SummaryError(f"`{name}` must be numeric; got dtype {w.dtype}.")
+    w = w.astype(np.float64, copy=False)
+    if w.shape not in ((n_units,), (n_draws, n_units)):
+        raise SummaryError(
+            f"`{name}` must have shape ({n_units},) (one per unit) or ({n_draws}, {n_units}) "
+            f"(one per draw and unit); got shape {w.shape}."
+        )
+    bad = ~np.isfinite(w)
+    if bad.any():
+        raise SummaryError(f"`{name}` contains {int(bad.sum())} NaN or infinite values; weights must be finite.")
+    neg = w < 0
+    if neg.any():
+        raise SummaryError(f"`{name}` contains {int(neg.sum())} negative values (smallest {w.min():.4g}); weights must be >= 0.")
+    return w
+
+
+class EffectDraws:
+    """Posterior draws of unit-level effects, with the units' covariates.
+
+    Parameters
+    ----------
+    values : array-like, shape (n_draws, n_units)
+        One row per posterior draw. NumPy arrays (float32 stays float32, float64
+        stays float64; the matrix is not copied; ``np.memmap`` works), pandas
+        DataFrames, or xarray DataArrays with dims (chain, draw, unit), whose chain
+        and draw dims are stacked in chain-major order.
+    covariates : pandas.DataFrame
+        One row per unit, in the order of the columns of ``values``: numeric,
+        boolean, categorical and string columns; missing values allowed.
+    weights : None or array-like, shape (n_units,) or (n_draws, n_units), optional
+        Non-negative weights: fixed per unit (survey or frequency weights) or per
+        draw and unit.
+    chains : int, optional
+        Number of chains, the draws stored chain-major (all of chain 1, then chain 2...).
+        Taken from the input's dims when it has a ``chain`` dim; 1 otherwise.
+    label : str, default "effect"
+        What the values are (used in tables and figure titles).
+
+    Notes
+    -----
+    Construction makes one pass over the draws: it checks that every value is
+    finite and stores, per unit, the weighted posterior mean (the target every
+    summary is fitted to) and, per draw, the centred weighted sum of squares
+    used by every summary R^2 (METHOD.md section 3).
+    """
+
+    def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect"):
+        arr, dim_chains = _as_matrix(values, "values")
+        cov = check_covariates(covariates)
+        _check_shape(arr, cov.shape[0], "values")
+        w = _check_weights(weights, arr.shape[0], arr.shape[1])
+        self._init(arr, None, w, cov, chains if chains is not None else dim_chains, label, "values")
+
+    # -- construction ---------------------------------------------------------------
+    def _init(self, values, denominator, weights, covariates, chains, label, name):
+        self._values = values  # (S, n): effects, or outcome ITT for complier-weighted draws
+        self._den = denominator  # None, or (S, n) uptake ITT
+        self._weights = weights  # None, (n,) or (S, n) (for complier-weighted: unit weights only)
+        self.covariates = covariates
+        self.label = str(label)
+        n_draws = values.shape[0]
+        if chains is None:
+            chains = 1
+        chains = check_int(chains, "chains", low=1, high=n_draws)
+        if n_draws % chains:
+            raise SummaryError(
+                f"`chains` = {chains} does not divide the {n_draws} draws; draws must be stored chain-major "
+                "with the same number of draws per chain."
+            )
+        self.n_chains = chains
+        self._scan(name)
+
+    @classmethod
+    def from_itt(cls, outcome_itt, uptake_itt, covariates, *, weights=None, chains=None, label: str = "LATE"):
+        """Complier-weighted draws for an encouragement (instrument) design.
+
+        Parameters
+        ----------
+        outcome_itt : array-like, shape (n_draws, n_units)
+            Per-draw unit-level intention-to-treat effect of the offer on the outcome.
+        uptake_itt : array-like, shape (n_draws, n_units)
+            Per-draw unit-level effect of the offer on uptake (the complier share,
+            non-negative under monotonicity).
+        covariates, chains, label
+            As for :class:`EffectDraws`.
+        weights : None or array-like, shape (n_units,)
+            Fixed unit weights ``v_i``, multiplying both sums.
+
+        Notes
+        -----
+        Every subgroup effect is the ratio of sums ``sum v ITT_y / sum v pi`` per
+        draw (the Wald ratio inside the subgroup, METHOD.md section 5), i.e. the
+        uptake-weighted mean of unit CLATEs; nothing is divided unit by unit.
+        """
+        num, c1 = _as_matrix(outcome_itt, "outcome_itt")
+        den, c2 = _as_matrix(uptake_itt, "uptake_itt")
+        cov = check_covariates(covariates)
+        _check_shape(num, cov.shape[0], "outcome_itt")
+        _check_shape(den, cov.shape[0], "uptake_itt")
+        if num.shape != den.shape:
+            raise SummaryError(f"`outcome_itt` has shape {num.shape} but `uptake_itt` has shape {den.shape}; they must match.")
+        if weights is not None and np.ndim(weights) != 1:
+            raise SummaryError(
+                f"`weights` for complier-weighted draws must be one per unit, shape ({num.shape[1]},); "
+                f"got shape {np.shape(weights)} (the uptake draws already act as per-draw weights)."
+            )
+        w = _check_weights(weights, num.shape[0], num.shape[1])
+        self = cls.__new__(cls)
+        self._init(num, den, w, cov, chains if chains is not None else (c1 or c2), label, "outcome_itt")
+        return self
+
+    def _scan(self, name):
+        """The validation pass: finiteness, per-unit weighted means, per-draw centred sums."""
+        S, n = self._values.shape
+        colsum_wt = np.zeros(n)
+        colsum_w = np.zeros(n)
+        self._centre = np.empty(S)
+        self._q = np.empty(S)  # sum_i w_si (T_si - c_s)^2
+        self._wsum = np.empty(S)  # sum_i w_si
+        self._wtsum = np.empty(S)  # sum_i w_si T_si
+        bad_rows = []
+        for block in self.blocks():
+            r = block.rows
+            wt = np.asarray(block.wt, dtype=np.float64)
+            rowsum = wt.sum(axis=1)
+            if not np.isfinite(rowsum).all() or (self._den is not None and not np.isfinite(self._den[r].sum(axis=1)).all()):
+                bad_rows.append(r)
+                continue
+            w = block.w
+            wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
+            colsum_wt += wt.sum(axis=0)
+            if w is None:
+                colsum_w += wt.shape[0]
+            elif w.ndim == 1:
+                colsum_w += wt.shape[0] * w
+            else:
+                colsum_w += w.sum(axis=0)
+            self._wsum[r] = wsum
+            self._wtsum[r] = rowsum
+            self._centre[r], self._q[r] = self._centred_squares(r, block)
+        if bad_rows:
+            self._raise_nonfinite(bad_rows, name)
+        if self._den is not None:
+            self._check_uptake()
+        self._colsum_w = colsum_w
+        with np.errstate(invalid="ignore", divide="ignore"):
+            self._mean = np.where(colsum_w > 0, colsum_wt / np.where(colsum_w > 0, colsum_w, 1.0), np.nan)
+        if not (colsum_w > 0).any():
+            raise SummaryError("Every unit has zero total weight; nothing to summarize.")
+
+    def _centred_squares(self, r, block):
+        """Per draw: a centring constant c_s and sum_i w_si (T_si - c_s)^2, centred before squaring."""
+        k = min(_CENTRE_UNITS, self.n_units)
+        if self._den is None:
+            vals = np.asarray(self._values[r], dtype=np.float64)
+            c = vals[:, :k].mean(axis=1)
+            x = vals - c[:, None]
+            if block.w is None:
+                q = np.einsum("ij,ij->i", x, x)
+            else:
+                q = np.einsum("ij,ij->i", x * block.w, x)
+            return c, q
+        # complier-weighted: T = ITT_y / pi with weight v * pi, so w (T - c)^2 = v (ITT_y - c pi)^2 / pi.
+        num = np.asarray(self._values[r], dtype=np.float64)
+        den = np.asarray(self._den[r], dtype=np.float64)
+        dk = den[:, :k].sum(axis=1)
+        c = np.where(dk > 0, num[:, :k].sum(axis=1) / np.where(dk > 0, dk, 1.0), 0.0)
+        resid = num - c[:, None] * den
+        with np.errstate(divide="ignore", invalid="ignore"):
+            contrib = np.where(den > 0, resid * resid / np.where(den > 0, den, 1.0), 0.0)
+        if self._weights is not None:
+            contrib = contrib * self._weights
+        return c, contrib.sum(axis=1)
+
+    def _raise_nonfinite(self, bad_rows, name):
+        S, n = self._values.shape
+        rows_mask = np.zeros(S, bool)
+        cols_mask = np.zeros(n, bool)
+        count = 0
+        for r in bad_rows:
+            for arr, nm in ((self._values, name), (self._den, "uptake_itt")):
+                if arr is None:
+                    continue
+                m = ~np.isfinite(np.asarray(arr[r]))
+                if m.any():
+                    if nm != name and not (~np.isfinite(np.asarray(self._values[r]))).any():
+                        name = nm
+                    rows_mask[r] |= m.any(axis=1)
+                    cols_mask |= m.any(axis=0)
+                    count += int(m.sum())
+        raise SummaryError(describe_nonfinite(rows_mask, cols_mask, count, name))
+
+    def _check_uptake(self):
+        mins = [float(np.min(self._den[b.rows])) for b in self.blocks()]
+        if min(mins) < 0:
+            neg = sum(int((np.asarray(self._den[b.rows]) < 0).sum()) for b in self.blocks())
+            raise SummaryError(
+                f"`uptake_itt` has {neg} negative values (smallest {min(mins):.4g}). Complier weighting assumes "
+                "monotonicity (the offer never lowers uptake), so the uptake effect must be >= 0; if the negative "
+                "values are sampling noise you accept, clip them yourself, e.g. np.clip(uptake_itt, 0, None)."
+            )
+
+    # -- the pass primitive ---------------------------------------------------------
+    def block_rows(self) -> int:
+        """Draws per block so one float64 block is about 8 MB."""
+        return max(1, min(self.n_draws, _BLOCK_BYTES // (8 * self.n_units)))
+
+    def blocks(self, rows_per_block: int | None = None):
+        """Yield :class:`DrawBlock` objects covering all draws in order."""
+        step = rows_per_block or self.block_rows()
+        for start in range(0, self.n_draws, step):
+            r = slice(start, min(start + step, self.n_draws))
+            yield self._block(r)
+
+    def _block(self, r: slice) -> DrawBlock:
+        vals = self._values[r]
+        if self._den is not None:
+            den = np.asarray(self._den[r], dtype=np.float64)
+            if self._weights is None:
+                return DrawBlock(r, vals, den)
+            return DrawBlock(r, vals * self._weights, den * self._weights)
+        w = self._weights
+        if w is None:
+            return DrawBlock(r, vals, None)
+        if w.ndim == 2:
+            w = w[r]
+        return DrawBlock(r, vals * w, w)
+
+    # -- public description ------------------------------------------------------------
+    @property
+    def n_draws(self) -> int:
+        return int(self._values.shape[0])
+
+    @property
+    def n_units(self) -> int:
+        return int(self._values.shape[1])
+
+    @property
+    def dtype(self) -> np.dtype:
+        return self._values.dtype
+
+    @property
+    def is_complier_weighted(self) -> bool:
+        """True for draws built with :meth:`from_itt`."""
+        return self._den is not None
+
+    @property
+    def has_draw_weights(self) -> bool:
+        """True when weights vary by draw (per-draw weights or complier weighting)."""
+        return self._den is not None or (self._weights is not None and self._weights.ndim == 2)
+
+    @property
+    def posterior_mean(self) -> np.ndarray:
+        """Weighted posterior mean per unit, shape (n_units,): ``sum_s w_si T_si / sum_s w_si``.
+
+        For complier-weighted draws: ``sum_s ITT_y,si / sum_s pi_si``. NaN for a unit
+        whose weight is zero in every draw (such a unit takes no part in any summary).
+        """
+        return self._mean
+
+    @property
+    def mean_weights(self) -> np.ndarray:
+        """Posterior mean weight per unit, shape (n_units,) (ones without weights)."""
+        return self._colsum_w / self.n_draws
+
+    @property
+    def overall(self) -> np.ndarray:
+        """Per draw, the weighted average effect over all units, shape (n_draws,)."""
+        return self._wtsum / self._wsum
+
+    @property
+    def draws_per_chain(self) -> int:
+        return self.n_draws // self.n_chains
+
+    def describe(self) -> dict:
+        """Shape, dtype and settings, for provenance records."""
+        return {
+            "label": self.label,
+            "n_draws": self.n_draws,
+            "n_units": self.n_units,
+            "n_chains": self.n_chains,
+            "dtype": str(self.dtype),
+            "complier_weighted": self.is_complier_weighted,
+            "weights": None if self._weights is None else ("per unit" if self._weights.ndim == 1 else "per draw and unit"),
+            "covariates": list(self.covariates.columns),
+        }
+
+    def __repr__(self) -> str:
+        kind = "complier-weighted (ITT ratio) " if self.is_complier_weighted else ""
+        return (
+            f"EffectDraws({kind}'{self.label}': {self.n_draws} draws x {self.n_units} units, "
+            f"{self.n_chains} chain{'s' if self.n_chains != 1 else ''}, {self.dtype}, "
+            f"{self.covariates.shape[1]} covariates)"
+        )
