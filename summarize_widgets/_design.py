@@ -1,0 +1,149 @@
+"""Covariate encoding shared by the summaries.
+
+One place decides what a column is (numeric or categorical), checks that it
+can take part in a summary, and encodes it: ordered codes for the tree,
+dummy columns for the linear fit, terms for the additive fit.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from ._validate import SummaryError
+
+__all__ = ["ColumnSpec", "MISSING", "classify_columns", "category_codes", "linear_design"]
+
+#: Label of the category that holds missing values of a categorical covariate.
+MISSING = "(missing)"
+
+
+@dataclass(frozen=True)
+class ColumnSpec:
+    """What one covariate is and how it is encoded.
+
+    Attributes
+    ----------
+    name : str
+    kind : {"numeric", "categorical"}
+    categories : tuple of str
+        Category labels (categorical only), in the table's own order; ``MISSING``
+        last when the column has missing values.
+    n_missing : int
+    """
+
+    name: str
+    kind: str
+    categories: tuple = field(default=())
+    n_missing: int = 0
+
+
+def _labels(series: pd.Series) -> pd.Series:
+    """Category labels as strings (booleans read True/False), missing as NaN."""
+    return series.astype("object").where(series.notna(), None).map(lambda v: None if v is None else str(v))
+
+
+def classify_columns(covariates: pd.DataFrame, columns: list[str]) -> list[ColumnSpec]:
+    """Classify and check each column; raise naming the column when it cannot be used."""
+    specs = []
+    for name in columns:
+        s = covariates[name]
+        n_missing = int(s.isna().sum())
+        if n_missing == len(s):
+            raise SummaryError(f"Covariate {name!r} has no observed values (all {len(s)} are missing); drop it from `columns`.")
+        if pd.api.types.is_bool_dtype(s) or isinstance(s.dtype, pd.CategoricalDtype) or not pd.api.types.is_numeric_dtype(s):
+            if pd.api.types.is_datetime64_any_dtype(s) or pd.api.types.is_timedelta64_dtype(s):
+                raise SummaryError(
+                    f"Covariate {name!r} holds dates or durations ({s.dtype}); convert it to a number "
+                    "(for example years since a reference date) first."
+                )
+            labels = _labels(s)
+            if isinstance(s.dtype, pd.CategoricalDtype):
+                seen = set(labels.dropna())
+                cats = [str(c) for c in s.cat.categories if str(c) in seen]
+            elif pd.api.types.is_bool_dtype(s) or set(labels.dropna()) <= {"True", "False"}:
+                cats = [c for c in ("False", "True") if c in set(labels.dropna())]
+            else:
+                cats = sorted(set(labels.dropna()))
+            if n_missing:
+                cats.append(MISSING)
+            if len(cats) < 2:
+                raise SummaryError(
+                    f"Covariate {name!r} has a single value ({cats[0]!r}) for every unit; it cannot describe "
+                    "any difference between units. Drop it from `columns`."
+                )
+            specs.append(ColumnSpec(name, "categorical", tuple(cats), n_missing))
+        else:
+            vals = s.to_numpy(dtype=np.float64, na_value=np.nan)
+            if not np.isfinite(vals[~np.isnan(vals)]).all():
+                raise SummaryError(f"Covariate {name!r} contains infinite values; replace them with finite numbers or NaN.")
+            observed = np.unique(vals[~np.isnan(vals)])
+            if observed.size < 2 and not n_missing:
+                raise SummaryError(
+                    f"Covariate {name!r} has a single value ({observed[0]:g}) for every unit; it cannot describe "
+                    "any difference between units. Drop it from `columns`."
+                )
+            specs.append(ColumnSpec(name, "numeric", (), n_missing))
+    return specs
+
+
+def category_codes(series: pd.Series, spec: ColumnSpec) -> np.ndarray:
+    """Integer codes into ``spec.categories`` (missing -> the MISSING category).
+
+    Raises naming the column and the labels when ``series`` holds categories not
+    seen when the summary was fitted.
+    """
+    labels = _labels(series)
+    lookup = {c: k for k, c in enumerate(spec.categories)}
+    codes = labels.map(lambda v: lookup.get(MISSING if v is None else v, -1)).to_numpy(dtype=np.int64)
+    if (codes < 0).any():
+        unknown = sorted({MISSING if v is None else v for v, c in zip(labels, codes) if c < 0})
+        raise SummaryError(
+            f"Covariate {spec.name!r} has categories not seen when the summary was fitted: "
+            f"{', '.join(repr(u) for u in unknown[:10])}. Known: {', '.join(repr(c) for c in spec.categories)}."
+        )
+    return codes
+
+
+def numeric_values(series: pd.Series) -> np.ndarray:
+    return series.to_numpy(dtype=np.float64, na_value=np.nan)
+
+
+def linear_design(covariates: pd.DataFrame, specs: list[ColumnSpec], *, fill=None):
+    """Design matrix ``[1, X]`` for the linear summary.
+
+    Numeric columns enter as they are; a numeric column with missing values is
+    filled with its (unweighted) mean and gets an indicator column ``"<name>: missing"``
+    (the usual missing-indicator method). Categorical columns are dummy-coded against
+    their first category (the reference).
+
+    Returns
+    -------
+    B : ndarray, shape (n_units, n_terms)
+    terms : list of str
+        Column names, ``"(intercept)"`` first; a dummy reads ``"fuel = oil"``.
+    fill : dict
+        Fill values used for missing numeric values (pass back to encode new rows alike).
+    """
+    cols = [np.ones(len(covariates))]
+    terms = ["(intercept)"]
+    fill = dict(fill or {})
+    for spec in specs:
+        s = covariates[spec.name]
+        if spec.kind == "numeric":
+            x = numeric_values(s)
+            miss = np.isnan(x)
+            if spec.name not in fill:
+                fill[spec.name] = float(np.nanmean(x))
+            cols.append(np.where(miss, fill[spec.name], x))
+            terms.append(spec.name)
+            if spec.n_missing:
+                cols.append(miss.astype(np.float64))
+                terms.append(f"{spec.name}: missing")
+        else:
+            codes = category_codes(s, spec)
+            for k, cat in enumerate(spec.categories[1:], start=1):
+                cols.append((codes == k).astype(np.float64))
+                terms.append(f"{spec.name} = {cat}")
+    return np.column_stack(cols), terms, fill
