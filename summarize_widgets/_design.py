@@ -41,7 +41,7 @@ class ColumnSpec:
 
 def _labels(series: pd.Series) -> pd.Series:
     """Category labels as strings (booleans read True/False), missing as NaN."""
-    return series.astype("object").where(series.notna(), None).map(lambda v: None if v is None else str(v))
+    return pd.Series([None if pd.isna(v) else str(v) for v in series.astype("object")], index=series.index, dtype=object)
 
 
 def classify_columns(covariates: pd.DataFrame, columns: list[str]) -> list[ColumnSpec]:
