@@ -1,0 +1,127 @@
+"""Pre-specified subgroups: effects of subgroups the analyst names with pandas queries."""
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+import numpy as np
+import pandas as pd
+
+from ._passes import LinearMap, run_pass
+from ._subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from ._validate import SummaryError
+
+__all__ = ["summarize_groups", "GroupSummary", "ALL_UNITS"]
+
+#: Label of the first row of every group table.
+ALL_UNITS = "All units"
+
+
+def _mask(covariates: pd.DataFrame, label: str, query: str) -> np.ndarray:
+    if not isinstance(query, str) or not query.strip():
+        raise SummaryError(f"Group {label!r}: the query must be a non-empty pandas query string; got {query!r}.")
+    try:
+        sel = covariates.eval(query)
+    except pd.errors.UndefinedVariableError as exc:
+        raise SummaryError(
+            f"Group {label!r}: query {query!r} names a column that is not in the covariates ({exc}). "
+            f"Available: {', '.join(map(repr, covariates.columns))}."
+        ) from None
+    except Exception as exc:  # noqa: BLE001 - pandas raises many kinds for a bad query
+        raise SummaryError(f"Group {label!r}: query {query!r} could not be evaluated: {exc}") from None
+    sel = pd.Series(sel)
+    if sel.dtype != bool or len(sel) != len(covariates):
+        raise SummaryError(f"Group {label!r}: query {query!r} must give True/False per unit; got {sel.dtype}.")
+    return sel.to_numpy()
+
+
+class GroupSummary:
+    """Posterior of the effect in each pre-specified group (groups may overlap)."""
+
+    def __init__(self, draws, labels, queries, masks, theta, uptake):
+        self.draws = draws
+        self.labels = labels
+        self.queries = queries
+        self._masks = masks
+        self.group_draws = theta  # (n_draws, 1 + n_groups): "All units" first
+        self._uptake = uptake
+
+    @property
+    def settings(self) -> dict:
+        return {"kind": "groups", "label": self.draws.label, "groups": dict(zip(self.labels[1:], self.queries[1:])),
+                "n_draws": self.draws.n_draws, "n_units": self.draws.n_units,
+                "complier_weighted": self.draws.is_complier_weighted}
+
+    def _info(self) -> pd.DataFrame:
+        wbar = self.draws.mean_weights
+        return pd.DataFrame({
+            "subgroup": self.labels,
+            "rule": self.queries,
+            "n_units": self._masks.sum(axis=0).astype(int),
+            "share": (wbar @ self._masks) / wbar.sum(),
+        })
+
+    def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
+        """Same columns as :meth:`TreeSummary.table`; ``subgroup`` is the label, ``rule`` the query."""
+        return effect_table(self.group_draws, self._info(), level=level, kind=interval, n_chains=self.draws.n_chains,
+                            uptake=self._uptake, uptake_floor=uptake_floor,
+                            attrs={"label": self.draws.label, "kind": "groups"})
+
+    def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
+        """Every pair of groups (the "All units" row included): difference, interval, P(A > B)."""
+        return contrast_table(self.group_draws, self.labels, self.queries, level=level, kind=interval,
+                              subgroup=subgroup, attrs={"label": self.draws.label, "kind": "groups"})
+
+    def __repr__(self) -> str:
+        return f"GroupSummary of '{self.draws.label}': {', '.join(self.labels)}"
+
+
+def summarize_groups(draws, groups: Mapping[str, str], level: float = 0.95, *, progress=None) -> GroupSummary:
+    """Effects of pre-specified subgroups, one pass over the draws.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+    groups : mapping of label -> pandas query string
+        For example ``{"older owners": "age >= 65 and tenure == 'owner'"}``; evaluated
+        with ``DataFrame.eval`` on ``draws.covariates``. Groups may overlap.
+    level : float, default 0.95
+        Checked here; pass a level to ``.table()`` to change it later.
+
+    Returns
+    -------
+    GroupSummary
+        Its table has a first row for all units.
+    """
+    from .draws import EffectDraws
+    from ._validate import check_level
+
+    if not isinstance(draws, EffectDraws):
+        raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
+    check_level(level)
+    if not isinstance(groups, Mapping) or not groups:
+        raise SummaryError("`groups` must be a non-empty mapping of label -> pandas query, e.g. {'older': 'age >= 65'}.")
+    labels, queries, masks = [ALL_UNITS], ["all units"], [np.ones(draws.n_units, bool)]
+    for label, query in groups.items():
+        label = str(label)
+        if label in labels:
+            raise SummaryError(f"`groups` uses the label {label!r} twice (or it clashes with {ALL_UNITS!r}).")
+        m = _mask(draws.covariates, label, query)
+        if not m.any():
+            raise SummaryError(f"Group {label!r}: query {query!r} selects no units.")
+        labels.append(label)
+        queries.append(query)
+        masks.append(m)
+    M = np.column_stack(masks).astype(np.float64)
+    red = LinearMap(M, with_weights=draws.has_draw_weights)
+    run_pass(draws, [red], progress=progress)
+    if draws.has_draw_weights:
+        W = red.weights_out
+    else:
+        w = draws._weights if draws._weights is not None else np.ones(draws.n_units)
+        W = w @ M
+    theta = ratio_draws(red.out, W, labels)
+    uptake = None
+    if draws.is_complier_weighted:
+        v = draws._weights if draws._weights is not None else np.ones(draws.n_units)
+        uptake = W / (v @ M)
+    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake)

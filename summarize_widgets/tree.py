@@ -1,0 +1,461 @@
+"""Summary trees: CART fitted to the posterior mean, every draw projected onto its leaves.
+
+One tree is grown on the weighted posterior mean to ``max_depth``; shallower
+trees are its truncations (METHOD.md section 3). One pass over the draws gives
+the per-draw sums of every deepest leaf; any node at any depth is a union of
+deepest leaves, so a depth change costs O(n_draws x n_leaves) and never reads
+the draws again.
+
+Categorical covariates: before fitting, each categorical column's categories are
+ordered by the weighted mean of the posterior mean within the category and
+coded by that rank, so a threshold split on the code is a split of the
+categories into two sets (``region in {east, west}``). For squared loss this
+ordering gives the best binary partition at a node (Fisher 1958; Breiman et
+al. 1984, sec. 9.4); we compute it once on all units, so it is exact for splits
+at the root and an approximation below it (scikit-learn's tree has no
+categorical splits). Missing numeric values follow scikit-learn's missing-value
+support; missing categories form their own category.
+"""
+from __future__ import annotations
+
+from functools import cached_property
+
+import numpy as np
+import pandas as pd
+from sklearn.tree import DecisionTreeRegressor
+
+from ._design import ColumnSpec, category_codes, classify_columns, numeric_values
+from ._passes import LeafSums, run_pass
+from ._rules import Condition, combine, nice_threshold
+from ._subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from ._validate import SummaryError, check_columns, check_int, check_interval, check_level
+from .intervals import interval
+
+__all__ = ["summarize_tree", "TreeSummary", "default_min_size"]
+
+_MAX_DEPTH_LIMIT = 8
+
+
+def default_min_size(n_units: int) -> int:
+    """Default smallest subgroup: 5% of the units, at most 1,000 and at least 1 (common practice for readable subgroups)."""
+    return int(max(1, min(1000, round(0.05 * n_units))))
+
+
+def _no_heterogeneity(sst, wsum, centre):
+    # A draw whose centred total sum of squares is at rounding level has no heterogeneity.
+    return sst <= 1e-20 * wsum * np.maximum(centre * centre, 1e-300) + 0.0
+
+
+def _encode(covariates: pd.DataFrame, specs: list[ColumnSpec], rank: dict) -> np.ndarray:
+    cols = []
+    for spec in specs:
+        s = covariates[spec.name]
+        if spec.kind == "numeric":
+            cols.append(numeric_values(s))
+        else:
+            cols.append(rank[spec.name][category_codes(s, spec)].astype(np.float64))
+    return np.column_stack(cols)
+
+
+class _Fitted:
+    """Everything shared by a tree and its truncations (computed once)."""
+
+    def __init__(self, draws, specs, est, X, rank, order, max_depth, min_size, unit_leaf, A, W_draw, W_fixed, names_by_rank):
+        self.draws = draws
+        self.specs = specs
+        self.est = est
+        self.X = X
+        self.rank = rank
+        self.order = order
+        self.max_depth = max_depth
+        self.min_size = min_size
+        t = est.tree_
+        self.t = t
+        n_nodes = t.node_count
+        self.parent = np.full(n_nodes, -1)
+        self.node_depth = np.zeros(n_nodes, int)
+        for node in range(n_nodes):
+            for child in (t.children_left[node], t.children_right[node]):
+                if child >= 0:
+                    self.parent[child] = node
+                    self.node_depth[child] = self.node_depth[node] + 1
+        self.sk_leaves = np.flatnonzero(t.children_left < 0)
+        L = len(self.sk_leaves)
+        # membership: deepest leaf -> every ancestor node
+        M = np.zeros((L, n_nodes))
+        for j, leaf in enumerate(self.sk_leaves):
+            node = leaf
+            while node >= 0:
+                M[j, node] = 1.0
+                node = self.parent[node]
+        self.M = M
+        self.unit_leaf = unit_leaf  # index into sk_leaves, per unit
+        self.A_nodes = A @ M  # (S, n_nodes)
+        wbar = draws.mean_weights
+        self.n_units_node = np.bincount(unit_leaf, minlength=L) @ M
+        self.wbar_node = np.bincount(unit_leaf, weights=wbar, minlength=L) @ M
+        if W_draw is not None:
+            self.W_nodes = W_draw @ M
+        else:
+            self.W_nodes = np.broadcast_to(W_fixed @ M, self.A_nodes.shape)
+        self.unit_w_node = None
+        if draws.is_complier_weighted:
+            v = draws._weights if draws._weights is not None else np.ones(draws.n_units)
+            self.unit_w_node = np.bincount(unit_leaf, weights=v, minlength=L) @ M
+        self.names_by_rank = names_by_rank
+        self.conditions = self._conditions()
+        self.rules = self._rules()
+
+    # -- rules -----------------------------------------------------------------------
+    def _conditions(self) -> dict:
+        """Condition on the edge into each non-root node."""
+        t = self.t
+        leaf_of_node = {}
+        # units in each node, for readable thresholds and category sets
+        node_units = self.est.decision_path(self.X).tocsc()
+        conds = {}
+        for node in range(t.node_count):
+            left, right = t.children_left[node], t.children_right[node]
+            if left < 0:
+                continue
+            f = t.feature[node]
+            spec = self.specs[f]
+            thr = t.threshold[node]
+            units = node_units[:, node].nonzero()[0]
+            x = self.X[units, f]
+            miss = np.isnan(x)
+            go_left = np.where(miss, bool(t.missing_go_to_left[node]), x <= thr)
+            if spec.kind == "numeric":
+                lx = x[go_left & ~miss]
+                rx = x[~go_left & ~miss]
+                value = nice_threshold(thr, lx.max() if lx.size else -np.inf, rx.min() if rx.size else np.inf)
+                has_missing = spec.n_missing > 0
+                ml = has_missing and bool(t.missing_go_to_left[node])
+                conds[left] = Condition(spec.name, op="<=", value=value, numeric_value=float(value), with_missing=ml)
+                conds[right] = Condition(spec.name, op=">", value=value, numeric_value=float(value),
+                                         with_missing=has_missing and not ml)
+            else:
+                present = np.unique(x[~miss]).astype(int)
+                names = self.names_by_rank[spec.name]
+                lab_l = tuple(sorted((names[r] for r in present if r <= thr), key=spec.categories.index))
+                lab_r = tuple(sorted((names[r] for r in present if r > thr), key=spec.categories.index))
+                conds[left] = Condition(spec.name, labels=lab_l)
+                conds[right] = Condition(spec.name, labels=lab_r)
+        del leaf_of_node
+        return conds
+
+    def _rules(self) -> list[str]:
+        rules = []
+        for node in range(self.t.node_count):
+            path = []
+            k = node
+            while self.parent[k] >= 0:
+                path.append(self.conditions[k])
+                k = self.parent[k]
+            rules.append(combine(path[::-1]))
+        return rules
+
+    def nodes_at(self, depth: int) -> np.ndarray:
+        """Node ids of the subgroups of the truncation at ``depth`` (in tree order)."""
+        is_leaf = self.t.children_left < 0
+        sel = (self.node_depth == depth) | (is_leaf & (self.node_depth < depth))
+        return np.flatnonzero(sel)
+
+
+class TreeSummary:
+    """A summary tree and the posterior of its subgroup effects at one depth.
+
+    Build it with :func:`summarize_tree`; ``.depth(d)`` gives the truncation at depth d
+    without touching the draws. See DEVELOPERS.md for the columns of every table.
+    """
+
+    def __init__(self, fitted: _Fitted, depth: int):
+        self._f = fitted
+        self.current_depth = int(depth)
+
+    # -- structure ----------------------------------------------------------------------
+    @property
+    def max_depth(self) -> int:
+        return self._f.max_depth
+
+    @property
+    def fitted_depth(self) -> int:
+        """Depth the grown tree actually reached (it stops early when no split is allowed)."""
+        return int(self._f.node_depth.max())
+
+    @property
+    def label(self) -> str:
+        return self._f.draws.label
+
+    @property
+    def columns(self) -> list[str]:
+        return [s.name for s in self._f.specs]
+
+    @property
+    def min_size(self) -> int:
+        return self._f.min_size
+
+    @property
+    def draws(self):
+        return self._f.draws
+
+    @property
+    def settings(self) -> dict:
+        return {
+            "kind": "tree",
+            "label": self.label,
+            "depth": self.current_depth,
+            "max_depth": self.max_depth,
+            "min_size": self.min_size,
+            "columns": self.columns,
+            "n_draws": self._f.draws.n_draws,
+            "n_units": self._f.draws.n_units,
+            "complier_weighted": self._f.draws.is_complier_weighted,
+        }
+
+    def depth(self, d: int) -> "TreeSummary":
+        """The truncation at depth ``d`` (1 to ``max_depth``), from stored sums only."""
+        d = check_int(d, "depth", low=1, high=self.max_depth)
+        return TreeSummary(self._f, d)
+
+    @cached_property
+    def leaf_ids(self) -> np.ndarray:
+        """Node ids of the subgroups at the current depth."""
+        return self._f.nodes_at(self.current_depth)
+
+    @cached_property
+    def leaf_draws(self) -> np.ndarray:
+        """Per-draw subgroup effects, shape (n_draws, n_subgroups), columns in ``leaf_ids`` order."""
+        f = self._f
+        ids = self.leaf_ids
+        return ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
+
+    def _uptake(self, ids):
+        f = self._f
+        if f.unit_w_node is None:
+            return None
+        return f.W_nodes[:, ids] / f.unit_w_node[ids]
+
+    def _info(self, ids) -> pd.DataFrame:
+        f = self._f
+        return pd.DataFrame({
+            "subgroup": ids.astype(int),
+            "rule": [f.rules[i] for i in ids],
+            "n_units": f.n_units_node[ids].astype(int),
+            "share": f.wbar_node[ids] / f.wbar_node[0],
+        })
+
+    def _attrs(self):
+        return {"label": self.label, "depth": self.current_depth, "kind": "tree"}
+
+    def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
+        """One row per subgroup at the current depth.
+
+        Columns: ``subgroup`` (node id), ``rule``, ``n_units``, ``share`` (weighted share of
+        units), ``mean``, ``sd``, ``lower``, ``upper`` (credible interval at ``level``),
+        ``prob_positive``, ``ess`` (bulk effective sample size), ``mcse`` (Monte Carlo
+        standard error of the mean); complier-weighted draws add ``uptake_share``,
+        ``uptake_lower`` and ``weak_uptake`` (lower credible limit of the complier share
+        below ``uptake_floor``: the subgroup's ratio is unstable).
+        """
+        ids = self.leaf_ids
+        return effect_table(self.leaf_draws, self._info(ids), level=level, kind=interval,
+                            n_chains=self._f.draws.n_chains, uptake=self._uptake(ids), uptake_floor=uptake_floor,
+                            attrs=self._attrs())
+
+    def nodes(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
+        """Every node down to the current depth (the one description core for every renderer).
+
+        Columns: ``node``, ``parent`` (-1 for the root), ``depth``, ``split`` (condition on the
+        edge from the parent), ``rule`` (the full path), ``is_leaf`` (a subgroup at the current
+        depth), ``n_units``, ``share``, ``mean``, ``lower``, ``upper``, ``prob_positive``.
+        """
+        f = self._f
+        ids = np.flatnonzero(f.node_depth <= self.current_depth)
+        theta = ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
+        lo, hi = _interval(theta, level, interval)
+        leaves = set(self.leaf_ids.tolist())
+        out = pd.DataFrame({
+            "node": ids.astype(int),
+            "parent": f.parent[ids].astype(int),
+            "depth": f.node_depth[ids].astype(int),
+            "split": [f.conditions[i].text() if i in f.conditions else "" for i in ids],
+            "rule": [f.rules[i] for i in ids],
+            "is_leaf": [int(i) in leaves for i in ids],
+            "n_units": f.n_units_node[ids].astype(int),
+            "share": f.wbar_node[ids] / f.wbar_node[0],
+            "mean": theta.mean(axis=0),
+            "lower": lo,
+            "upper": hi,
+            "prob_positive": (theta > 0).mean(axis=0),
+        })
+        out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
+        return out
+
+    def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
+        """Every pair of subgroups (or ``subgroup`` against each other): difference per draw,
+        its interval and ``P(A > B)``; never two marginal intervals combined."""
+        ids = self.leaf_ids
+        return contrast_table(self.leaf_draws, [int(i) for i in ids], [self._f.rules[i] for i in ids],
+                              level=level, kind=interval, subgroup=subgroup, attrs=self._attrs())
+
+    # -- summary R^2 ---------------------------------------------------------------------
+    def _r2_at(self, depth: int) -> np.ndarray:
+        f = self._f
+        d = f.draws
+        ids = f.nodes_at(depth)
+        c = d._centre[:, None]
+        W = f.W_nodes[:, ids]
+        Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (METHOD.md section 3 numerics)
+        Wt = f.W_nodes[:, 0]
+        Atc = f.A_nodes[:, 0] - d._centre * Wt
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sse = d._q - np.where(W > 0, Ac * Ac / np.where(W > 0, W, 1.0), 0.0).sum(axis=1)
+            sst = d._q - Atc * Atc / Wt
+            none = _no_heterogeneity(sst, Wt, d._centre)
+            r2 = np.where(none, np.nan, 1.0 - np.clip(sse, 0.0, None) / np.where(none, 1.0, sst))
+        return np.clip(r2, 0.0, 1.0)
+
+    def _checked_r2(self, r2: np.ndarray) -> np.ndarray:
+        if np.isnan(r2).all():
+            raise SummaryError(
+                "Summary R^2 is undefined: every posterior draw has the same effect for all units "
+                "(no heterogeneity to explain), so there is nothing for a summary to capture."
+            )
+        return r2
+
+    @property
+    def fit_r2(self) -> np.ndarray:
+        """Summary R^2 per draw at the current depth, shape (n_draws,).
+
+        NaN for draws with no heterogeneity (see ``fit_r2_note``); raises when every draw has none.
+        """
+        return self._checked_r2(self._r2_at(self.current_depth))
+
+    @property
+    def fit_r2_note(self) -> str:
+        """How many draws had no heterogeneity (their R^2 is undefined), or ""."""
+        k = int(np.isnan(self._r2_at(self.current_depth)).sum())
+        return "" if k == 0 else f"{k} of {self._f.draws.n_draws} draws have no heterogeneity; their summary R^2 is undefined (NaN)."
+
+    def fit_r2_draws_by_depth(self) -> dict[int, np.ndarray]:
+        """Depth -> per-draw summary R^2 (n_draws,), for every depth 1..max_depth."""
+        return {d: self._checked_r2(self._r2_at(d)) for d in range(1, self.max_depth + 1)}
+
+    def fit_r2_by_depth(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
+        """Posterior of summary R^2 at every depth: ``depth``, ``n_subgroups``, ``mean``, ``lower``, ``upper``."""
+        rows = []
+        for d, r2 in self.fit_r2_draws_by_depth().items():
+            ok = r2[~np.isnan(r2)]
+            lo, hi = _interval(ok[:, None], level, interval)
+            rows.append({"depth": d, "n_subgroups": len(self._f.nodes_at(d)), "mean": ok.mean(),
+                         "lower": float(lo[0]), "upper": float(hi[0])})
+        out = pd.DataFrame(rows)
+        out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
+        return out
+
+    # -- new rows ---------------------------------------------------------------------------
+    def assign(self, covariates: pd.DataFrame) -> pd.Series:
+        """The subgroup (node id at the current depth) of each row of ``covariates``."""
+        if not isinstance(covariates, pd.DataFrame):
+            raise SummaryError(f"`covariates` must be a pandas DataFrame; got {type(covariates).__name__}.")
+        missing = [c for c in self.columns if c not in covariates.columns]
+        if missing:
+            raise SummaryError(f"`covariates` lacks the column(s) the tree uses: {', '.join(repr(m) for m in missing)}.")
+        f = self._f
+        X = _encode(covariates, f.specs, f.rank)
+        sk_leaf = f.est.apply(X)
+        pos = np.searchsorted(f.sk_leaves, sk_leaf)
+        anc = self._ancestor_at_depth()
+        return pd.Series(anc[f.sk_leaves[pos]], index=covariates.index, name="subgroup")
+
+    def _ancestor_at_depth(self) -> np.ndarray:
+        f = self._f
+        anc = np.arange(f.t.node_count)
+        for node in range(f.t.node_count):
+            k = node
+            while f.node_depth[k] > self.current_depth:
+                k = f.parent[k]
+            anc[node] = k
+        return anc
+
+    def __repr__(self) -> str:
+        tab = self.table()
+        lines = [f"TreeSummary of '{self.label}' at depth {self.current_depth} (max {self.max_depth}), "
+                 f"{len(tab)} subgroups, min size {self.min_size}:"]
+        for r in tab.itertuples():
+            lines.append(f"  [{r.subgroup}] {r.rule}: n={r.n_units}, mean {r.mean:.4g} [{r.lower:.4g}, {r.upper:.4g}]")
+        return "\n".join(lines)
+
+
+def _interval(theta, level, kind):
+    check_interval(kind)
+    return interval(theta, check_level(level), kind)
+
+
+def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns=None,
+                   progress=None) -> TreeSummary:
+    """Fit a summary tree to the posterior mean and project every draw onto its subgroups.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+    max_depth : int, default 4
+        Deepest tree offered (1 to 8); every shallower depth is available via ``.depth(d)``.
+    min_size : int, optional
+        Smallest subgroup, in units (scikit-learn's ``min_samples_leaf``); default
+        :func:`default_min_size` (5% of the units, at most 1,000).
+    columns : list of str, optional
+        Covariates the tree may split on (default: all).
+    progress : callable(done, total), optional
+        Called after each block of the pass over the draws.
+
+    Returns
+    -------
+    TreeSummary
+        At depth ``max_depth``.
+    """
+    from .draws import EffectDraws
+
+    if not isinstance(draws, EffectDraws):
+        raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")
+    max_depth = check_int(max_depth, "max_depth", low=1, high=_MAX_DEPTH_LIMIT)
+    n = draws.n_units
+    min_size = default_min_size(n) if min_size is None else check_int(min_size, "min_size", low=1, high=n)
+    cols = check_columns(columns, list(draws.covariates.columns))
+    specs = classify_columns(draws.covariates, cols)
+
+    target = draws.posterior_mean
+    wbar = draws.mean_weights
+    fit_rows = wbar > 0
+    # Fisher ordering of categories by the weighted mean of the target within each category.
+    rank, names_by_rank = {}, {}
+    for spec in specs:
+        if spec.kind != "categorical":
+            continue
+        codes = category_codes(draws.covariates[spec.name], spec)
+        k = len(spec.categories)
+        wsum = np.bincount(codes[fit_rows], weights=wbar[fit_rows], minlength=k)
+        tsum = np.bincount(codes[fit_rows], weights=(wbar * np.nan_to_num(target))[fit_rows], minlength=k)
+        means = np.where(wsum > 0, tsum / np.where(wsum > 0, wsum, 1.0), np.inf)
+        order = np.argsort(means, kind="stable")
+        r = np.empty(k, int)
+        r[order] = np.arange(k)
+        rank[spec.name] = r
+        names_by_rank[spec.name] = [spec.categories[j] for j in order]
+    X = _encode(draws.covariates, specs, rank)
+
+    est = DecisionTreeRegressor(max_depth=max_depth, min_samples_leaf=min_size, random_state=0)
+    est.fit(X[fit_rows], target[fit_rows], sample_weight=wbar[fit_rows])
+    sk_leaves = np.flatnonzero(est.tree_.children_left < 0)
+    unit_leaf = np.searchsorted(sk_leaves, est.apply(X))
+
+    sums = LeafSums(unit_leaf, len(sk_leaves))
+    run_pass(draws, [sums], progress=progress)
+    W_draw = sums.weights
+    W_fixed = None
+    if W_draw is None:
+        w = draws._weights if draws._weights is not None else np.ones(n)
+        W_fixed = np.bincount(unit_leaf, weights=w, minlength=len(sk_leaves))
+    fitted = _Fitted(draws, specs, est, X, rank, None, max_depth, min_size, unit_leaf, sums.sums, W_draw, W_fixed, names_by_rank)
+    return TreeSummary(fitted, max_depth)

@@ -1,0 +1,144 @@
+"""The summary-tree view: an anywidget whose ES module lives in the repository's ``js/``.
+
+The Python side only holds state: the node records of
+:meth:`TreeSummary.nodes` (one dict per node), the selected node id, the
+diverging palette and a caption. Everything drawn is computed in
+``js/tree_view.js`` from that state, so the view also renders from saved
+widget state (a static HTML export) with no kernel.
+"""
+from __future__ import annotations
+
+import math
+from importlib import resources
+from pathlib import Path
+
+import anywidget
+import traitlets
+
+from .._validate import SummaryError
+
+__all__ = ["TreeView", "NODE_FIELDS", "node_records", "asset_path", "DEFAULT_PALETTE"]
+
+# Fields the ES module reads from each node record (DEVELOPERS.md, the result contract).
+NODE_FIELDS = ("node", "parent", "depth", "split", "rule", "is_leaf", "n_units", "share", "mean", "lower", "upper")
+_INT_FIELDS = ("node", "parent", "depth", "n_units")
+_FLOAT_FIELDS = ("share", "mean", "lower", "upper")
+
+# Used only until figures.py's shared palette is passed in (the Explorer passes it).
+DEFAULT_PALETTE = {"negative": "#2c6e8f", "neutral": "#f3f0e8", "positive": "#b5562b", "missing": "#d5d5d5"}
+
+
+def asset_path(name: str) -> Path:
+    """Locate a front-end file shipped with the package.
+
+    In a wheel the repository's ``js/`` folder is installed as
+    ``summarize_widgets/_static/``; in an editable install that folder does not
+    exist and the file is read from the repository's ``js/`` instead.
+
+    Parameters
+    ----------
+    name : str
+        File name inside ``js/``, for example ``"tree_view.js"``.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    try:
+        packaged = resources.files("summarize_widgets") / "_static" / name
+        if packaged.is_file():
+            return Path(str(packaged))
+    except (ModuleNotFoundError, FileNotFoundError, NotADirectoryError):  # pragma: no cover - odd installs
+        pass
+    source = Path(__file__).resolve().parents[2] / "js" / name
+    if source.is_file():
+        return source
+    raise FileNotFoundError(
+        f"front-end file {name!r} not found: looked in summarize_widgets/_static/ and {source.parent}. "
+        "Reinstall the package (pip install summarize_widgets) so its JavaScript is included."
+    )
+
+
+def _clean(value, field):
+    if value is None:
+        return None
+    if field in _INT_FIELDS:
+        return int(value)
+    if field in _FLOAT_FIELDS:
+        value = float(value)
+        # JSON has no NaN: a missing number travels as null and the view prints "n/a".
+        return value if math.isfinite(value) else None
+    if field == "is_leaf":
+        return bool(value)
+    return str(value)
+
+
+def node_records(nodes) -> list[dict]:
+    """Turn a ``TreeSummary.nodes()`` DataFrame into JSON-ready dicts for the view.
+
+    Parameters
+    ----------
+    nodes : pandas.DataFrame
+        One row per node with at least the columns of ``NODE_FIELDS``.
+
+    Returns
+    -------
+    list of dict
+        One dict per node with exactly the keys of ``NODE_FIELDS``; ids and
+        counts as int, numbers as float (None for NaN), flags as bool.
+    """
+    missing = [f for f in NODE_FIELDS if f not in getattr(nodes, "columns", ())]
+    if missing:
+        have = list(getattr(nodes, "columns", ()))
+        raise SummaryError(
+            f"`nodes` must be a DataFrame with columns {list(NODE_FIELDS)}; missing {missing} (got columns {have})."
+        )
+    return [
+        {f: _clean(row[f], f) for f in NODE_FIELDS}
+        for row in nodes.loc[:, list(NODE_FIELDS)].to_dict("records")
+    ]
+
+
+class TreeView(anywidget.AnyWidget):
+    """The subgroup tree drawn as boxes; clicking a box selects that node.
+
+    Parameters
+    ----------
+    nodes : list of dict, optional
+        Node records as returned by :func:`node_records`.
+    selected : int, default -1
+        Selected node id (-1: none).
+    palette : dict, optional
+        ``negative``, ``neutral``, ``positive`` (and ``missing``) colours as ``#rrggbb``.
+    colour_limit : float, default 0
+        The |posterior mean| that gets the full colour; 0 or less means the
+        largest |mean| among the leaves shown.
+    caption : str, default ""
+        One line above the tree.
+    """
+
+    _esm = asset_path("tree_view.js")
+    _css = asset_path("tree_view.css")
+
+    nodes = traitlets.List(traitlets.Dict()).tag(sync=True)
+    selected = traitlets.Int(-1).tag(sync=True)
+    palette = traitlets.Dict(DEFAULT_PALETTE).tag(sync=True)
+    colour_limit = traitlets.Float(0.0).tag(sync=True)
+    caption = traitlets.Unicode("").tag(sync=True)
+
+    @traitlets.validate("palette")
+    def _check_palette(self, proposal):
+        value = dict(proposal["value"])
+        missing = [k for k in ("negative", "neutral", "positive") if k not in value]
+        if missing:
+            raise SummaryError(f"`palette` must have the keys 'negative', 'neutral' and 'positive'; missing {missing}.")
+        for key, colour in value.items():
+            text = str(colour)
+            if not (len(text) == 7 and text.startswith("#") and all(c in "0123456789abcdefABCDEF" for c in text[1:])):
+                raise SummaryError(f"`palette[{key!r}]` must be a colour like '#1f77b4'; got {colour!r}.")
+        return value
+
+    @property
+    def leaf_ids(self) -> list[int]:
+        """Ids of the leaves currently drawn."""
+        return [r["node"] for r in self.nodes if r["is_leaf"]]
