@@ -446,7 +446,10 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     X = _encode(draws.covariates, specs, rank)
 
     est = DecisionTreeRegressor(max_depth=max_depth, min_samples_leaf=min_size, random_state=0)
-    est.fit(X[fit_rows], target[fit_rows], sample_weight=wbar[fit_rows])
+    # Splits do not change when a constant is subtracted, but the tree's variance sums lose digits
+    # when the effects are large relative to their spread: fit to the centred target.
+    y = target[fit_rows] - np.average(target[fit_rows], weights=wbar[fit_rows])
+    est.fit(X[fit_rows], y, sample_weight=wbar[fit_rows])
     sk_leaves = np.flatnonzero(est.tree_.children_left < 0)
     unit_leaf = np.searchsorted(sk_leaves, est.apply(X))
 
