@@ -46,6 +46,7 @@ DRAW_FORMATS = {
 _LAYOUTS = ("wide", "long")
 _NPY_MAGIC = b"\x93NUMPY"
 _ZIP_MAGIC = b"PK\x03\x04"
+_HDF5_MAGIC = b"\x89HDF\r\n\x1a\n"
 
 
 @dataclass
@@ -444,6 +445,16 @@ def _wide_to_matrix(df: pd.DataFrame, path: Path) -> _Read:
     return _Read(df[units].to_numpy(), chains=chains, unit_ids=units)
 
 
+def _plain(v):
+    """A NumPy scalar as the Python value it holds, so messages read 4, not np.int64(4)."""
+    return v.item() if isinstance(v, np.generic) else v
+
+
+def _cell_text(draw_keys, row_key, unit) -> str:
+    parts = [f"{k} {_plain(v)!r}" for k, v in zip(draw_keys, row_key)]
+    return ", ".join(parts + [f"unit {_plain(unit)!r}"])
+
+
 def _long_to_matrix(df: pd.DataFrame, value_col: str, path: Path) -> _Read:
     draw_keys = ["chain", "draw"] if "chain" in df.columns else ["draw"]
     _check_keys(df, draw_keys + ["unit"], path)
@@ -459,14 +470,14 @@ def _long_to_matrix(df: pd.DataFrame, value_col: str, path: Path) -> _Read:
         first = int(np.flatnonzero(counts > 1)[0])
         raise SummaryError(
             f"`path`: {int((counts > 1).sum())} (draw, unit) cells of the long table {str(path)!r} appear more than "
-            f"once (first: draw {tuple(row_keys[first // n_units])}, unit {unit_ids[first % n_units]!r})."
+            f"once (first: {_cell_text(draw_keys, row_keys[first // n_units], unit_ids[first % n_units])})."
         )
     if (counts == 0).any():
         gaps = np.flatnonzero(counts == 0)
-        shown = ", ".join(f"(draw {tuple(row_keys[g // n_units])}, unit {unit_ids[g % n_units]!r})" for g in gaps[:5])
+        shown = ", ".join(f"({_cell_text(draw_keys, row_keys[g // n_units], unit_ids[g % n_units])})" for g in gaps[:5])
         raise SummaryError(
             f"`path`: the long table {str(path)!r} is not a complete draw x unit grid ({n_rows} draws x {n_units} "
-            f"units): {gaps.size} cells are missing, e.g. {shown}."
+            f"units): {gaps.size} of {n_rows * n_units} cells are missing, e.g. {shown}."
         )
     values = df[value_col].to_numpy()
     out = np.empty(n_rows * n_units, dtype=values.dtype if values.dtype.kind == "f" else np.float64)
@@ -479,8 +490,13 @@ def _long_to_matrix(df: pd.DataFrame, value_col: str, path: Path) -> _Read:
 def _read_netcdf(path: Path, variable, group) -> _Read:
     import xarray as xr  # a dependency, imported only when needed
 
+    with open(path, "rb") as fh:
+        is_hdf5 = fh.read(8) == _HDF5_MAGIC
+    # netCDF-4 files are HDF5: read them with h5netcdf (a runtime dependency) so the result does not depend on
+    # which optional engines are installed; netCDF-3 files go to xarray's own choice (scipy or netCDF4).
+    engine = "h5netcdf" if is_hdf5 else None
     try:
-        ds = xr.open_dataset(path, group=group)
+        ds = xr.open_dataset(path, group=group, engine=engine)
     except Exception as exc:  # noqa: BLE001 - backends raise many types for unreadable files
         raise SummaryError(f"`path`: cannot read {str(path)!r} as netCDF (is it truncated or malformed?): {exc}") from exc
     with ds:
