@@ -1,0 +1,4 @@
+"""Notebook widgets: the :class:`Explorer` and the summary-tree view it is built around."""
+from .tree_view import TreeView
+
+__all__ = ["TreeView"]

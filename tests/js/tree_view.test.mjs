@@ -1,0 +1,178 @@
+// Pure functions of js/tree_view.js, run with `node --test tests/js/`.
+import test from "node:test";
+import assert from "node:assert/strict";
+import {
+  GEOMETRY,
+  DEFAULT_PALETTE,
+  layoutTree,
+  parseHex,
+  divergingColour,
+  relativeLuminance,
+  textColourOn,
+  colourLimit,
+  formatNumber,
+  formatFixed,
+  formatEstimate,
+  decimalsFor,
+  formatInterval,
+  formatShare,
+  formatCount,
+  truncate,
+  boxLines,
+} from "../../js/tree_view.js";
+import view from "../../js/tree_view.js";
+
+/** A record with defaults for the fields a test does not care about. */
+function rec(node, parent, depth, extra = {}) {
+  return {
+    node, parent, depth, split: parent === -1 ? "" : `x${node}`, rule: "", is_leaf: false,
+    n_units: 10, share: 0.1, mean: 0, lower: -1, upper: 1, ...extra,
+  };
+}
+
+// Depth-2 tree in scikit-learn's depth-first numbering: 0 -> (1 -> 2, 3), (4 -> 5, 6).
+const balanced = [
+  rec(0, -1, 0), rec(1, 0, 1), rec(2, 1, 2, { is_leaf: true }), rec(3, 1, 2, { is_leaf: true }),
+  rec(4, 0, 1), rec(5, 4, 2, { is_leaf: true }), rec(6, 4, 2, { is_leaf: true }),
+];
+
+test("default export is an anywidget module with render", () => {
+  assert.equal(typeof view.render, "function");
+});
+
+test("layout: leaves on consecutive rows in depth-first order, parents centred on their children", () => {
+  const g = GEOMETRY;
+  const row = g.height + g.gapY;
+  const lay = layoutTree(balanced);
+  const y = Object.fromEntries(lay.boxes.map((b) => [b.record.node, b.y]));
+  const x = Object.fromEntries(lay.boxes.map((b) => [b.record.node, b.x]));
+  assert.deepEqual([y[2], y[3], y[5], y[6]], [0, 1, 2, 3].map((r) => g.margin + r * row));
+  assert.equal(y[1], g.margin + 0.5 * row);
+  assert.equal(y[4], g.margin + 2.5 * row);
+  assert.equal(y[0], g.margin + 1.5 * row);
+  assert.deepEqual([x[0], x[1], x[2]], [0, 1, 2].map((d) => g.margin + d * (g.width + g.gapX)));
+  assert.equal(lay.edges.length, balanced.length - 1);
+  assert.equal(lay.width, 2 * g.margin + 3 * g.width + 2 * g.gapX);
+  assert.equal(lay.height, 2 * g.margin + 4 * row - g.gapY);
+});
+
+test("layout: unbalanced tree, boxes never overlap", () => {
+  const nodes = [rec(0, -1, 0), rec(1, 0, 1, { is_leaf: true }), rec(2, 0, 1), rec(3, 2, 2, { is_leaf: true }),
+    rec(4, 2, 2), rec(5, 4, 3, { is_leaf: true }), rec(6, 4, 3, { is_leaf: true })];
+  const lay = layoutTree(nodes);
+  for (const a of lay.boxes) {
+    for (const b of lay.boxes) {
+      if (a === b || a.x !== b.x) continue;
+      assert.ok(Math.abs(a.y - b.y) >= GEOMETRY.height, `nodes ${a.record.node} and ${b.record.node} overlap`);
+    }
+  }
+  assert.equal(lay.boxes.filter((b) => b.record.is_leaf).length, 4);
+});
+
+test("layout: a root alone, and no nodes", () => {
+  const one = layoutTree([rec(0, -1, 0, { is_leaf: true })]);
+  assert.equal(one.boxes.length, 1);
+  assert.equal(one.edges.length, 0);
+  assert.equal(one.height, 2 * GEOMETRY.margin + GEOMETRY.height);
+  assert.deepEqual(layoutTree([]), { boxes: [], edges: [], width: 0, height: 0 });
+});
+
+test("layout: malformed records are reported", () => {
+  assert.throws(() => layoutTree([rec(0, -1, 0), rec(0, -1, 0)]), /node id 0 appears twice/);
+  assert.throws(() => layoutTree([rec(0, -1, 0), rec(1, 7, 1)]), /names parent 7, which is not among the nodes/);
+  assert.throws(() => layoutTree([rec(0, -1, 0), rec(1, -1, 0)]), /expected one root node, found 2/);
+  assert.throws(() => layoutTree([rec(0, -1, 0), rec(1, 2, 1), rec(2, 1, 1)]), /2 node\(s\) are not connected to the root/);
+});
+
+test("colour: neutral at zero, palette ends at +-limit, clamped beyond, linear between", () => {
+  const p = DEFAULT_PALETTE;
+  assert.equal(divergingColour(0, 2, p), p.neutral);
+  assert.equal(divergingColour(2, 2, p), p.positive);
+  assert.equal(divergingColour(-2, 2, p), p.negative);
+  assert.equal(divergingColour(50, 2, p), p.positive);
+  assert.equal(divergingColour(-50, 2, p), p.negative);
+  const mid = parseHex(divergingColour(1, 2, p));
+  const a = parseHex(p.neutral);
+  const b = parseHex(p.positive);
+  mid.forEach((c, i) => assert.ok(Math.abs(c - (a[i] + b[i]) / 2) <= 0.5 + 1e-9));
+  assert.equal(divergingColour(Number.NaN, 2, p), p.missing);
+  assert.equal(divergingColour(null, 2, p), p.missing);
+  assert.equal(divergingColour(1, 0, p), p.positive, "a zero limit falls back to 1");
+});
+
+test("colour: custom palette and bad colours", () => {
+  const pal = { negative: "#0000ff", neutral: "#ffffff", positive: "#ff0000" };
+  assert.equal(divergingColour(-1, 1, pal), "#0000ff");
+  assert.equal(divergingColour(0.5, 1, pal), "#ff8080");
+  assert.deepEqual(parseHex("#0A0b0C"), [10, 11, 12]);
+  assert.throws(() => parseHex("red"), /colour must look like #rrggbb, got "red"/);
+});
+
+test("luminance and text colour follow WCAG 2 definitions", () => {
+  // WCAG 2.x relative luminance: L = 0.2126 R + 0.7152 G + 0.0722 B on linearized sRGB.
+  assert.equal(relativeLuminance("#ffffff"), 1);
+  assert.equal(relativeLuminance("#000000"), 0);
+  assert.ok(Math.abs(relativeLuminance("#ff0000") - 0.2126) < 1e-12);
+  assert.ok(Math.abs(relativeLuminance("#00ff00") - 0.7152) < 1e-12);
+  // #777777 on white has a contrast ratio of about 4.48:1 (widely quoted value, from memory).
+  const ratio = 1.05 / (relativeLuminance("#777777") + 0.05);
+  assert.ok(Math.abs(ratio - 4.48) < 0.01, `ratio ${ratio}`);
+  assert.equal(textColourOn("#ffffff"), "#222222");
+  assert.equal(textColourOn("#000000"), "#ffffff");
+  assert.equal(textColourOn(DEFAULT_PALETTE.neutral), "#222222");
+  assert.equal(textColourOn(DEFAULT_PALETTE.negative), "#ffffff");
+  assert.equal(textColourOn(DEFAULT_PALETTE.positive), "#ffffff");
+});
+
+test("colour limit: largest |mean| among leaves", () => {
+  const nodes = [rec(0, -1, 0, { mean: 9 }), rec(1, 0, 1, { is_leaf: true, mean: -3 }), rec(2, 0, 1, { is_leaf: true, mean: 2 })];
+  assert.equal(colourLimit(nodes), 3);
+  assert.equal(colourLimit([rec(0, -1, 0, { is_leaf: true, mean: 0 })]), 1);
+  assert.equal(colourLimit([rec(0, -1, 0, { is_leaf: true, mean: null })]), 1);
+});
+
+test("numbers: three significant digits, agreeing with Intl.NumberFormat below 1000", () => {
+  // Reference: ECMA-402 Intl.NumberFormat with 3 significant digits (outside this module).
+  const ref = new Intl.NumberFormat("en-US", { minimumSignificantDigits: 3, maximumSignificantDigits: 3 });
+  for (const x of [1.2345, -0.012345, 0.5, 99.94, 9.996, -123.4, 0.000123456, 42, -7.0049]) {
+    assert.equal(formatNumber(x), ref.format(x).replace("-", "\u2212"), `x = ${x}`);
+  }
+  assert.equal(formatNumber(123456.7), "123,457");
+  assert.equal(formatNumber(-999.7), "\u22121,000");
+  assert.equal(formatNumber(0), "0");
+  assert.equal(formatNumber(-0), "0");
+  assert.equal(formatNumber(Number.NaN), "n/a");
+  assert.equal(formatNumber(null), "n/a");
+  assert.equal(formatNumber(Infinity), "n/a");
+  assert.equal(formatNumber(1.23456, 5), "1.2346");
+});
+
+test("intervals, shares, counts, truncation, box lines", () => {
+  assert.equal(formatInterval(-1.5, 2), "[\u22121.50, 2.00]");
+  assert.equal(formatShare(0.1234), "12%");
+  assert.equal(formatShare(0.001), "<1%");
+  assert.equal(formatShare(0), "0%");
+  assert.equal(formatShare(1), "100%");
+  assert.equal(formatCount(1234567), "1,234,567");
+  assert.equal(formatCount(12), "12");
+  assert.equal(truncate("abcdef", 4), "abc\u2026");
+  assert.equal(truncate("abc", 4), "abc");
+  const lines = boxLines(rec(3, 1, 2, { split: "age < 45.5", n_units: 1520, share: 0.152, mean: -12.3, lower: -20, upper: -4.56 }));
+  assert.deepEqual(lines, ["age < 45.5", "1,520 units \u00b7 15%", "\u221212.3 [\u221220.0, \u22124.6]"]);
+  assert.equal(boxLines(rec(0, -1, 0))[0], "All units");
+});
+
+test("estimates share decimals: the largest |value| gets three significant digits", () => {
+  assert.equal(decimalsFor(14), 1);
+  assert.equal(decimalsFor(8), 2);
+  assert.equal(decimalsFor(9.996), 1, "rounds up to 10.0");
+  assert.equal(decimalsFor(0.0123), 4);
+  assert.equal(decimalsFor(1234), 0);
+  assert.equal(decimalsFor(0), 2);
+  assert.equal(formatEstimate(-10, -14, -6), "\u221210.0 [\u221214.0, \u22126.0]");
+  assert.equal(formatEstimate(-4, -8, 0.5), "\u22124.00 [\u22128.00, 0.50]");
+  assert.equal(formatEstimate(1500.4, 1200, 1800.6), "1,500 [1,200, 1,801]");
+  assert.equal(formatEstimate(null, 1, 2), "n/a [1.00, 2.00]");
+  assert.equal(formatFixed(-0.0001, 2), "0.00", "no negative zero");
+  assert.equal(formatFixed(-1234.5, 1), "\u22121,234.5");
+});
