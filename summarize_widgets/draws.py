@@ -234,27 +234,31 @@ class EffectDraws:
         self._wsum = np.empty(S)  # sum_i w_si
         self._wtsum = np.empty(S)  # sum_i w_si T_si
         bad_rows = []
-        for block in self.blocks():
-            r = block.rows
-            wt = np.asarray(block.wt, dtype=np.float64)
-            rowsum = wt.sum(axis=1)
-            if not np.isfinite(rowsum).all() or (self._den is not None and not np.isfinite(self._den[r].sum(axis=1)).all()):
-                bad_rows.append(r)
-                continue
-            w = block.w
-            wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
-            colsum_wt += wt.sum(axis=0)
-            if w is None:
-                colsum_w += wt.shape[0]
-            elif w.ndim == 1:
-                colsum_w += wt.shape[0] * w
-            else:
-                colsum_w += w.sum(axis=0)
-            self._wsum[r] = wsum
-            self._wtsum[r] = rowsum
-            self._centre[r], self._q[r] = self._centred_squares(r, block)
+        # Overflow (finite values whose weighted sums exceed float64) is detected below and reported, not warned.
+        with np.errstate(over="ignore", invalid="ignore"):
+            for block in self.blocks():
+                r = block.rows
+                wt = np.asarray(block.wt, dtype=np.float64)
+                rowsum = wt.sum(axis=1)
+                if not np.isfinite(rowsum).all() or (self._den is not None and not np.isfinite(self._den[r].sum(axis=1)).all()):
+                    bad_rows.append(r)
+                    continue
+                w = block.w
+                wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
+                colsum_wt += wt.sum(axis=0)
+                if w is None:
+                    colsum_w += wt.shape[0]
+                elif w.ndim == 1:
+                    colsum_w += wt.shape[0] * w
+                else:
+                    colsum_w += w.sum(axis=0)
+                self._wsum[r] = wsum
+                self._wtsum[r] = rowsum
+                self._centre[r], self._q[r] = self._centred_squares(r, block)
         if bad_rows:
             self._raise_nonfinite(bad_rows, name)
+        if not (np.isfinite(colsum_wt).all() and np.isfinite(self._q).all()):
+            self._raise_overflow(name)
         if self._den is not None:
             self._check_uptake()
         self._colsum_w = colsum_w
@@ -288,22 +292,32 @@ class EffectDraws:
         return c, contrib.sum(axis=1)
 
     def _raise_nonfinite(self, bad_rows, name):
+        """Report non-finite draws, the effect (or outcome ITT) matrix first, then the uptake matrix."""
         S, n = self._values.shape
-        rows_mask = np.zeros(S, bool)
-        cols_mask = np.zeros(n, bool)
-        count = 0
-        for r in bad_rows:
-            for arr, nm in ((self._values, name), (self._den, "uptake_itt")):
-                if arr is None:
-                    continue
+        for arr, nm in ((self._values, name), (self._den, "uptake_itt")):
+            if arr is None:
+                continue
+            rows_mask = np.zeros(S, bool)
+            cols_mask = np.zeros(n, bool)
+            count = 0
+            for r in bad_rows:
                 m = ~np.isfinite(np.asarray(arr[r]))
                 if m.any():
-                    if nm != name and not (~np.isfinite(np.asarray(self._values[r]))).any():
-                        name = nm
                     rows_mask[r] |= m.any(axis=1)
                     cols_mask |= m.any(axis=0)
                     count += int(m.sum())
-        raise SummaryError(describe_nonfinite(rows_mask, cols_mask, count, name))
+            if count:
+                raise SummaryError(describe_nonfinite(rows_mask, cols_mask, count, nm))
+        self._raise_overflow(name)  # every value is finite: a weighted sum overflowed
+
+    def _raise_overflow(self, name):
+        step = self.block_rows()
+        biggest = max(float(np.max(np.abs(self._values[i : i + step]))) for i in range(0, self.n_draws, step))
+        weighted = " times `weights`" if self._weights is not None else ""
+        raise SummaryError(
+            f"`{name}`{weighted} is too large in magnitude (largest |value| {biggest:.4g}): sums over units or "
+            "draws overflow float64. Rescale the values (for example to thousands of the currency unit)."
+        )
 
     def _check_uptake(self):
         mins = [float(np.min(self._den[b.rows])) for b in self.blocks()]
