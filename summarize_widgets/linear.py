@@ -1,0 +1,315 @@
+"""Linear summary: the best linear approximation of every posterior draw.
+
+Both the linear and the additive summary project each draw onto a FIXED design
+``B`` with FIXED unit weights ``wbar_i`` (the posterior-mean weight of each unit,
+:attr:`EffectDraws.mean_weights`). Per draw ``s`` the projected coefficients are
+
+    gamma_s = (B' Wbar B + P)^{-1} B' (w_s * T_s),
+
+the weighted (penalized) least-squares fit of the pseudo-values
+``Y_si = w_si T_si / wbar_i`` with weights ``wbar_i`` (METHOD.md sections 2 and 4;
+``P = 0`` here, a spline penalty in :mod:`summarize_widgets.additive`). With fixed
+per-unit weights ``Y = T`` and this is the plain weighted projection. With per-draw
+weights (including complier-weighted draws from :meth:`EffectDraws.from_itt`,
+where ``w_s * T_s`` is the outcome ITT and ``w_s`` the uptake ITT) the per-draw
+weights enter through the numerator only: the fit's weights stay ``wbar``, and no
+unit-level division ``ITT_y / pi`` is ever made. Units with ``wbar_i = 0`` take no
+part. The machinery here (:class:`FrozenProjection`) is shared by both summaries.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from scipy.linalg import solve_triangular
+
+from ._design import classify_columns, linear_design
+from ._passes import LinearMap, run_pass
+from ._validate import SummaryError, check_columns
+from .intervals import summarize_draws
+
+__all__ = ["summarize_linear", "LinearSummary", "FrozenProjection"]
+
+# A draw whose centred total sum of squares is below this share of W * c^2 has no heterogeneity
+# (rounding level; the same rule as the tree summary).
+_NO_HETEROGENEITY = 1e-20
+
+
+class _PseudoSquares:
+    """Reducer: per draw ``sum_i wbar_i (Y_si - c_s)^2 = sum_i (wt_si - c_s wbar_i)^2 / wbar_i``.
+
+    Needed only with per-draw weights (with fixed weights this is ``draws._q``).
+    Centring by ``c_s`` happens before squaring, in float64, to avoid cancellation.
+    """
+
+    def __init__(self, wbar: np.ndarray, keep: np.ndarray, centre: np.ndarray):
+        self._idx = None if keep.all() else np.flatnonzero(keep)
+        self._w = wbar[keep]
+        self._inv_w = 1.0 / self._w
+        self._centre = centre
+
+    def start(self, n_draws: int) -> None:
+        self.out = np.zeros(n_draws)
+
+    def consume(self, block) -> None:
+        wt = block.wt if self._idx is None else block.wt[:, self._idx]
+        wt = np.asarray(wt, dtype=np.float64)
+        r = wt - self._centre[block.rows, None] * self._w
+        self.out[block.rows] = np.einsum("ij,ij->i", r * self._inv_w, r)
+
+
+def _rank_check(R: np.ndarray, terms: list[str]) -> None:
+    """Raise naming the terms when the weighted design ``QR`` has dependent columns."""
+    norms = np.linalg.norm(R, axis=0)
+    zero = [t for t, v in zip(terms, norms) if v == 0]
+    if zero:
+        raise SummaryError(
+            f"The linear design is rank-deficient: term(s) {', '.join(repr(t) for t in zero)} are zero for every "
+            "unit with positive weight (no such units). Drop the column(s) from `columns`."
+        )
+    # Scale columns to unit length first so a covariate's units do not count as collinearity.
+    _, sv, vt = np.linalg.svd(R / norms)
+    tol = sv.max() * max(R.shape) * np.finfo(float).eps * 100
+    if sv.min() > tol:
+        return
+    null = vt[sv <= tol]
+    involved = np.abs(null).max(axis=0) > 1e-6
+    names = [t for t, k in zip(terms, involved) if k]
+    raise SummaryError(
+        "The linear design is rank-deficient: the terms "
+        f"{', '.join(repr(t) for t in names)} are linearly dependent among the units with positive weight "
+        "(for example two identical columns, or a column constant among those units). "
+        "Drop one of the covariates involved from `columns`."
+    )
+
+
+class FrozenProjection:
+    """Weighted (penalized) least squares onto a fixed design, for every draw in one pass.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+    design : ndarray, shape (n_kept, p)
+        The design ``B`` restricted to the units with ``wbar > 0`` (``keep``); must contain
+        a column of ones (``intercept``).
+    keep : ndarray of bool, shape (n_units,)
+    penalty : None or ndarray, shape (p, p)
+        Penalty ``P`` (None: ordinary weighted least squares, rank checked).
+    intercept : int
+        Index of the column of ones.
+    terms : list of str
+        Column names, for the rank-deficiency message.
+
+    Notes
+    -----
+    With ``sqrt(Wbar) B = Q R`` (thin QR), a pass computes ``z_s = Q' sqrt(Wbar) Y_s`` for every
+    draw as ``wt_s @ H`` with ``H = Wbar^{-1/2} Q`` (one :class:`LinearMap`; the draws are
+    never copied and no draw is refitted). Then ``gamma_s = A z_s`` with ``A = R^{-1}``, or,
+    penalized, ``A = (R'R + P)^{-1} R'`` computed as pygam does (SVD of ``[R; E]``,
+    ``E'E = P``). This equals ``(B'WbarB + P)^{-1} B' wt_s`` while working with an
+    orthonormal basis, so nothing squares the condition number of ``B``. The same ``z_s``
+    gives the residual sum of squares exactly: with centred pseudo-values
+    ``Y^c = Y - c_s`` and ``d_s = gamma_s - c_s e_intercept`` (so ``B d_s = B gamma_s - c_s``),
+    ``SSE_s = Q'_s - |z^c_s|^2 + |z^c_s - R d_s|^2`` and ``SST_s = Q'_s - (q1' z^c_s)^2 / W``,
+    where ``q1 = Q' sqrt(wbar)`` and ``Q'_s = sum_i wbar_i (Y_si - c_s)^2``.
+    """
+
+    def __init__(self, draws, design: np.ndarray, keep: np.ndarray, *, penalty=None, intercept: int = 0, terms=None):
+        n_kept, p = design.shape
+        if n_kept <= p:
+            raise SummaryError(
+                f"The summary has {p} coefficients but only {n_kept} units with positive weight; "
+                "it needs more units than coefficients (use fewer covariates or fewer splines)."
+            )
+        wbar = draws.mean_weights
+        w = wbar[keep]
+        sw = np.sqrt(w)
+        Q, R = np.linalg.qr(sw[:, None] * design)
+        if penalty is None:
+            _rank_check(R, list(terms) if terms is not None else [str(k) for k in range(p)])
+            self.coef_map = solve_triangular(R, np.eye(p))
+        else:
+            E = np.linalg.cholesky(np.asarray(penalty, dtype=np.float64)).T  # E'E = P
+            U, d, Vt = np.linalg.svd(np.vstack([R, E]), full_matrices=False)
+            self.coef_map = (Vt.T / d) @ U[:p].T
+        self.R = R
+        self.q1 = Q.T @ sw
+        self.wsum = float(w.sum())
+        self.keep = keep
+        self.intercept = int(intercept)
+        H = np.zeros((draws.n_units, p))
+        H[keep] = Q / sw[:, None]
+        self.H = H
+
+    def run(self, draws, progress=None):
+        """One pass: coefficients (n_draws, p), raw R^2 (n_draws,) with NaN where undefined."""
+        lmap = LinearMap(self.H)
+        reducers = [lmap]
+        squares = None
+        if draws.has_draw_weights:
+            squares = _PseudoSquares(draws.mean_weights, self.keep, draws._centre)
+            reducers.append(squares)
+        run_pass(draws, reducers, progress=progress)
+        self.H = None  # the n x p map is not needed after the pass
+        z = lmap.out
+        q = squares.out if squares is not None else draws._q
+        c = draws._centre
+        coef = z @ self.coef_map.T
+        zc = z - c[:, None] * self.q1
+        dc = coef.copy()
+        dc[:, self.intercept] -= c
+        resid = zc - dc @ self.R.T
+        sse = q - np.einsum("ij,ij->i", zc, zc) + np.einsum("ij,ij->i", resid, resid)
+        sst = q - (zc @ self.q1) ** 2 / self.wsum
+        none = sst <= _NO_HETEROGENEITY * self.wsum * np.maximum(c * c, 1e-300)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            r2 = np.where(none, np.nan, 1.0 - np.clip(sse, 0.0, None) / np.where(none, 1.0, sst))
+        # Excursions beyond [0, 1] are rounding only (SSE <= SST for a fit with an intercept).
+        return coef, np.clip(r2, 0.0, 1.0)
+
+
+def checked_r2(r2: np.ndarray, n_draws: int) -> np.ndarray:
+    """Return ``r2``; raise when no draw has heterogeneity (NaN marks single draws without any)."""
+    if int(np.isnan(r2).sum()) == n_draws:
+        raise SummaryError(
+            "Summary R^2 is undefined: every posterior draw has the same effect for all units "
+            "(no heterogeneity to explain), so there is nothing for a summary to capture."
+        )
+    return r2
+
+
+def r2_note(r2: np.ndarray) -> str:
+    """How many draws had no heterogeneity (their R^2 is NaN), or ""."""
+    k = int(np.isnan(r2).sum())
+    return "" if k == 0 else f"{k} of {r2.size} draws have no heterogeneity; their summary R^2 is undefined (NaN)."
+
+
+def check_draws(draws):
+    from .draws import EffectDraws
+
+    if not isinstance(draws, EffectDraws):
+        raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")
+    keep = draws.mean_weights > 0
+    return keep
+
+
+class LinearSummary:
+    """Posterior of the best linear approximation ``B gamma`` of the effect, ``B = [1, X]``.
+
+    Build it with :func:`summarize_linear`. The coefficients' posterior is the posterior
+    of the best linear approximation over this sample, not of a "true" linear model
+    (METHOD.md section 4).
+
+    Attributes
+    ----------
+    terms : list of str
+        Coefficient names, ``"(intercept)"`` first; dummies read ``"fuel = oil"``, missing
+        indicators ``"age: missing"``.
+    coef_draws : ndarray, shape (n_draws, n_terms)
+    reference : dict
+        Reference (omitted) category of each categorical covariate.
+    fill : dict
+        Value put in place of missing values of each numeric covariate.
+    label : str
+    settings : dict
+    """
+
+    def __init__(self, coef, r2, terms, specs, fill, design, keep, label, settings):
+        self.coef_draws = coef
+        self._r2 = r2
+        self.terms = list(terms)
+        self.columns = [s.name for s in specs]
+        self.reference = {s.name: s.categories[0] for s in specs if s.kind == "categorical"}
+        self.fill = {k: v for k, v in fill.items() if any(s.name == k and s.n_missing for s in specs)}
+        self._design = design
+        self._keep = keep
+        self.label = label
+        self.settings = settings
+
+    @property
+    def fit_r2(self) -> np.ndarray:
+        """Summary R^2 per draw, shape (n_draws,), with the pseudo-values' definitions of METHOD.md section 3.
+
+        NaN for draws with no heterogeneity (``fit_r2_note`` says how many); raises :class:`SummaryError` when no draw has any.
+        """
+        return checked_r2(self._r2, self._r2.size)
+
+    @property
+    def fit_r2_note(self) -> str:
+        """How many draws had no heterogeneity (their R^2 is undefined), or ""."""
+        return r2_note(self._r2)
+
+    def table(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
+        """One row per coefficient.
+
+        Columns: ``term``, ``mean``, ``sd``, ``lower``, ``upper`` (credible interval at
+        ``level``), ``prob_positive`` (share of draws above 0). ``df.attrs`` holds ``level``,
+        ``interval``, ``label``, ``reference`` (reference categories) and ``kind``.
+        """
+        stats = summarize_draws(self.coef_draws, level, interval)
+        out = pd.DataFrame({"term": self.terms, **stats})
+        out.attrs.update({"level": float(level), "interval": interval, "label": self.label,
+                          "reference": dict(self.reference), "kind": "linear"})
+        return out
+
+    def fitted_values(self, rows=None) -> np.ndarray:
+        """Projected draws ``B gamma_s``, shape (n_rows, n_units); NaN for units with zero weight.
+
+        Parameters
+        ----------
+        rows : None, int, slice or array of int
+            Which draws (default: all; mind the memory, n_draws x n_units).
+        """
+        coef = self.coef_draws if rows is None else np.atleast_2d(self.coef_draws[rows])
+        out = np.full((coef.shape[0], self._keep.size), np.nan)
+        out[:, self._keep] = coef @ self._design.T
+        return out
+
+    def __repr__(self) -> str:
+        return f"LinearSummary('{self.label}': {len(self.terms)} terms, {self.coef_draws.shape[0]} draws)"
+
+
+def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
+    """Project every draw onto a linear model in the covariates.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+    columns : list of str, optional
+        Covariates (default: all). Numeric columns enter as they are (missing values:
+        filled with the column mean plus a missing indicator); categorical columns are
+        dummy-coded against their first category.
+    progress : callable(done, total), optional
+        Called after each block of the single pass over the draws.
+
+    Returns
+    -------
+    LinearSummary
+
+    Notes
+    -----
+    Weighted least squares with the fixed weights ``wbar_i`` (posterior-mean weight per
+    unit) of the pseudo-values ``Y_si = w_si T_si / wbar_i``; see the module docstring for
+    what per-draw and complier weights do. With per-draw weights the weighted mean of the
+    fitted values is ``sum_i w_si T_si / sum_i wbar_i``, whose denominator is fixed at its
+    posterior mean (not the per-draw ratio of :attr:`EffectDraws.overall`).
+    """
+    keep = check_draws(draws)
+    cols = check_columns(columns, list(draws.covariates.columns))
+    specs = classify_columns(draws.covariates, cols)
+    B, terms, fill = linear_design(draws.covariates, specs)
+    Bk = B[keep]
+    proj = FrozenProjection(draws, Bk, keep, intercept=0, terms=terms)
+    coef, r2 = proj.run(draws, progress=progress)
+    settings = {
+        "kind": "linear",
+        "label": draws.label,
+        "columns": cols,
+        "terms": list(terms),
+        "n_draws": draws.n_draws,
+        "n_units": draws.n_units,
+        "n_units_used": int(keep.sum()),
+        "weights": "posterior-mean weight per unit (per-draw weights enter the numerator only)"
+        if draws.has_draw_weights else ("per unit" if draws._weights is not None else "none"),
+        "complier_weighted": draws.is_complier_weighted,
+    }
+    return LinearSummary(coef, r2, terms, specs, fill, Bk, keep, draws.label, settings)
