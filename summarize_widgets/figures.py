@@ -1,0 +1,990 @@
+"""Figures: a summary result in, a plotly figure out; plus static SVG/PDF/PNG export.
+
+Every ``plot_*`` function is a thin wrapper: it asks the result for its table
+(DataFrame of raw numbers, see DEVELOPERS.md) and hands it to a ``_*_figure``
+builder that only draws. The builders never touch the draws matrix, so the
+widget can redraw from stored tables without a pass over the draws.
+
+Colours are defined once here (``PALETTE``, ``DIVERGING``, ``INK``, ``ACCENT``,
+:func:`effect_color`) so the JavaScript tree view and the widget can reuse them.
+Every piece of text that comes from the data (covariate names, categories,
+rules) is HTML-escaped before it reaches plotly, which renders a subset of HTML
+in labels and hover text.
+"""
+from __future__ import annotations
+
+import asyncio
+import html
+import os
+import shutil
+import tempfile
+import textwrap
+import threading
+from pathlib import Path
+from collections.abc import Mapping
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+from plotly.subplots import make_subplots
+
+from ._validate import SummaryError
+
+__all__ = [
+    "PALETTE", "DIVERGING", "EFFECT_PALETTE", "INK", "ACCENT", "MUTED", "GRID", "BAND",
+    "effect_color", "effect_colorscale",
+    "plot_subgroups", "plot_fit_by_depth", "plot_trends", "plot_coefficients", "plot_contrasts",
+    "save_figure", "save_figures", "find_browser", "BrowserNotFoundError",
+]
+
+# -- colours ---------------------------------------------------------------------------------
+# Our own palette. Every pair stays at least 12 CIELAB units apart under simulated protanopia,
+# deuteranopia and tritanopia (checked in tests/test_figures.py with Machado et al. 2009 matrices).
+#: Qualitative colours for series, as hex strings: harbour blue, amber, rose, ink, sky, bronze.
+PALETTE = ["#2E5F8A", "#E39A2D", "#CC5C8A", "#2B2D33", "#8FC1DE", "#7A5C2E"]
+#: Default colour of points, lines and text.
+INK = "#2B2D33"
+#: The selected / highlighted item.
+ACCENT = "#CC5C8A"
+#: Missing values and de-emphasized marks.
+MUTED = "#A7A9AC"
+#: Grid lines and the zero line's lighter companions.
+GRID = "#E4E2DD"
+#: Fill of credible bands (drawn with transparency).
+BAND = "#2E5F8A"
+#: Diverging scale for effects, evenly spaced stops from the most negative to the most positive,
+#: centred on a warm paper white at zero. Lightness rises monotonically towards zero on both sides.
+DIVERGING = ["#1D4E79", "#6F9BC4", "#F3F0EA", "#E2A066", "#9A4A12"]
+#: The same scale in the form the JavaScript tree view takes (``TreeView(palette=...)``); its
+#: ``divergingColour`` interpolates the stops exactly as :func:`effect_color` does.
+EFFECT_PALETTE = {"stops": list(DIVERGING), "missing": MUTED}
+
+_FONT = "Helvetica Neue, Helvetica, Arial, Liberation Sans, DejaVu Sans, sans-serif"
+
+
+def _hex_to_rgb(h: str) -> np.ndarray:
+    return np.array([int(h[i:i + 2], 16) for i in (1, 3, 5)], dtype=float)
+
+
+def _rgba(h: str, alpha: float) -> str:
+    r, g, b = _hex_to_rgb(h).astype(int)
+    return f"rgba({r}, {g}, {b}, {alpha})"
+
+
+_STOPS = np.linspace(0.0, 1.0, len(DIVERGING))
+_STOP_RGB = np.array([_hex_to_rgb(h) for h in DIVERGING])
+
+
+def effect_colorscale() -> list[list]:
+    """The diverging scale as a plotly colorscale ``[[position, hex], ...]``.
+
+    Use it with ``cmin=-vmax, cmax=vmax`` (or ``cmid=0``) so zero sits on the centre colour.
+    """
+    return [[float(p), h] for p, h in zip(_STOPS, DIVERGING)]
+
+
+def effect_color(value, vmax):
+    """Colour of an effect on the diverging scale centred at zero.
+
+    Parameters
+    ----------
+    value : float or array-like of float
+        Effect(s). Values beyond ``+-vmax`` take the end colours; NaN takes ``MUTED``.
+    vmax : float
+        The magnitude mapped to the end colours (for example the largest absolute subgroup
+        mean). Must be finite and >= 0; ``vmax = 0`` maps every value to the centre colour.
+
+    Returns
+    -------
+    str or list of str
+        ``"#rrggbb"`` for a scalar ``value``, a list of them for an array.
+
+    Notes
+    -----
+    Linear interpolation in sRGB between the ``DIVERGING`` stops, rounded half up (plotly
+    interpolates its colorscales and the JS tree view its palette the same way, so they agree).
+    """
+    if isinstance(vmax, bool) or not isinstance(vmax, (int, float, np.integer, np.floating)) \
+            or not np.isfinite(vmax) or vmax < 0:
+        raise SummaryError(f"`vmax` must be a finite number >= 0; got {vmax!r}.")
+    scalar = np.ndim(value) == 0
+    try:
+        v = np.atleast_1d(np.asarray(value, dtype=float))
+    except (TypeError, ValueError):
+        raise SummaryError(f"`value` must be a number or an array of numbers; got {value!r}.") from None
+    t = np.full(v.shape, 0.5) if vmax == 0 else 0.5 + 0.5 * np.clip(v / float(vmax), -1.0, 1.0)
+    out = []
+    for ti, vi in zip(t.ravel(), v.ravel()):
+        if not np.isfinite(vi):
+            out.append(MUTED)
+            continue
+        rgb = [np.interp(ti, _STOPS, _STOP_RGB[:, k]) for k in range(3)]
+        out.append("#" + "".join(f"{int(np.floor(c + 0.5)):02x}" for c in rgb))
+    return out[0] if scalar else out
+
+
+# -- text ------------------------------------------------------------------------------------
+def _esc(text) -> str:
+    """Escape < > & so plotly shows data text literally instead of rendering it as markup."""
+    return html.escape(str(text), quote=False)
+
+
+def _wrap(text, width: int = 40) -> str:
+    """Escaped text broken into lines of about ``width`` characters (plotly's <br>).
+
+    Comparison operators are typeset (``<=`` as ≤, ``>=`` as ≥) so rules read as in print.
+    """
+    text = str(text).replace("<=", "\u2264").replace(">=", "\u2265")
+    lines = textwrap.wrap(text, width=width, break_long_words=False, break_on_hyphens=False) or [""]
+    return "<br>".join(_esc(line) for line in lines)
+
+
+def _level_text(attrs: Mapping, level: float | None = None) -> str:
+    level = attrs.get("level", level)
+    kind = attrs.get("interval", "equal-tailed")
+    pct = f"{100 * level:g}%" if level is not None else ""
+    return f"{pct} {'highest-density' if kind == 'highest-density' else 'credible'} interval".strip()
+
+
+def _require(df, columns, name: str) -> pd.DataFrame:
+    if not isinstance(df, pd.DataFrame):
+        raise SummaryError(f"`{name}` must be a pandas DataFrame; got {type(df).__name__}.")
+    missing = [c for c in columns if c not in df.columns]
+    if missing:
+        raise SummaryError(
+            f"`{name}` lacks the column(s) {', '.join(repr(c) for c in missing)}; "
+            f"it has {', '.join(repr(str(c)) for c in df.columns)}."
+        )
+    if len(df) == 0:
+        raise SummaryError(f"`{name}` has no rows; there is nothing to draw.")
+    return df
+
+
+# -- shared drawing pieces -------------------------------------------------------------------
+def _style(fig: go.Figure, *, title=None, height=None, x_title=None, y_title=None, legend=False,
+           title_markup: str | None = None) -> go.Figure:
+    """House style. ``title`` is plain text (escaped); ``title_markup`` is our own markup."""
+    title = title_markup or (_esc(title) if title else None)
+    fig.update_layout(
+        template="none",
+        font=dict(family=_FONT, size=13, color=INK),
+        title=dict(text=title, x=0.01, xanchor="left", font=dict(size=16)) if title else None,
+        paper_bgcolor="white", plot_bgcolor="white",
+        margin=dict(l=20, r=30, t=70 if title else 30, b=60),
+        height=height,
+        showlegend=legend,
+        legend=dict(orientation="h", yref="container", yanchor="top", y=0.99, xanchor="right", x=1.0, traceorder="normal",
+                    bgcolor="rgba(0,0,0,0)"),
+        hoverlabel=dict(bgcolor="white", bordercolor=INK, font=dict(family=_FONT, color=INK)),
+    )
+    axis = dict(showgrid=True, gridcolor=GRID, zeroline=False, showline=True, linecolor=MUTED,
+                ticks="outside", tickcolor=MUTED, automargin=True)
+    fig.update_xaxes(**axis)
+    fig.update_yaxes(**axis)
+    if x_title:
+        fig.update_xaxes(title_text=x_title)
+    if y_title:
+        fig.update_yaxes(title_text=y_title)
+    return fig
+
+
+def _density_outline(values: np.ndarray, centre: float, half_width: float, *, vertical: bool, n_grid: int = 96):
+    """Closed violin outline around ``centre`` from a Gaussian KDE of ``values`` (scipy).
+
+    Returns (along, across) coordinate lists, or None when the values do not vary (a KDE
+    of a constant is undefined). The outline spans the range of the values.
+    """
+    from scipy.stats import gaussian_kde
+
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if v.size < 2 or np.ptp(v) <= 1e-12 * max(1.0, float(np.abs(v).max())):
+        return None
+    grid = np.linspace(v.min(), v.max(), n_grid)
+    dens = gaussian_kde(v)(grid)
+    h = half_width * dens / dens.max()
+    along = np.concatenate([grid, grid[::-1], grid[:1]])
+    across = np.concatenate([centre + h, centre - h[::-1], [centre + h[0]]])
+    return (across, along) if vertical else (along, across)
+
+
+def _violins(groups, *, vertical: bool, half_width: float = 0.38, color=INK):
+    """One scatter trace holding every violin (None-separated polygons, filled)."""
+    xs, ys = [], []
+    for centre, values in groups:
+        outline = _density_outline(values, centre, half_width, vertical=vertical)
+        if outline is None:
+            continue
+        xs += list(outline[0]) + [None]
+        ys += list(outline[1]) + [None]
+    if not xs:
+        return None
+    return go.Scatter(x=xs, y=ys, mode="lines", fill="toself", fillcolor=_rgba(color, 0.13),
+                      line=dict(color=_rgba(color, 0.45), width=1), hoverinfo="skip", showlegend=False,
+                      name="posterior density")
+
+
+def _interval_rows(fig, df, pos, *, value, color, fill, size, symbol="circle", custom, hover, name, row_col=None):
+    """Horizontal points with interval whiskers (lower/upper columns) at y positions ``pos``."""
+    if len(df) == 0:
+        return
+    x = df[value].to_numpy(float)
+    trace = go.Scatter(
+        x=x, y=pos, mode="markers", name=name, showlegend=False,
+        marker=dict(size=size, color=fill, symbol=symbol, line=dict(color=color, width=1.5)),
+        error_x=dict(type="data", symmetric=False, array=df["upper"].to_numpy(float) - x,
+                     arrayminus=x - df["lower"].to_numpy(float), color=color, thickness=2, width=0),
+        customdata=custom, hovertemplate=hover,
+    )
+    fig.add_trace(trace, **(row_col or {}))
+
+
+def _zero_line(fig, axis: str = "x"):
+    if axis == "x":
+        fig.add_vline(x=0, line=dict(color=INK, width=1, dash="dot"))
+    else:
+        fig.add_hline(y=0, line=dict(color=INK, width=1, dash="dot"))
+
+
+def _row_heights(labels) -> list[int]:
+    return [max(30, 16 * (lab.count("<br>") + 1) + 14) for lab in labels]
+
+
+# -- subgroup effects ------------------------------------------------------------------------
+_SUBGROUP_COLS = ["subgroup", "rule", "n_units", "share", "mean", "lower", "upper", "prob_positive"]
+
+
+def _subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None = None, pinned=(),
+                      effect_label: str | None = None, title: str | None = None) -> go.Figure:
+    """Horizontal point + interval per subgroup, ordered by posterior mean (largest on top).
+
+    Parameters
+    ----------
+    df : DataFrame
+        The subgroup table (columns ``subgroup, rule, n_units, share, mean, lower, upper,
+        prob_positive``; ``attrs`` may hold ``level``, ``interval``, ``label``).
+    highlight : subgroup id, optional
+        Drawn in ``ACCENT`` with a shaded row.
+    draws : mapping subgroup id -> ndarray (n_draws,), optional
+        Posterior draws per subgroup, drawn as violins behind the intervals.
+    pinned : sequence of subgroup ids
+        Rows kept on top in the given order (for example "All units"), drawn as diamonds
+        and separated by a dotted line.
+    """
+    df = _require(df, _SUBGROUP_COLS, "table")
+    ids = df["subgroup"].tolist()
+    if highlight is not None and highlight not in ids:
+        raise SummaryError(f"`highlight` {highlight!r} is not one of the subgroups: {ids}.")
+    for p in pinned:
+        if p not in ids:
+            raise SummaryError(f"`pinned` {p!r} is not one of the subgroups: {ids}.")
+    rest = df[~df["subgroup"].isin(list(pinned))].sort_values("mean", kind="stable")
+    top = df.set_index("subgroup").loc[list(pinned)[::-1]].reset_index() if pinned else df.iloc[:0]
+    ordered = pd.concat([rest, top], ignore_index=True)  # bottom to top
+    n = len(ordered)
+
+    labels = []
+    for r in ordered.itertuples(index=False):
+        lab = _wrap(r.rule, 42)
+        if r.subgroup == highlight:
+            lab = f"<span style='color:{ACCENT}'><b>{lab}</b></span>"
+        labels.append(f"{lab}<br><span style='font-size:11px;color:#6b6e73'>n = {int(r.n_units):,} "
+                      f"({100 * float(r.share):.1f}%)</span>")
+    heights = _row_heights(labels)
+    pos = np.arange(n, dtype=float)
+
+    fig = go.Figure()
+    if highlight is not None:
+        k = ordered.index[ordered["subgroup"] == highlight][0]
+        fig.add_hrect(y0=k - 0.5, y1=k + 0.5, fillcolor=_rgba(ACCENT, 0.10), line_width=0, layer="below")
+    if len(top):
+        fig.add_hline(y=len(rest) - 0.5, line=dict(color=MUTED, width=1, dash="dot"))
+    if draws is not None:
+        missing = [s for s in ids if s not in draws]
+        if missing:
+            raise SummaryError(f"`draws` has no posterior draws for subgroup(s) {missing}.")
+        v = _violins([(pos[i], draws[s]) for i, s in enumerate(ordered["subgroup"])], vertical=False)
+        if v is not None:
+            fig.add_trace(v)
+    _zero_line(fig, "x")
+
+    level = _level_text(df.attrs)
+    vmax = float(np.nanmax(np.abs(ordered["mean"].to_numpy(float)))) if n else 0.0
+    hover = ("<b>%{customdata[0]}</b><br>posterior mean %{x:.4g}<br>" + level +
+             " [%{customdata[3]:.4g}, %{customdata[4]:.4g}]<br>P(effect > 0) = %{customdata[5]:.3f}"
+             "<br>%{customdata[1]:,} units (%{customdata[2]:.1%})<extra></extra>")
+    custom = np.column_stack([[_wrap(r, 60) for r in ordered["rule"]], ordered["n_units"].astype(int),
+                              ordered["share"].astype(float), ordered["lower"].astype(float),
+                              ordered["upper"].astype(float), ordered["prob_positive"].astype(float)]).astype(object)
+    groups = {
+        "subgroups": (~ordered["subgroup"].isin(list(pinned) + [highlight])).to_numpy(),
+        "pinned": (ordered["subgroup"].isin(list(pinned)) & (ordered["subgroup"] != highlight)).to_numpy(),
+        "highlight": (ordered["subgroup"] == highlight).to_numpy(),
+    }
+    for name, mask in groups.items():
+        sub = ordered[mask]
+        colour = ACCENT if name == "highlight" else INK
+        fill = [effect_color(m, vmax) for m in sub["mean"]] if name != "pinned" else "white"
+        _interval_rows(fig, sub, pos[mask], value="mean", color=colour, fill=fill,
+                       size=13 if name == "highlight" else 10,
+                       symbol="diamond" if name == "pinned" else "circle",
+                       custom=custom[mask], hover=hover, name=name)
+
+    _style(fig, title=title, height=sum(heights) + (130 if title else 100),
+           x_title=f"{_esc(effect_label or df.attrs.get('label') or 'Effect')} (mean and {level})")
+    fig.update_yaxes(tickmode="array", tickvals=pos, ticktext=labels, range=[-0.6, n - 0.4],
+                     showgrid=False, ticks="", showline=False)
+    return fig
+
+
+def plot_subgroups(result, *, level: float = 0.95, interval: str = "equal-tailed", highlight=None,
+                   show_draws: bool = False, title: str | None = None) -> go.Figure:
+    """Subgroup effects with credible intervals, one row per subgroup, ordered by mean.
+
+    Parameters
+    ----------
+    result : TreeSummary or GroupSummary
+        Anything with ``.table(level=, interval=)`` returning the subgroup table.
+    level : float, default 0.95
+        Credible level of the intervals.
+    interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
+    highlight : subgroup id, optional
+        The subgroup drawn in the accent colour (a node id for a tree, a label for groups).
+    show_draws : bool, default False
+        Draw the posterior density of every subgroup behind its interval (a tree's ``.leaf_draws``,
+        a group summary's ``.group_draws``).
+    title : str, optional
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+    """
+    from .groups import ALL_UNITS, GroupSummary
+    from .tree import TreeSummary
+
+    _check_type(result, (TreeSummary, GroupSummary), "result")
+    df = result.table(level=level, interval=interval)
+    draws = None
+    if show_draws:
+        if isinstance(result, TreeSummary):
+            mat, ids = np.asarray(result.leaf_draws), _as_ids(result.leaf_ids)
+        else:
+            mat, ids = np.asarray(result.group_draws), list(result.labels)
+        draws = {sid: mat[:, j] for j, sid in enumerate(ids)}
+    pinned = [ALL_UNITS] if isinstance(result, GroupSummary) and ALL_UNITS in df["subgroup"].tolist() else []
+    if isinstance(highlight, np.generic):
+        highlight = highlight.item()
+    return _subgroups_figure(df, highlight=highlight, draws=draws, pinned=pinned,
+                             effect_label=getattr(result, "label", None), title=title)
+
+
+def _check_type(obj, types, name: str) -> None:
+    if not isinstance(obj, types):
+        types = types if isinstance(types, tuple) else (types,)
+        want = " or ".join(t.__name__ for t in types)
+        raise SummaryError(f"`{name}` must be a {want}; got {type(obj).__name__}.")
+
+
+def _as_ids(ids) -> list:
+    return [i.item() if isinstance(i, np.generic) else i for i in ids]
+
+
+# -- summary R^2 by depth --------------------------------------------------------------------
+_FIT_COLS = ["depth", "n_subgroups", "mean", "lower", "upper"]
+
+
+def _fit_by_depth_figure(summary: pd.DataFrame, draws_by_depth: Mapping | None = None, *,
+                         current_depth: int | None = None, title: str | None = None) -> go.Figure:
+    """Posterior of summary R^2 at each depth: violin of the draws, mean and credible interval.
+
+    Parameters
+    ----------
+    summary : DataFrame
+        ``fit_r2_by_depth()`` output: ``depth, n_subgroups, mean, lower, upper``.
+    draws_by_depth : mapping depth -> ndarray (n_draws,), optional
+        Per-draw summary R^2 (NaN draws are ignored), drawn as violins.
+    current_depth : int, optional
+        The depth in use, drawn in ``ACCENT``.
+    """
+    summary = _require(summary, _FIT_COLS, "summary").sort_values("depth")
+    depths = summary["depth"].astype(int).tolist()
+    if current_depth is not None and current_depth not in depths:
+        raise SummaryError(f"`current_depth` {current_depth!r} is not one of the depths {depths}.")
+    fig = go.Figure()
+    if draws_by_depth is not None:
+        missing = [d for d in depths if d not in draws_by_depth]
+        if missing:
+            raise SummaryError(f"`draws_by_depth` has no draws for depth(s) {missing}.")
+        v = _violins([(float(d), draws_by_depth[d]) for d in depths], vertical=True, half_width=0.36)
+        if v is not None:
+            fig.add_trace(v)
+    level = _level_text(summary.attrs)
+    x = summary["depth"].to_numpy(float)
+    m = summary["mean"].to_numpy(float)
+    is_cur = summary["depth"].to_numpy() == current_depth
+    colours = [ACCENT if c else INK for c in is_cur]
+    custom = summary[["n_subgroups", "lower", "upper"]].to_numpy(float)
+    fig.add_trace(go.Scatter(
+        x=x, y=m, mode="markers", showlegend=False, name="summary R²",
+        marker=dict(size=[13 if c else 10 for c in is_cur], color="white", line=dict(color=colours, width=2)),
+        error_y=dict(type="data", symmetric=False, array=summary["upper"].to_numpy(float) - m,
+                     arrayminus=m - summary["lower"].to_numpy(float), color=INK, thickness=2.5, width=0),
+        customdata=custom,
+        hovertemplate=("depth %{x}, %{customdata[0]:.0f} subgroups<br>summary R² mean %{y:.3f}<br>"
+                       + level + " [%{customdata[1]:.3f}, %{customdata[2]:.3f}]<extra></extra>"),
+    ))
+    ticks = [f"<b>{d}</b>" if d == current_depth else str(d) for d in depths]
+    ticks = [f"{t}<br><span style='font-size:11px;color:#6b6e73'>{int(k)} subgroups</span>"
+             for t, k in zip(ticks, summary["n_subgroups"])]
+    lo = min(0.0, float(np.nanmin(summary["lower"])))
+    _style(fig, title=title, height=420, x_title="Tree depth", y_title=f"Summary R² (mean and {level})")
+    fig.update_xaxes(tickmode="array", tickvals=x, ticktext=ticks, range=[x.min() - 0.6, x.max() + 0.6],
+                     showgrid=False)
+    fig.update_yaxes(range=[lo - 0.02, 1.02])
+    return fig
+
+
+def plot_fit_by_depth(tree, *, level: float = 0.95, interval: str = "equal-tailed", show_draws: bool = True,
+                      current_depth: int | None = None, title: str | None = None) -> go.Figure:
+    """Posterior of summary R^2 at every depth of a summary tree.
+
+    Parameters
+    ----------
+    tree : TreeSummary
+    level : float, default 0.95
+    interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
+    show_draws : bool, default True
+        Draw the posterior density (violin) of each depth's summary R^2.
+    current_depth : int, optional
+        Depth to highlight; default ``tree.current_depth``.
+    title : str, optional
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+    """
+    from .tree import TreeSummary
+
+    _check_type(tree, TreeSummary, "tree")
+    summary = tree.fit_r2_by_depth(level=level, interval=interval)
+    draws = tree.fit_r2_draws_by_depth() if show_draws else None
+    if current_depth is None:
+        current_depth = getattr(tree, "current_depth", None)
+    return _fit_by_depth_figure(summary, draws, current_depth=current_depth, title=title)
+
+
+# -- additive curves -------------------------------------------------------------------------
+_CURVE_COLS = ["covariate", "kind", "x", "mean", "lower", "upper", "lower_joint", "upper_joint"]
+# Pointwise band over the simultaneous band: the two alphas stack to a visibly darker core.
+_POINTWISE_FILL = _rgba(BAND, 0.30)
+_JOINT_FILL = _rgba(BAND, 0.13)
+_HOVER_BANDS = ("<br>pointwise [%{customdata[0]:.4g}, %{customdata[1]:.4g}]"
+                "<br>simultaneous [%{customdata[2]:.4g}, %{customdata[3]:.4g}]<extra></extra>")
+
+
+def _add_curve(fig, d: pd.DataFrame, *, row_col):
+    """Numeric covariate: simultaneous band (lighter), pointwise band, mean line."""
+    d = d.assign(x=d["x"].astype(float)).sort_values("x")
+    x = d["x"].to_numpy()
+    for lo, hi, fill in (("lower_joint", "upper_joint", _JOINT_FILL), ("lower", "upper", _POINTWISE_FILL)):
+        fig.add_trace(go.Scatter(x=x, y=d[lo], mode="lines", line=dict(width=0), hoverinfo="skip",
+                                 showlegend=False), **row_col)
+        fig.add_trace(go.Scatter(x=x, y=d[hi], mode="lines", line=dict(width=0), fill="tonexty",
+                                 fillcolor=fill, hoverinfo="skip", showlegend=False), **row_col)
+    fig.add_trace(go.Scatter(
+        x=x, y=d["mean"], mode="lines", line=dict(color=BAND, width=2.5), name="posterior mean",
+        showlegend=False, customdata=d[["lower", "upper", "lower_joint", "upper_joint"]].to_numpy(float),
+        hovertemplate="x = %{x:.4g}<br>mean %{y:.4g}" + _HOVER_BANDS,
+    ), **row_col)
+
+
+def _add_categories(fig, d: pd.DataFrame, *, row_col):
+    """Categorical covariate: a point per category, wide light bar (simultaneous), narrow darker bar (pointwise)."""
+    cats = [_esc(c) for c in d["x"]]
+    m = d["mean"].to_numpy(float)
+    for lo, hi, colour, thick in (("lower_joint", "upper_joint", _rgba(BAND, 0.22), 10),
+                                  ("lower", "upper", _rgba(BAND, 0.55), 4)):
+        fig.add_trace(go.Scatter(
+            x=cats, y=m, mode="markers", showlegend=False, hoverinfo="skip", marker=dict(size=1, opacity=0),
+            error_y=dict(type="data", symmetric=False, array=d[hi].to_numpy(float) - m,
+                         arrayminus=m - d[lo].to_numpy(float), color=colour, thickness=thick, width=0),
+        ), **row_col)
+    fig.add_trace(go.Scatter(
+        x=cats, y=m, mode="markers", showlegend=False, name="posterior mean",
+        marker=dict(size=10, color="white", line=dict(color=BAND, width=2.5)),
+        customdata=d[["lower", "upper", "lower_joint", "upper_joint"]].to_numpy(float),
+        hovertemplate="%{x}<br>mean %{y:.4g}" + _HOVER_BANDS,
+    ), **row_col)
+    fig.update_xaxes(type="category", **row_col)
+
+
+def _band_legend(fig, level: str):
+    """Legend-only entries shared by curves and category bars (one legend for every panel)."""
+    for name, colour, width in (("posterior mean", BAND, 2.5), (f"pointwise {level}", _rgba(BAND, 0.42), 10),
+                                (f"simultaneous {level}", _rgba(BAND, 0.16), 10)):
+        fig.add_trace(go.Scatter(x=[None], y=[None], mode="lines", line=dict(color=colour, width=width),
+                                 name=name, hoverinfo="skip"))
+
+
+def _trends_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, effect_label: str | None = None,
+                   title: str | None = None) -> go.Figure:
+    """Additive curves: one panel per covariate (shared effect axis), or one covariate alone.
+
+    Parameters
+    ----------
+    curves : DataFrame
+        ``curves()`` output: ``covariate, kind, x, mean, lower, upper, lower_joint, upper_joint``.
+    covariate : str or list of str, optional
+        Which covariate(s) to draw (default: all, in table order).
+    n_cols : int, default 3
+        Panels per row for small multiples.
+    """
+    curves = _require(curves, _CURVE_COLS, "curves")
+    available = list(dict.fromkeys(curves["covariate"].tolist()))
+    chosen = available if covariate is None else ([covariate] if isinstance(covariate, str) else list(covariate))
+    unknown = [c for c in chosen if c not in available]
+    if unknown or not chosen:
+        raise SummaryError(f"`covariate` names {', '.join(repr(c) for c in unknown) or 'nothing'}; "
+                           f"available: {', '.join(repr(c) for c in available)}.")
+    if isinstance(n_cols, bool) or not isinstance(n_cols, (int, np.integer)) or n_cols < 1:
+        raise SummaryError(f"`n_cols` must be an integer >= 1; got {n_cols!r}.")
+    k = len(chosen)
+    cols = min(int(n_cols), k)
+    rows = -(-k // cols)
+    level = f"{100 * curves.attrs['level']:g}%" if "level" in curves.attrs else ""
+    fig = make_subplots(rows=rows, cols=cols, shared_yaxes="all", horizontal_spacing=0.06 if cols > 1 else 0.0,
+                        vertical_spacing=min(0.5 / rows, 0.16) if rows > 1 else 0.0,
+                        subplot_titles=[_esc(c) for c in chosen] if k > 1 else None)
+    for j, name in enumerate(chosen):
+        d = curves[curves["covariate"] == name]
+        row_col = dict(row=j // cols + 1, col=j % cols + 1)
+        kinds = set(d["kind"])
+        if kinds - {"numeric", "categorical"} or len(kinds) != 1:
+            raise SummaryError(f"`curves` column 'kind' for covariate {name!r} must be one of "
+                               f"'numeric' or 'categorical'; got {sorted(map(str, kinds))}.")
+        add = _add_curve if kinds == {"numeric"} else _add_categories
+        add(fig, d, row_col=row_col)
+        fig.add_hline(y=0, line=dict(color=INK, width=1, dash="dot"), **row_col)
+        if k == 1:
+            fig.update_xaxes(title_text=_esc(name), **row_col)
+    _band_legend(fig, level)
+    label = _esc(effect_label or curves.attrs.get("label") or "Effect")
+    _style(fig, title=title, height=(300 if k > 1 else 380) * rows + 90, legend=True)
+    fig.update_annotations(font=dict(size=13, color=INK))
+    for r in range(1, rows + 1):
+        fig.update_yaxes(title_text=label if r == (rows + 1) // 2 else None, row=r, col=1)
+    fig.update_layout(margin=dict(t=90 if title else 60))
+    return fig
+
+
+def plot_trends(additive, *, covariate=None, level: float = 0.95, interval: str = "equal-tailed",
+                n_cols: int = 3, title: str | None = None) -> go.Figure:
+    """Additive-summary curves with pointwise and simultaneous credible bands.
+
+    Parameters
+    ----------
+    additive : AdditiveSummary
+    covariate : str or list of str, optional
+        One covariate (one panel) or several; default: every covariate as small multiples.
+    level : float, default 0.95
+    interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
+        Kind of the pointwise intervals.
+    n_cols : int, default 3
+        Panels per row.
+    title : str, optional
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+        Numeric covariates: mean line, pointwise band, lighter simultaneous band.
+        Categorical covariates: a point per category with both intervals.
+    """
+    from .additive import AdditiveSummary
+
+    _check_type(additive, AdditiveSummary, "additive")
+    curves = additive.curves(level=level, interval=interval)
+    if "level" not in curves.attrs:
+        curves.attrs["level"] = level
+    return _trends_figure(curves, covariate=covariate, n_cols=n_cols,
+                          effect_label=getattr(additive, "label", None), title=title)
+
+
+# -- linear coefficients ---------------------------------------------------------------------
+_COEF_COLS = ["term", "mean", "lower", "upper", "prob_positive"]
+_INTERCEPT_NAMES = {"intercept", "(intercept)", "const"}
+
+
+def _coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, title: str | None = None) -> go.Figure:
+    """Linear-summary coefficients: point + interval per term, in table order (first on top)."""
+    table = _require(table, _COEF_COLS, "table")
+    if not intercept:
+        table = table[~table["term"].astype(str).str.lower().isin(_INTERCEPT_NAMES)]
+        if len(table) == 0:
+            raise SummaryError("`table` holds only the intercept; pass `intercept=True` to draw it.")
+    d = table.iloc[::-1].reset_index(drop=True)  # first term on top
+    labels = [_wrap(t, 36) for t in d["term"]]
+    pos = np.arange(len(d), dtype=float)
+    level = _level_text(table.attrs)
+    fig = go.Figure()
+    _zero_line(fig, "x")
+    vmax = float(np.nanmax(np.abs(d["mean"].to_numpy(float))))
+    custom = np.column_stack([labels, d["lower"].astype(float), d["upper"].astype(float),
+                              d["prob_positive"].astype(float)]).astype(object)
+    _interval_rows(fig, d, pos, value="mean", color=INK, fill=[effect_color(m, vmax) for m in d["mean"]],
+                   size=10, custom=custom, name="coefficients",
+                   hover=("<b>%{customdata[0]}</b><br>posterior mean %{x:.4g}<br>" + level +
+                          " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(coefficient > 0) = "
+                          "%{customdata[3]:.3f}<extra></extra>"))
+    x_title = f"Coefficient (mean and {level})"
+    reference = table.attrs.get("reference") or {}
+    if reference:  # dummies are read against these categories
+        ref = "; ".join(f"{k} = {v}" for k, v in reference.items())
+        x_title += f"<br><span style='font-size:11px;color:#6b6e73'>compared with {_wrap(ref, 90)}</span>"
+    _style(fig, title=title, height=sum(_row_heights(labels)) + (130 if title else 100) + 16 * bool(reference),
+           x_title=x_title)
+    fig.update_yaxes(tickmode="array", tickvals=pos, ticktext=labels, range=[-0.6, len(d) - 0.4],
+                     showgrid=False, ticks="", showline=False)
+    return fig
+
+
+def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tailed", intercept: bool = False,
+                      title: str | None = None) -> go.Figure:
+    """Linear-summary coefficients with credible intervals.
+
+    Parameters
+    ----------
+    linear : LinearSummary
+    level : float, default 0.95
+    interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
+    intercept : bool, default False
+        Also draw the intercept (usually on another scale than the slopes).
+    title : str, optional
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+    """
+    from .linear import LinearSummary
+
+    _check_type(linear, LinearSummary, "linear")
+    return _coefficients_figure(linear.table(level=level, interval=interval), intercept=intercept, title=title)
+
+
+# -- contrasts -------------------------------------------------------------------------------
+_CONTRAST_COLS = ["subgroup_a", "subgroup_b", "rule_a", "rule_b", "difference", "lower", "upper", "prob_a_greater"]
+
+
+def _oriented_contrasts(df: pd.DataFrame, subgroup) -> pd.DataFrame:
+    """Rows comparing ``subgroup`` with each other one, flipped so ``subgroup`` is always A."""
+    as_a = df[df["subgroup_a"] == subgroup]
+    as_b = df[df["subgroup_b"] == subgroup]
+    flipped = pd.DataFrame({
+        "subgroup_a": as_b["subgroup_b"], "subgroup_b": as_b["subgroup_a"],
+        "rule_a": as_b["rule_b"], "rule_b": as_b["rule_a"],
+        "difference": -as_b["difference"], "lower": -as_b["upper"], "upper": -as_b["lower"],
+        "prob_a_greater": 1.0 - as_b["prob_a_greater"],
+    })
+    return pd.concat([as_a[_CONTRAST_COLS], flipped], ignore_index=True)
+
+
+def _contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) -> go.Figure:
+    """Difference between ``subgroup`` and each other subgroup, with interval and P(A > B).
+
+    Parameters
+    ----------
+    df : DataFrame
+        ``contrasts()`` output (all pairs, or only pairs involving ``subgroup``).
+    subgroup : subgroup id
+        The subgroup compared with the others (A in "A minus B").
+    """
+    df = _require(df, _CONTRAST_COLS, "contrasts")
+    ids = list(dict.fromkeys(df["subgroup_a"].tolist() + df["subgroup_b"].tolist()))
+    if subgroup not in ids:
+        raise SummaryError(f"`subgroup` {subgroup!r} is not one of the subgroups in the contrasts: {ids}.")
+    d = _oriented_contrasts(df, subgroup).sort_values("difference", kind="stable").reset_index(drop=True)
+    # "P(A > B) = 1 - P(B > A)" ignores ties, which have probability zero for continuous draws.
+    rule_a = d["rule_a"].iloc[0]
+    labels = [_wrap(r, 42) for r in d["rule_b"]]
+    pos = np.arange(len(d), dtype=float)
+    level = _level_text(df.attrs)
+    fig = go.Figure()
+    _zero_line(fig, "x")
+    vmax = float(np.nanmax(np.abs(d["difference"].to_numpy(float))))
+    custom = np.column_stack([[_wrap(r, 60) for r in d["rule_b"]], d["lower"].astype(float),
+                              d["upper"].astype(float), d["prob_a_greater"].astype(float)]).astype(object)
+    _interval_rows(fig, d, pos, value="difference", color=INK,
+                   fill=[effect_color(m, vmax) for m in d["difference"]], size=10, custom=custom, name="contrasts",
+                   hover=("minus <b>%{customdata[0]}</b><br>difference %{x:.4g}<br>" + level +
+                          " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(A > B) = %{customdata[3]:.3f}"
+                          "<extra></extra>"))
+    head = f"A: <span style='color:{ACCENT}'><b>{_wrap(rule_a, 70)}</b></span>"
+    _style(fig, title=title, title_markup=None if title else f"{head}<br>minus each other subgroup B",
+           height=sum(_row_heights(labels)) + 150 + 16 * head.count("<br>"),
+           x_title=f"Difference in effect, A minus B (mean and {level})")
+    fig.update_layout(margin=dict(t=90 + 16 * head.count("<br>")))
+    fig.update_yaxes(tickmode="array", tickvals=pos, ticktext=labels, range=[-0.6, len(d) - 0.4],
+                     showgrid=False, ticks="", showline=False)
+    return fig
+
+
+def plot_contrasts(result, subgroup, *, level: float = 0.95, interval: str = "equal-tailed",
+                   title: str | None = None) -> go.Figure:
+    """One subgroup against each other subgroup: posterior difference, interval, P(A > B) on hover.
+
+    Parameters
+    ----------
+    result : TreeSummary or GroupSummary
+        Anything with ``.contrasts(level=, interval=)``.
+    subgroup : subgroup id
+        Subgroup A (a node id for a tree, a label for groups).
+    level : float, default 0.95
+    interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
+    title : str, optional (default names subgroup A's rule)
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+    """
+    from .groups import GroupSummary
+    from .tree import TreeSummary
+
+    _check_type(result, (TreeSummary, GroupSummary), "result")
+    if isinstance(subgroup, np.generic):
+        subgroup = subgroup.item()
+    return _contrasts_figure(result.contrasts(level=level, interval=interval), subgroup, title=title)
+
+
+# -- static export ---------------------------------------------------------------------------
+# kaleido 1.x renders through a Chromium-family browser driven by choreographer. We locate the
+# browser ourselves (so the error says how to install one) and never download one: offline
+# machines and CI use Debian's `chromium`. MathJax is switched off because kaleido would fetch
+# it from a CDN; plotly.js comes from the plotly package itself.
+_FORMATS = ("svg", "pdf", "png")
+_BROWSER_NAMES = ("chromium", "chromium-browser", "google-chrome-stable", "google-chrome", "chrome",
+                  "microsoft-edge", "brave-browser")
+_TYPICAL_PATHS = ("/usr/bin/chromium", "/usr/bin/chromium-browser", "/usr/bin/google-chrome-stable",
+                  "/usr/bin/google-chrome", "/snap/bin/chromium",
+                  "/Applications/Google Chrome.app/Contents/MacOS/Google Chrome",
+                  "/Applications/Chromium.app/Contents/MacOS/Chromium")
+_INSTALL_HINT = ("Static figure export needs a Chromium-family browser; install chromium "
+                 "(for example `apt-get install chromium` on Debian/Ubuntu) or set BROWSER_PATH "
+                 "to the browser's executable.")
+
+
+class BrowserNotFoundError(RuntimeError):
+    """No Chromium-family browser for static export (kaleido needs one)."""
+
+
+def _is_exe(path) -> bool:
+    return bool(path) and os.path.isfile(path) and os.access(path, os.X_OK)
+
+
+def find_browser() -> str:
+    """Path of the browser kaleido will drive for static export.
+
+    Order: the ``BROWSER_PATH`` environment variable (kaleido's own setting), then
+    ``chromium``/Chrome/Edge/Brave on ``PATH``, then their usual install locations.
+    Nothing is downloaded.
+
+    Raises
+    ------
+    BrowserNotFoundError
+        When no browser is found (the message says how to install one).
+    """
+    env = os.environ.get("BROWSER_PATH")
+    if env:
+        if _is_exe(env):
+            return env
+        raise BrowserNotFoundError(f"BROWSER_PATH is set to {env!r}, which is not an executable file. "
+                                   + _INSTALL_HINT)
+    for name in _BROWSER_NAMES:
+        found = shutil.which(name)
+        if _is_exe(found):
+            return found
+    for path in _TYPICAL_PATHS:
+        if _is_exe(path):
+            return path
+    raise BrowserNotFoundError("No Chromium-family browser found. " + _INSTALL_HINT)
+
+
+def _resolve_target(path, format, overwrite: bool) -> tuple[Path, str]:
+    """Check the output path and format before any rendering (fail fast, name the file)."""
+    if not isinstance(path, (str, os.PathLike)):
+        raise SummaryError(f"`path` must be a file path (str or os.PathLike); got {type(path).__name__}.")
+    target = Path(path)
+    suffix = target.suffix.lower().lstrip(".")
+    if format is None:
+        if suffix not in _FORMATS:
+            raise SummaryError(f"`format` was not given and the file name {str(target)!r} does not end in "
+                               f"one of .svg, .pdf, .png; pass `format=` or change the suffix.")
+        format = suffix
+    format = str(format).lower()
+    if format not in _FORMATS:
+        raise SummaryError(f"`format` must be one of 'svg', 'pdf', 'png'; got {format!r}.")
+    if suffix in _FORMATS and suffix != format:
+        raise SummaryError(f"`format` is {format!r} but the file name {str(target)!r} ends in .{suffix}; "
+                           "make them agree.")
+    if not target.parent.is_dir():
+        raise SummaryError(f"The folder {str(target.parent)!r} for {str(target)!r} does not exist; create it first.")
+    if target.exists() and not overwrite:
+        raise FileExistsError(f"{str(target)!r} already exists; pass overwrite=True to replace it.")
+    return target, format
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _write_atomic(target: Path, data: bytes, overwrite: bool) -> None:
+    """Temp file in the same folder, then a rename: readers never see a half-written figure."""
+    fd, tmp = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
+    try:
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; a figure gets the usual permissions
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        if overwrite:
+            os.replace(tmp, target)
+        else:
+            # link() refuses an existing name, so a file created meanwhile is never clobbered.
+            try:
+                os.link(tmp, target)
+            except FileExistsError:
+                raise FileExistsError(f"{str(target)!r} already exists; pass overwrite=True to replace it.") from None
+            except OSError:  # filesystems without hard links
+                if target.exists():
+                    raise FileExistsError(f"{str(target)!r} already exists; pass overwrite=True to replace it.") from None
+                os.replace(tmp, target)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+
+
+def _check_size(value, name: str, *, allow_float: bool = False):
+    ok = (float, int, np.floating, np.integer) if allow_float else (int, np.integer)
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, ok) or not np.isfinite(value) or value <= 0:
+        what = "a positive number" if allow_float else "a positive integer (pixels)"
+        raise SummaryError(f"`{name}` must be {what}; got {value!r}.")
+    return float(value) if allow_float else int(value)
+
+
+def _render(jobs: list[tuple[dict, dict]]) -> list[bytes]:
+    """Render (figure dict, options) pairs in one browser session; returns the bytes of each."""
+    try:
+        import kaleido
+    except ImportError as err:  # pragma: no cover - kaleido is a dependency
+        raise BrowserNotFoundError("Static figure export needs the `kaleido` package (pip install kaleido).") from err
+    browser = find_browser()
+    import plotly
+
+    plotly_js = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
+    kopts = dict(n=1, mathjax=False, path=browser)
+    if plotly_js.is_file():
+        kopts["plotlyjs"] = str(plotly_js)
+
+    async def run():
+        async with kaleido.Kaleido(**kopts) as k:
+            return [await k.calc_fig(fig, opts=opts) for fig, opts in jobs]
+
+    # A thread with its own event loop: works from plain scripts and from inside Jupyter's loop.
+    box: dict = {}
+
+    def target():
+        try:
+            box["out"] = asyncio.run(run())
+        except BaseException as err:  # noqa: BLE001 - re-raised below in the caller's thread
+            box["err"] = err
+
+    t = threading.Thread(target=target, name="summarize-widgets-export")
+    t.start()
+    t.join()
+    if "err" in box:
+        raise RuntimeError(f"Static export through kaleido with the browser {browser!r} failed: "
+                           f"{type(box['err']).__name__}: {box['err']}") from box["err"]
+    return box["out"]
+
+
+def save_figures(items, *, overwrite: bool = False, width: int | None = None, height: int | None = None,
+                 scale: float = 1.0) -> list[Path]:
+    """Save several figures with one browser start (much faster than one :func:`save_figure` each).
+
+    Parameters
+    ----------
+    items : mapping path -> Figure, or iterable of (Figure, path)
+        Formats come from the suffixes (.svg, .pdf, .png).
+    overwrite, width, height, scale
+        As in :func:`save_figure`.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files written, in order. Every target is checked before anything is rendered,
+        so an existing file stops the whole batch without writing any file.
+    """
+    pairs = list(items.items()) if isinstance(items, Mapping) else [(p, f) for f, p in items]
+    width, height = _check_size(width, "width"), _check_size(height, "height")
+    scale = _check_size(scale, "scale", allow_float=True)
+    targets, jobs, seen = [], [], set()
+    for path, fig in pairs:
+        if not isinstance(fig, go.Figure):
+            raise SummaryError(f"`fig` for {str(path)!r} must be a plotly.graph_objects.Figure; "
+                               f"got {type(fig).__name__}.")
+        target, fmt = _resolve_target(path, None, overwrite)
+        if target.resolve() in seen:
+            raise SummaryError(f"{str(target)!r} is listed twice in `items`.")
+        seen.add(target.resolve())
+        targets.append(target)
+        jobs.append(_job(fig, fmt, width, height, scale))
+    for target, data in zip(targets, _render(jobs)):
+        _write_atomic(target, data, overwrite)
+    return targets
+
+
+def _job(fig: go.Figure, fmt: str, width, height, scale) -> tuple[dict, dict]:
+    layout = fig.layout
+    opts = dict(format=fmt, width=width or layout.width or 900, height=height or layout.height or 500,
+                scale=scale)
+    return fig.to_dict(), opts
+
+
+def save_figure(fig: go.Figure, path, *, format: str | None = None, overwrite: bool = False,
+                width: int | None = None, height: int | None = None, scale: float = 1.0) -> Path:
+    """Save a figure as SVG, PDF or PNG (through kaleido and a local Chromium; nothing is downloaded).
+
+    Parameters
+    ----------
+    fig : plotly.graph_objects.Figure
+    path : str or os.PathLike
+        Output file; its folder must exist.
+    format : {"svg", "pdf", "png"}, optional
+        Default: from the file suffix.
+    overwrite : bool, default False
+        Replace an existing file; otherwise an existing file raises ``FileExistsError`` naming it.
+    width, height : int, optional
+        Size in layout pixels; default the figure's own size, else 900 x 500.
+    scale : float, default 1.0
+        Pixel multiplier for PNG (a PNG is ``width*scale`` x ``height*scale`` pixels).
+
+    Returns
+    -------
+    pathlib.Path
+        The file written (atomically: a temporary file in the same folder, then a rename).
+
+    Raises
+    ------
+    BrowserNotFoundError
+        No Chromium-family browser (install chromium, e.g. ``apt-get install chromium``).
+    """
+    if not isinstance(fig, go.Figure):
+        raise SummaryError(f"`fig` must be a plotly.graph_objects.Figure; got {type(fig).__name__}.")
+    target, fmt = _resolve_target(path, format, overwrite)
+    width, height = _check_size(width, "width"), _check_size(height, "height")
+    scale = _check_size(scale, "scale", allow_float=True)
+    (data,) = _render([_job(fig, fmt, width, height, scale)])
+    _write_atomic(target, data, overwrite)
+    return target

@@ -1,0 +1,317 @@
+"""Figures: palette, escaping, figure builders against their input tables, real results, static export."""
+import itertools
+import json
+import os
+import re
+import struct
+import subprocess
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import plotly.colors as pc
+import plotly.graph_objects as go
+import pytest
+
+import summarize_widgets as sw
+import summarize_widgets.figures as F
+from summarize_widgets import SummaryError
+from summarize_widgets.groups import summarize_groups
+from summarize_widgets.tree import summarize_tree
+
+INJECT = "<script>alert(1)</script>"
+REPO = Path(__file__).resolve().parents[1]
+
+
+# -- helpers ---------------------------------------------------------------------------------
+def _strings(obj):
+    """Every string inside a figure dict (labels, hover data, titles, annotations)."""
+    if isinstance(obj, str):
+        yield obj
+    elif isinstance(obj, dict):
+        for v in obj.values():
+            yield from _strings(v)
+    elif isinstance(obj, (list, tuple)):
+        for v in obj:
+            yield from _strings(v)
+    elif isinstance(obj, np.ndarray) and obj.dtype == object:
+        for v in obj.ravel():
+            yield from _strings(v)
+
+
+def _assert_no_markup_injected(fig):
+    texts = list(_strings(fig.to_plotly_json()))
+    assert not any("<script" in t.lower() for t in texts)
+    assert any("&lt;script&gt;" in t for t in texts)
+
+
+def _trace(fig, name):
+    found = [t for t in fig.data if t.name == name]
+    assert len(found) == 1, [t.name for t in fig.data]
+    return found[0]
+
+
+def _subgroup_table(seed=0):
+    rng = np.random.default_rng(seed)
+    draws = rng.normal(loc=[-4.0, -2.5, 0.5, 1.0], scale=[0.6, 0.8, 0.5, 0.9], size=(800, 4))
+    rules = ["income <= 32000 & heating in {gas, oil}", INJECT + " & x < 3", "age > 64", "age <= 64"]
+    df = pd.DataFrame({
+        "subgroup": [3, 4, 7, 8], "rule": rules, "n_units": [120, 80, 230, 190],
+        "share": np.array([120, 80, 230, 190]) / 620, "mean": draws.mean(0), "sd": draws.std(0, ddof=1),
+        "lower": np.quantile(draws, 0.025, axis=0), "upper": np.quantile(draws, 0.975, axis=0),
+        "prob_positive": (draws > 0).mean(0),
+    })
+    df.attrs.update(level=0.95, interval="equal-tailed", label="Change in winter bill")
+    return df, {s: draws[:, j] for j, s in enumerate(df["subgroup"])}
+
+
+@pytest.fixture(scope="module")
+def draws():
+    rng = np.random.default_rng(3)
+    n, S = 900, 240
+    X = pd.DataFrame({
+        "age": rng.uniform(20, 85, n).round(),
+        INJECT: rng.uniform(0, 10, n),
+        "heating": rng.choice(["gas", "oil", "heat <pump>"], n),
+    })
+    f = -3.0 * (X["age"].to_numpy() > 60) + 0.4 * X[INJECT].to_numpy() + 1.5 * (X["heating"] == "oil").to_numpy()
+    T = f + rng.normal(0, 1.0, (S, n)) + rng.normal(0, 0.3, (S, 1))
+    return sw.EffectDraws(T, X, label="Change in winter bill")
+
+
+@pytest.fixture(scope="module")
+def tree(draws):
+    return summarize_tree(draws, max_depth=3, min_size=60)
+
+
+# -- palette ---------------------------------------------------------------------------------
+# Machado, Oliveira & Fernandes (2009), severity 1.0 simulation matrices on linear RGB
+# (values from memory; each row sums to 1, checked below, so white stays white).
+_CVD = {
+    "protanopia": np.array([[0.152286, 1.052583, -0.204868], [0.114503, 0.786281, 0.099216],
+                            [-0.003882, -0.048116, 1.051998]]),
+    "deuteranopia": np.array([[0.367322, 0.860646, -0.227968], [0.280085, 0.672501, 0.047413],
+                              [-0.011820, 0.042940, 0.968881]]),
+    "tritanopia": np.array([[1.255528, -0.076749, -0.178779], [-0.078411, 0.930809, 0.147602],
+                            [0.004733, 0.691367, 0.303900]]),
+    "normal": np.eye(3),
+}
+
+
+def _lab(hex_colour, matrix=np.eye(3)):
+    # sRGB -> linear (IEC 61966-2-1), simulated vision, -> XYZ (D65) -> CIELAB (CIE 1976).
+    c = np.array([int(hex_colour[i:i + 2], 16) for i in (1, 3, 5)]) / 255
+    lin = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+    lin = np.clip(matrix @ lin, 0, 1)
+    xyz = np.array([[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]]) @ lin
+    t = xyz / np.array([0.95047, 1.0, 1.08883])
+    f = np.where(t > (6 / 29) ** 3, np.cbrt(t), t / (3 * (6 / 29) ** 2) + 4 / 29)
+    return np.array([116 * f[1] - 16, 500 * (f[0] - f[1]), 200 * (f[1] - f[2])])
+
+
+def test_palette_constants_are_hex_lists_and_consistent():
+    hexes = F.PALETTE + F.DIVERGING + [F.INK, F.ACCENT, F.MUTED, F.GRID, F.BAND]
+    assert all(re.fullmatch(r"#[0-9A-Fa-f]{6}", h) for h in hexes)
+    assert len(set(F.PALETTE)) == len(F.PALETTE) >= 5
+    assert F.EFFECT_PALETTE == {"stops": F.DIVERGING, "missing": F.MUTED}
+    assert len(F.DIVERGING) % 2 == 1  # an odd number of stops puts a stop exactly at zero
+    assert F.effect_colorscale()[0] == [0.0, F.DIVERGING[0]] and F.effect_colorscale()[-1] == [1.0, F.DIVERGING[-1]]
+
+
+@pytest.mark.parametrize("vision", list(_CVD))
+def test_palette_stays_distinguishable_under_colour_vision_deficiency(vision):
+    m = _CVD[vision]
+    np.testing.assert_allclose(m.sum(axis=1), 1.0, atol=1e-5)
+    labs = [_lab(h, m) for h in F.PALETTE]
+    worst = min(np.linalg.norm(a - b) for a, b in itertools.combinations(labs, 2))
+    assert worst >= 12.0, f"two palette colours nearly merge under {vision} (Delta E {worst:.1f})"
+    # the ends of the effect scale (equal and opposite effects) must not merge either
+    neg, pos = (_lab(F.effect_color(v, 1.0), m) for v in (-0.6, 0.6))
+    assert np.linalg.norm(neg - pos) >= 15.0
+    # the highlight colour is told apart from ink and both effect ends
+    acc = _lab(F.ACCENT, m)
+    assert min(np.linalg.norm(acc - _lab(h, m)) for h in (F.INK, F.DIVERGING[0], F.DIVERGING[-1])) >= 12.0
+
+
+def test_effect_scale_lightness_rises_towards_zero_on_both_sides():
+    values = np.linspace(-1, 1, 41)
+    lightness = np.array([_lab(c)[0] for c in F.effect_color(values, 1.0)])
+    assert np.all(np.diff(lightness[:21]) > 0) and np.all(np.diff(lightness[20:]) < 0)
+
+
+def test_effect_color_matches_plotly_colorscale_sampling():
+    # Reference: plotly.colors.sample_colorscale interpolates the same stops in sRGB.
+    values = np.linspace(-2.5, 2.5, 37)
+    ours = F.effect_color(values, 2.0)
+    t = np.clip(values / 2.0, -1, 1) / 2 + 0.5
+    ref = pc.sample_colorscale(F.effect_colorscale(), list(t), colortype="rgb")
+    for h, r in zip(ours, ref):
+        got = np.array([int(h[i:i + 2], 16) for i in (1, 3, 5)])
+        want = np.array([float(v) for v in re.findall(r"[\d.]+", r)])
+        assert np.abs(got - want).max() <= 1.0
+
+
+def test_effect_color_edges_and_shapes():
+    mid = F.DIVERGING[len(F.DIVERGING) // 2].lower()
+    assert F.effect_color(0.0, 3.0).lower() == mid
+    assert F.effect_color(-10, 3.0).lower() == F.DIVERGING[0].lower()
+    assert F.effect_color(10, 3.0).lower() == F.DIVERGING[-1].lower()
+    assert F.effect_color(float("nan"), 3.0) == F.MUTED
+    assert F.effect_color(5.0, 0).lower() == mid
+    assert isinstance(F.effect_color([1, 2], 2.0), list) and len(F.effect_color(np.zeros((2, 3)), 1.0)) == 6
+
+
+@pytest.mark.parametrize("vmax, match", [(-1.0, "`vmax` must be a finite number >= 0; got -1.0"),
+                                         (float("nan"), "`vmax` must be a finite"), ("2", "`vmax`"), (True, "`vmax`")])
+def test_effect_color_rejects_bad_vmax(vmax, match):
+    with pytest.raises(SummaryError, match=re.escape(match) if "got" in match else match):
+        F.effect_color(1.0, vmax)
+
+
+def test_effect_color_rejects_non_numeric_value():
+    with pytest.raises(SummaryError, match="`value` must be a number"):
+        F.effect_color("high", 1.0)
+
+
+def test_effect_color_agrees_with_the_js_tree_view():
+    # The tree view's own divergingColour (js/tree_view.js), run by node, given our palette.
+    values = [-3.0, -1.2, -0.37, 0.0, 0.01, 0.5, 1.99, 4.0]
+    script = (f"import {{divergingColour}} from {json.dumps((REPO / 'js' / 'tree_view.js').as_uri())};"
+              f"console.log(JSON.stringify({json.dumps(values)}.map(v => divergingColour(v, 2, "
+              f"{json.dumps(F.EFFECT_PALETTE)}))));")
+    out = subprocess.run(["node", "--input-type=module", "-e", script], capture_output=True, text=True,
+                         timeout=60, check=True)
+    assert [c.lower() for c in json.loads(out.stdout)] == [c.lower() for c in F.effect_color(values, 2.0)]
+
+
+# -- subgroup effects ------------------------------------------------------------------------
+def test_subgroups_ordered_by_mean_with_exact_intervals():
+    df, _ = _subgroup_table()
+    fig = F._subgroups_figure(df)
+    assert isinstance(fig, go.Figure)
+    tr = _trace(fig, "subgroups")
+    order = df.sort_values("mean")  # bottom (y = 0) to top
+    np.testing.assert_allclose(tr.x, order["mean"])
+    np.testing.assert_allclose(tr.y, np.arange(len(df)))
+    np.testing.assert_allclose(np.array(tr.x) + tr.error_x.array, order["upper"])
+    np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, order["lower"])
+    np.testing.assert_allclose(tr.customdata[:, 5].astype(float), order["prob_positive"])
+    # tick labels follow the same order and carry the readable rules (<= typeset as ≤)
+    ticks = fig.layout.yaxis.ticktext
+    assert "age &gt; 64" in ticks[list(order["subgroup"]).index(7)]
+    assert "income ≤ 32000" in ticks[list(order["subgroup"]).index(3)]
+    assert [tuple(fig.layout.yaxis.tickvals)] == [tuple(range(4))]
+    # marker fill on the shared effect scale, zero line drawn
+    vmax = np.abs(df["mean"]).max()
+    assert list(tr.marker.color) == F.effect_color(order["mean"].to_numpy(), vmax)
+    assert any(s.type == "line" and s.x0 == 0 and s.x1 == 0 for s in fig.layout.shapes)
+    assert "95% credible interval" in fig.layout.xaxis.title.text
+    assert "Change in winter bill" in fig.layout.xaxis.title.text
+
+
+def test_subgroups_escape_injected_rule():
+    df, _ = _subgroup_table()
+    _assert_no_markup_injected(F._subgroups_figure(df, title=INJECT))
+
+
+def test_subgroups_highlight_in_accent():
+    df, _ = _subgroup_table()
+    fig = F._subgroups_figure(df, highlight=7)
+    hi = _trace(fig, "highlight")
+    assert hi.error_x.color == F.ACCENT and hi.marker.line.color == F.ACCENT
+    assert list(hi.x) == pytest.approx([df.loc[df.subgroup == 7, "mean"].item()])
+    assert len(_trace(fig, "subgroups").x) == 3
+    assert any(s.type == "rect" and s.fillcolor.startswith("rgba(204, 92, 138") for s in fig.layout.shapes)
+    assert sum(F.ACCENT in t for t in fig.layout.yaxis.ticktext) == 1
+
+
+def test_subgroups_show_draws_as_kde_violins():
+    # Reference: scipy's gaussian_kde; the violin is widest where the KDE peaks, spans the draws.
+    from scipy.stats import gaussian_kde
+
+    df, draws = _subgroup_table()
+    fig = F._subgroups_figure(df, draws=draws)
+    v = _trace(fig, "posterior density")
+    assert v.fill == "toself"
+    x = np.array([np.nan if a is None else a for a in v.x], dtype=float)
+    y = np.array([np.nan if a is None else a for a in v.y], dtype=float)
+    pieces = np.split(np.arange(len(x)), np.flatnonzero(np.isnan(x)) + 1)
+    pieces = [p[~np.isnan(x[p])] for p in pieces if (~np.isnan(x[p])).any()]
+    assert len(pieces) == 4
+    order = list(df.sort_values("mean")["subgroup"])
+    for k, p in enumerate(pieces):
+        d = draws[order[k]]
+        assert x[p].min() == pytest.approx(d.min()) and x[p].max() == pytest.approx(d.max())
+        assert (y[p] - k).max() == pytest.approx(0.38)
+        grid = np.linspace(d.min(), d.max(), 400)
+        peak = grid[np.argmax(gaussian_kde(d)(grid))]
+        assert x[p][np.argmax(y[p] - k)] == pytest.approx(peak, abs=(d.max() - d.min()) / 90)
+
+
+def test_subgroups_pinned_row_on_top():
+    df, _ = _subgroup_table()
+    fig = F._subgroups_figure(df, pinned=[8])
+    pin = _trace(fig, "pinned")
+    assert list(pin.y) == [3.0] and pin.marker.symbol == "diamond"
+
+
+@pytest.mark.parametrize("kwargs, match", [
+    (dict(highlight=99), r"`highlight` 99 is not one of the subgroups: \[3, 4, 7, 8\]"),
+    (dict(pinned=["x"]), r"`pinned` 'x' is not one of the subgroups"),
+    (dict(draws={3: np.zeros(3)}), r"`draws` has no posterior draws for subgroup\(s\) \[4, 7, 8\]"),
+])
+def test_subgroups_errors(kwargs, match):
+    df, _ = _subgroup_table()
+    with pytest.raises(SummaryError, match=match):
+        F._subgroups_figure(df, **kwargs)
+
+
+def test_builders_name_missing_columns_and_empty_tables():
+    df, _ = _subgroup_table()
+    with pytest.raises(SummaryError, match=r"`table` lacks the column\(s\) 'lower', 'upper'"):
+        F._subgroups_figure(df.drop(columns=["lower", "upper"]))
+    with pytest.raises(SummaryError, match="`table` has no rows"):
+        F._subgroups_figure(df.iloc[:0])
+    with pytest.raises(SummaryError, match="`table` must be a pandas DataFrame; got dict"):
+        F._subgroups_figure({"mean": [1]})
+
+
+def test_plot_subgroups_on_a_real_tree(tree):
+    t2 = tree.depth(2)
+    tab = t2.table(level=0.9)
+    leaf = int(tab["subgroup"].iloc[0])
+    fig = F.plot_subgroups(t2, level=0.9, highlight=np.int64(leaf), show_draws=True)
+    hi = _trace(fig, "highlight")
+    assert hi.x[0] == pytest.approx(tab["mean"].iloc[0])
+    assert hi.x[0] - hi.error_x.arrayminus[0] == pytest.approx(tab["lower"].iloc[0])
+    # the interval is the 90% equal-tailed one of the leaf's draws (numpy quantiles)
+    j = list(t2.leaf_ids).index(leaf)
+    assert hi.x[0] + hi.error_x.array[0] == pytest.approx(np.quantile(t2.leaf_draws[:, j], 0.95), rel=1e-9)
+    assert "90% credible interval" in fig.layout.xaxis.title.text
+    assert len(_trace(fig, "posterior density").x) > 0
+    _assert_no_markup_injected(fig)  # the covariate named <script>... appears in the rules
+
+
+def test_plot_subgroups_on_groups_pins_all_units(draws):
+    groups = summarize_groups(draws, {"older": "age >= 60", "oil <b>": "heating == 'oil'"})
+    fig = F.plot_subgroups(groups, show_draws=True, highlight="older")
+    pin = _trace(fig, "pinned")
+    tab = groups.table()
+    assert list(pin.y) == [len(tab) - 1.0]
+    assert pin.x[0] == pytest.approx(tab.loc[tab.subgroup == "All units", "mean"].item())
+    assert all("<b>" not in t.replace("<b>%{customdata[0]}</b>", "") for t in _strings(fig.to_plotly_json())
+               if "oil" in t)
+
+
+def test_plot_functions_reject_wrong_result_types(tree):
+    with pytest.raises(SummaryError, match="`result` must be a TreeSummary or GroupSummary; got DataFrame"):
+        F.plot_subgroups(pd.DataFrame())
+    with pytest.raises(SummaryError, match="`tree` must be a TreeSummary; got str"):
+        F.plot_fit_by_depth("tree")
+    with pytest.raises(SummaryError, match="`additive` must be a AdditiveSummary; got TreeSummary"):
+        F.plot_trends(tree)
+    with pytest.raises(SummaryError, match="`linear` must be a LinearSummary; got TreeSummary"):
+        F.plot_coefficients(tree)
+    with pytest.raises(SummaryError, match="`result` must be a TreeSummary or GroupSummary; got int"):
+        F.plot_contrasts(3, 1)
