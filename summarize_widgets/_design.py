@@ -39,9 +39,13 @@ class ColumnSpec:
     n_missing: int = 0
 
 
-def _labels(series: pd.Series) -> pd.Series:
-    """Category labels as strings (booleans read True/False), missing as NaN."""
-    return pd.Series([None if pd.isna(v) else str(v) for v in series.astype("object")], index=series.index, dtype=object)
+def _factorize(series: pd.Series) -> tuple[np.ndarray, list[str]]:
+    """Codes into the distinct labels (as strings; booleans read True/False), -1 for missing.
+
+    Vectorized through ``pd.factorize``, so a million-row column costs milliseconds.
+    """
+    codes, uniques = pd.factorize(series, use_na_sentinel=True)
+    return np.asarray(codes, dtype=np.int64), [str(u) for u in uniques]
 
 
 def classify_columns(covariates: pd.DataFrame, columns: list[str]) -> list[ColumnSpec]:
@@ -58,14 +62,14 @@ def classify_columns(covariates: pd.DataFrame, columns: list[str]) -> list[Colum
                     f"Covariate {name!r} holds dates or durations ({s.dtype}); convert it to a number "
                     "(for example years since a reference date) first."
                 )
-            labels = _labels(s)
+            _, uniques = _factorize(s)
+            seen = set(uniques)
             if isinstance(s.dtype, pd.CategoricalDtype):
-                seen = set(labels.dropna())
                 cats = [str(c) for c in s.cat.categories if str(c) in seen]
-            elif pd.api.types.is_bool_dtype(s) or set(labels.dropna()) <= {"True", "False"}:
-                cats = [c for c in ("False", "True") if c in set(labels.dropna())]
+            elif pd.api.types.is_bool_dtype(s) or seen <= {"True", "False"}:
+                cats = [c for c in ("False", "True") if c in seen]
             else:
-                cats = sorted(set(labels.dropna()))
+                cats = sorted(seen)
             if n_missing:
                 cats.append(MISSING)
             if len(cats) < 2:
@@ -94,16 +98,17 @@ def category_codes(series: pd.Series, spec: ColumnSpec) -> np.ndarray:
     Raises naming the column and the labels when ``series`` holds categories not
     seen when the summary was fitted.
     """
-    labels = _labels(series)
+    codes, uniques = _factorize(series)
     lookup = {c: k for k, c in enumerate(spec.categories)}
-    codes = labels.map(lambda v: lookup.get(MISSING if v is None else v, -1)).to_numpy(dtype=np.int64)
-    if (codes < 0).any():
-        unknown = sorted({MISSING if v is None else v for v, c in zip(labels, codes) if c < 0})
+    table = np.array([lookup.get(u, -1) for u in uniques] + [lookup.get(MISSING, -1)], dtype=np.int64)
+    out = table[codes]  # code -1 (missing) picks the last entry: the MISSING category
+    if (out < 0).any():
+        unknown = sorted({uniques[c] if c >= 0 else MISSING for c in np.unique(codes[out < 0])})
         raise SummaryError(
             f"Covariate {spec.name!r} has categories not seen when the summary was fitted: "
             f"{', '.join(repr(u) for u in unknown[:10])}. Known: {', '.join(repr(c) for c in spec.categories)}."
         )
-    return codes
+    return out
 
 
 def numeric_values(series: pd.Series) -> np.ndarray:

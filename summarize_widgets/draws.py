@@ -225,59 +225,88 @@ class EffectDraws:
         return self
 
     def _scan(self, name):
-        """The validation pass: finiteness, per-unit weighted means, per-draw centred sums."""
+        """The validation pass: finiteness, per-unit weighted means, per-draw centred sums.
+
+        Blocks run on up to two threads (NumPy releases the GIL in its loops); per-unit sums
+        are added under a lock.
+        """
+        import threading
+        from concurrent.futures import ThreadPoolExecutor
+
         S, n = self._values.shape
-        colsum_wt = np.zeros(n)
-        colsum_w = np.zeros(n)
+        self._colsum_wt = np.zeros(n)
+        self._colsum_w = np.zeros(n)
         self._centre = np.empty(S)
         self._q = np.empty(S)  # sum_i w_si (T_si - c_s)^2
         self._wsum = np.empty(S)  # sum_i w_si
         self._wtsum = np.empty(S)  # sum_i w_si T_si
-        bad_rows = []
+        self._bad_rows = []
+        self._lock = threading.Lock()
+        blocks = list(self.blocks())
         # Overflow (finite values whose weighted sums exceed float64) is detected below and reported, not warned.
         with np.errstate(over="ignore", invalid="ignore"):
-            for block in self.blocks():
-                r = block.rows
-                wt = np.asarray(block.wt, dtype=np.float64)
-                rowsum = wt.sum(axis=1)
-                if not np.isfinite(rowsum).all() or (self._den is not None and not np.isfinite(self._den[r].sum(axis=1)).all()):
-                    bad_rows.append(r)
-                    continue
-                w = block.w
-                wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
-                colsum_wt += wt.sum(axis=0)
-                if w is None:
-                    colsum_w += wt.shape[0]
-                elif w.ndim == 1:
-                    colsum_w += wt.shape[0] * w
-                else:
-                    colsum_w += w.sum(axis=0)
-                self._wsum[r] = wsum
-                self._wtsum[r] = rowsum
-                self._centre[r], self._q[r] = self._centred_squares(r, block)
+            if len(blocks) == 1:
+                self._scan_block(blocks[0])
+            else:
+                with ThreadPoolExecutor(2) as pool:
+                    list(pool.map(self._scan_block, blocks))
+        bad_rows, colsum_wt, colsum_w = self._bad_rows, self._colsum_wt, self._colsum_w
+        del self._bad_rows, self._lock, self._colsum_wt
         if bad_rows:
-            self._raise_nonfinite(bad_rows, name)
+            self._raise_nonfinite(sorted(bad_rows, key=lambda r: r.start), name)
         if not (np.isfinite(colsum_wt).all() and np.isfinite(self._q).all()):
             self._raise_overflow(name)
         if self._den is not None:
             self._check_uptake()
-        self._colsum_w = colsum_w
         with np.errstate(invalid="ignore", divide="ignore"):
             self._mean = np.where(colsum_w > 0, colsum_wt / np.where(colsum_w > 0, colsum_w, 1.0), np.nan)
         if not (colsum_w > 0).any():
             raise SummaryError("Every unit has zero total weight; nothing to summarize.")
 
-    def _centred_squares(self, r, block):
-        """Per draw: a centring constant c_s and sum_i w_si (T_si - c_s)^2, centred before squaring."""
+    def _scan_block(self, block):
+        r = block.rows
+        n = self.n_units
+        with np.errstate(over="ignore", invalid="ignore"):
+            wt = np.asarray(block.wt, dtype=np.float64)
+            rowsum = wt.sum(axis=1)
+            if not np.isfinite(rowsum).all() or (self._den is not None and not np.isfinite(self._den[r].sum(axis=1)).all()):
+                with self._lock:
+                    self._bad_rows.append(r)
+                return
+            w = block.w
+            wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
+            colsum = wt.sum(axis=0)
+            self._wsum[r] = wsum
+            self._wtsum[r] = rowsum
+            self._centre[r], self._q[r] = self._centred_squares(r, block, wt, rowsum, wsum)
+            with self._lock:
+                self._colsum_wt += colsum
+                if w is None:
+                    self._colsum_w += wt.shape[0]
+                elif w.ndim == 1:
+                    self._colsum_w += wt.shape[0] * w
+                else:
+                    self._colsum_w += w.sum(axis=0)
+
+    def _centred_squares(self, r, block, wt, rowsum, wsum):
+        """Per draw: a centring constant c_s and ``sum_i w_si (T_si - c_s)^2``.
+
+        Fast route: ``sum w T^2 - 2 c sum w T + c^2 sum w`` from one product. When that
+        would lose more than six of float64's sixteen digits to cancellation (effects large
+        relative to their spread), the rows are recomputed by centring before squaring
+        (METHOD.md section 3).
+        """
         k = min(_CENTRE_UNITS, self.n_units)
         if self._den is None:
             vals = np.asarray(self._values[r], dtype=np.float64)
             c = vals[:, :k].mean(axis=1)
-            x = vals - c[:, None]
-            if block.w is None:
-                q = np.einsum("ij,ij->i", x, x)
-            else:
-                q = np.einsum("ij,ij->i", x * block.w, x)
+            ss = np.einsum("ij,ij->i", wt, vals)
+            q = ss - 2.0 * c * rowsum + c * c * wsum
+            unsafe = ~(q > 1e-6 * ss)
+            for j in np.flatnonzero(unsafe):
+                x = vals[j] - c[j]
+                q[j] = np.dot(x * block.w[j] if block.w is not None and block.w.ndim == 2 else
+                              (x * block.w if block.w is not None else x), x)
             return c, q
         # complier-weighted: T = ITT_y / pi with weight v * pi, so w (T - c)^2 = v (ITT_y - c pi)^2 / pi.
         num = np.asarray(self._values[r], dtype=np.float64)
