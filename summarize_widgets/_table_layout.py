@@ -1,0 +1,270 @@
+"""One layout for every table format: escaping, rule typesetting, typed cells.
+
+Every summary table (``.table()``, ``.contrasts()``, ``.curves()``, ``.fit_r2_by_depth()``) is
+turned into one :class:`_Layout`: which columns a reader sees, each cell typed as text,
+rule, count, number or interval, and plain-text notes. The renderers in
+:mod:`summarize_widgets.export` only decide markup, so LaTeX, Markdown and HTML cannot drift apart.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from ._validate import SummaryError, check_int
+
+__all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_kind", "format_cell"]
+
+WEAK_MARK = "\u2020"  # dagger: the weak-uptake footnote symbol
+
+# -- escaping and rules ---------------------------------------------------------------
+_LATEX_ESCAPES = {
+    "\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
+    "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
+    # In LaTeX's default OT1 encoding < > | print as other glyphs; these commands work in any encoding.
+    "<": r"\textless{}", ">": r"\textgreater{}", "|": r"\textbar{}",
+    "\n": " ", "\r": " ", "\t": " ",
+}
+_LATEX_TABLE = str.maketrans(_LATEX_ESCAPES)
+
+
+def escape_latex(text) -> str:
+    """Escape LaTeX specials ``& % $ # _ { } ~ ^ \\`` (and ``< > |``) in plain text; newlines become spaces."""
+    return "".join(ch for ch in str(text).translate(_LATEX_TABLE) if ch >= " ")
+
+
+# Operators are recognized only between spaces, so a name such as "R&D" stays text.
+_OPS = {
+    "<=": (r"$\leq$", "\u2264"), ">=": (r"$\geq$", "\u2265"), "<": ("$<$", "<"), ">": ("$>$", ">"),
+    "=": ("$=$", "="), "==": ("$=$", "="), "!=": (r"$\neq$", "\u2260"),
+    "&": ("and", "and"), "and": ("and", "and"), "|": ("or", "or"), "or": ("or", "or"),
+    "in": (r"$\in$", "\u2208"), "not in": (r"$\notin$", "\u2209"),
+}
+_CLOSE = {"{": "}", "[": "]"}
+
+
+def _lex_rule(rule: str) -> list[tuple[str, str]]:
+    """Split a rule into ("op", op), ("set", "{inner}"), ("str", '"x"'), ("name", "x"), ("text", s), ("sp", " ")."""
+    out: list[tuple[str, str]] = []
+    i, n = 0, len(rule)
+    while i < n:
+        ch = rule[i]
+        if ch.isspace():
+            out.append(("sp", " "))
+            while i < n and rule[i].isspace():
+                i += 1
+            continue
+        if ch in "\"'`":
+            j = rule.find(ch, i + 1)
+            j = n - 1 if j < 0 else j
+            out.append(("name" if ch == "`" else "str", rule[i:j + 1]))
+            i = j + 1
+            continue
+        if ch in _CLOSE:
+            depth, j = 0, i
+            while j < n:
+                if rule[j] == ch:
+                    depth += 1
+                elif rule[j] == _CLOSE[ch]:
+                    depth -= 1
+                    if depth == 0:
+                        break
+                j += 1
+            out.append(("set", rule[i:j + 1]))
+            i = j + 1
+            continue
+        j = i
+        while j < n and not rule[j].isspace() and rule[j] not in "\"'`{[":
+            j += 1
+        out.append(("text", rule[i:j]))
+        i = j
+    # A text token that is an operator, standing between spaces (or at an end), is an operator.
+    for k, (kind, tok) in enumerate(out):
+        spaced = (k == 0 or out[k - 1][0] == "sp") and (k == len(out) - 1 or out[k + 1][0] == "sp")
+        if kind == "text" and spaced and tok in _OPS:
+            out[k] = ("op", tok)
+    merged: list[tuple[str, str]] = []
+    for kind, tok in out:  # "not in" is one operator
+        if kind == "op" and tok == "in" and len(merged) >= 2 and merged[-2] == ("text", "not") and merged[-1][0] == "sp":
+            merged[-2:] = [("op", "not in")]
+        else:
+            merged.append((kind, tok))
+    return merged
+
+
+def rule_to_latex(rule) -> str:
+    r"""Typeset a subgroup rule: ``&`` reads "and", comparisons in math, set braces escaped, text escaped.
+
+    ``age <= 40 & region in {east, west}`` becomes ``age $\leq$ 40 and region $\in$ \{east, west\}``.
+    Operators count only between spaces, so a covariate named ``R&D`` stays text (escaped ``R\&D``).
+    """
+    parts = []
+    for kind, tok in _lex_rule(str(rule)):
+        if kind == "op":
+            parts.append(_OPS[tok][0])
+        elif kind == "str" and len(tok) >= 2 and tok[-1] == tok[0]:
+            parts.append("``" + escape_latex(tok[1:-1]) + "''")  # typographic quotes work in every font encoding
+        elif kind == "name" and len(tok) >= 2 and tok[-1] == "`":
+            parts.append(escape_latex(tok[1:-1]))
+        else:
+            parts.append(escape_latex(tok))
+    return "".join(parts)
+
+
+def rule_to_text(rule) -> str:
+    """A rule for screen formats (HTML, Markdown): unicode comparison signs, "and"/"or"; not escaped."""
+    parts = []
+    for kind, tok in _lex_rule(str(rule)):
+        if kind == "op":
+            parts.append(_OPS[tok][1])
+        elif kind == "name" and len(tok) >= 2 and tok[-1] == "`":
+            parts.append(tok[1:-1])
+        else:
+            parts.append(tok)
+    return "".join(parts).strip()
+
+
+# -- layout ----------------------------------------------------------------------------
+class _Layout:
+    """Headers (plain, LaTeX, align), typed rows and plain-text notes shared by every renderer."""
+
+    def __init__(self, headers, rows, notes):
+        self.headers = headers
+        self.rows = rows
+        self.notes = notes
+
+
+_KINDS = {
+    "subgroups": ["subgroup", "rule", "n_units", "share", "mean", "lower", "upper", "prob_positive"],
+    "contrasts": ["subgroup_a", "subgroup_b", "rule_a", "rule_b", "difference", "lower", "upper", "prob_a_greater"],
+    "linear": ["term", "mean", "lower", "upper", "prob_positive"],
+    "curves": ["covariate", "x", "mean", "lower", "upper", "lower_joint", "upper_joint"],
+    "fit_r2": ["depth", "n_subgroups", "mean", "lower", "upper"],
+}
+
+
+def table_kind(df, kind):
+    if not isinstance(df, pd.DataFrame):
+        raise SummaryError(f"`df` must be a pandas DataFrame from a summary's .table()/.contrasts()/.curves(); got {type(df).__name__}.")
+    if kind is not None:
+        if kind not in _KINDS:
+            raise SummaryError(f"`kind` must be one of {sorted(_KINDS)}; got {kind!r}.")
+        missing = [c for c in _KINDS[kind] if c not in df.columns]
+        if missing:
+            raise SummaryError(f"`df` lacks the columns a {kind!r} table needs: {missing}; it has {list(df.columns)}.")
+        return kind
+    for name in ("contrasts", "curves", "fit_r2", "subgroups", "linear"):
+        if all(c in df.columns for c in _KINDS[name]):
+            return name
+    raise SummaryError(
+        "`df` is not a summary table: expected the columns of one of "
+        + "; ".join(f"{k} ({', '.join(v)})" for k, v in _KINDS.items())
+        + f". Got {list(df.columns)}."
+    )
+
+
+def _level_text(df) -> str:
+    level = df.attrs.get("level")
+    return f"{100 * float(level):g}% interval" if level is not None else "Credible interval"
+
+
+def _interval_note(df, what: str) -> str:
+    level, kind = df.attrs.get("level"), df.attrs.get("interval", "equal-tailed")
+    lev = f"{100 * float(level):g}% " if level is not None else ""
+    return f"Intervals: {lev}{kind} posterior credible intervals of {what}, written [lower, upper]."
+
+
+def _layout(df: pd.DataFrame, kind: str) -> _Layout:
+    iv = _level_text(df)
+    notes: list[str] = []
+    rows = []
+    if kind == "subgroups":
+        by_id = pd.api.types.is_integer_dtype(df["subgroup"])
+        weak = df["weak_uptake"].astype(bool).to_numpy() if "weak_uptake" in df.columns else np.zeros(len(df), bool)
+        headers = ([("Subgroup", "Subgroup", "r"), ("Rule", "Rule", "l")] if by_id
+                   else [("Group", "Group", "l"), ("Definition", "Definition", "l")])
+        headers += [("n", "$n$", "r"), ("Share", "Share", "r"), ("Mean", "Mean", "r"), (iv, escape_latex(iv), "c"),
+                    ("P(>0)", "$P(>0)$", "r")]
+        for r, w in zip(df.itertuples(index=False), weak):
+            first = ("int", r.subgroup) if by_id else ("text", r.subgroup)
+            rows.append([first, ("rule", r.rule), ("int", r.n_units), ("num", r.share), ("num", r.mean, bool(w)),
+                         ("interval", (r.lower, r.upper)), ("num", r.prob_positive)])
+        notes.append(_interval_note(df, "each subgroup's average effect") + " P(>0): posterior probability that it is positive.")
+        if weak.any():
+            floor = df.attrs.get("uptake_floor")
+            below = f" below {floor:g}" if floor is not None else " near zero"
+            notes.append(f"{WEAK_MARK} Weak uptake: the interval of this subgroup's complier share reaches{below}, "
+                         "so its ratio (LATE) estimate is unstable.")
+    elif kind == "contrasts":
+        by_id = pd.api.types.is_integer_dtype(df["subgroup_a"])
+        a, b = ("rule_a", "rule_b") if by_id else ("subgroup_a", "subgroup_b")
+        headers = [("Subgroup A", "Subgroup A", "l"), ("Subgroup B", "Subgroup B", "l"),
+                   ("Difference A \u2212 B", "Difference $A - B$", "r"), (iv, escape_latex(iv), "c"),
+                   ("P(A > B)", "$P(A > B)$", "r")]
+        cell = "rule" if by_id else "text"  # group labels are names, not rules: no "&" -> "and"
+        for r in df.itertuples(index=False):
+            rows.append([(cell, getattr(r, a)), (cell, getattr(r, b)), ("num", r.difference),
+                         ("interval", (r.lower, r.upper)), ("num", r.prob_a_greater)])
+        notes.append(_interval_note(df, "each difference, computed draw by draw")
+                     + " P(A > B): posterior probability that A's effect exceeds B's.")
+    elif kind == "linear":
+        headers = [("Term", "Term", "l"), ("Coefficient", "Coefficient", "r"), (iv, escape_latex(iv), "c"),
+                   ("P(>0)", "$P(>0)$", "r")]
+        for r in df.itertuples(index=False):
+            rows.append([("text", r.term), ("num", r.mean), ("interval", (r.lower, r.upper)), ("num", r.prob_positive)])
+        notes.append(_interval_note(df, "the coefficients of the best linear approximation")
+                     + " P(>0): posterior probability that a coefficient is positive.")
+    elif kind == "curves":
+        headers = [("Covariate", "Covariate", "l"), ("Value", "Value", "r"), ("Mean", "Mean", "r"),
+                   (f"{iv} (pointwise)", escape_latex(f"{iv} (pointwise)"), "c"),
+                   (f"{iv} (simultaneous)", escape_latex(f"{iv} (simultaneous)"), "c")]
+        for r in df.itertuples(index=False):
+            x = ("num", r.x) if isinstance(r.x, (int, float, np.number)) and not isinstance(r.x, bool) else ("text", r.x)
+            rows.append([("text", r.covariate), x, ("num", r.mean), ("interval", (r.lower, r.upper)),
+                         ("interval", (r.lower_joint, r.upper_joint))])
+        notes.append(_interval_note(df, "the additive summary's effect at each value")
+                     + " Simultaneous intervals cover a covariate's whole curve jointly.")
+    else:  # fit_r2
+        headers = [("Depth", "Depth", "r"), ("Subgroups", "Subgroups", "r"), ("Summary R\u00b2", "Summary $R^2$", "r"),
+                   (iv, escape_latex(iv), "c")]
+        for r in df.itertuples(index=False):
+            rows.append([("int", r.depth), ("int", r.n_subgroups), ("num", r.mean), ("interval", (r.lower, r.upper))])
+        notes.append(_interval_note(df, "the summary R\u00b2, the share of each draw's heterogeneity the tree captures"))
+    if "mcse" in df.columns and len(df):
+        notes.append(f"Largest Monte Carlo standard error of a mean: {float(np.nanmax(df['mcse'])):.2g}.")
+    return _Layout(headers, rows, notes)
+
+
+def _num(x, digits: int, minus: str) -> str:
+    if x is None or (isinstance(x, float) and math.isnan(x)) or pd.isna(x):
+        return "NA"
+    s = f"{float(x):.{digits}f}"
+    if float(s) == 0.0:
+        s = s.lstrip("-")  # no "-0.00"
+    return s.replace("-", minus, 1) if s.startswith("-") else s
+
+
+def format_cell(cell, digits: int, fmt: str) -> str:
+    """One cell as LaTeX ("tex") or as unescaped screen text ("text")."""
+    kind, value = cell[0], cell[1]
+    minus = "$-$" if fmt == "tex" else "\u2212"
+    if kind == "int":
+        return "NA" if pd.isna(value) else f"{int(value):,}"
+    if kind == "num":
+        s = _num(value, digits, minus)
+        if len(cell) > 2 and cell[2]:
+            s += r"$^{\dagger}$" if fmt == "tex" else WEAK_MARK
+        return s
+    if kind == "interval":
+        return f"[{_num(value[0], digits, minus)}, {_num(value[1], digits, minus)}]"
+    if kind == "rule":
+        return rule_to_latex(value) if fmt == "tex" else rule_to_text(value)
+    return escape_latex(value) if fmt == "tex" else str(value)
+
+
+def table_layout(df, kind=None, digits: int = 2):
+    """Validate a summary table and return (its layout, checked digits)."""
+    kind = table_kind(df, kind)
+    digits = check_int(digits, "digits", low=0, high=15)
+    return _layout(df, kind), digits

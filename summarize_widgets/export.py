@@ -1,0 +1,434 @@
+"""Paper-ready tables, provenance files and atomic file writes.
+
+Every summary's ``.table()`` / ``.contrasts()`` / ``.curves()`` returns a DataFrame of
+raw numbers. :func:`summarize_widgets._table_layout.table_layout` decides, per kind of
+table, which columns a reader sees and how each cell is typed (text, rule, count,
+number, interval); the renderers here only add markup: LaTeX (booktabs), Markdown,
+HTML. CSV keeps every column at full precision.
+
+Why hand-written renderers and not ``DataFrame.to_latex`` / ``Styler``: pandas' LaTeX
+and captioned-HTML output needs jinja2, which is not one of our declared dependencies;
+our cells mix escaped text with math (rules such as ``age $\\leq$ 40``), the table
+needs a notes block under the tabular (intervals, weak-uptake marker, provenance)
+that Styler does not offer, and ``DataFrame.to_markdown`` needs ``tabulate``, which is
+not installed. CSV goes through pandas, whose float formatting is already exact.
+"""
+from __future__ import annotations
+
+import html
+import inspect
+import json
+import os
+import re
+import tempfile
+from collections.abc import Mapping
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ._provenance import hash_array, hash_file, jsonable, provenance, provenance_lines
+from ._table_layout import (WEAK_MARK, escape_latex, format_cell, rule_to_latex, rule_to_text, table_kind,
+                            table_layout)
+from ._validate import SummaryError, check_int
+
+__all__ = [
+    "write_atomic",
+    "refuse_existing",
+    "escape_latex",
+    "rule_to_latex",
+    "rule_to_text",
+    "to_latex",
+    "to_markdown",
+    "to_csv",
+    "to_html",
+    "curve_points",
+    "provenance",
+    "provenance_lines",
+    "hash_array",
+    "hash_file",
+    "write_provenance",
+    "summary_tables",
+    "export_tables",
+    "FORMATS",
+]
+
+FORMATS = ("tex", "md", "csv", "html")
+
+
+# ----------------------------------------------------------------------------- writes
+def write_atomic(path, data: str | bytes, *, overwrite: bool = False) -> Path:
+    """Write ``data`` to ``path`` through a temporary file in the same folder, then rename.
+
+    Parameters
+    ----------
+    path : str or Path
+        Destination file. Its folder must exist.
+    data : str or bytes
+        Text is written as UTF-8.
+    overwrite : bool, default False
+        Replace an existing file. Without it an existing file is never touched.
+
+    Returns
+    -------
+    Path
+        The written path.
+
+    Raises
+    ------
+    FileExistsError
+        ``path`` exists and ``overwrite`` is False (the message names the file).
+    """
+    path = Path(path)
+    if isinstance(data, str):
+        data = data.encode("utf-8")
+    elif not isinstance(data, (bytes, bytearray)):
+        raise SummaryError(f"`data` must be str or bytes; got {type(data).__name__}.")
+    if not path.parent.is_dir():
+        raise SummaryError(f"Cannot write {str(path)!r}: folder {str(path.parent)!r} does not exist.")
+    if path.exists() and not overwrite:
+        raise _exists_error([path])
+    # Same folder so os.replace is a rename on one file system (atomic on POSIX and Windows).
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        # mkstemp makes the file private (0600); give it the mode a plain open() would.
+        os.chmod(tmp, path.stat().st_mode & 0o7777 if path.exists() else 0o666 & ~_umask())
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        if not overwrite:
+            # A file may have appeared since the check; os.link fails instead of replacing it.
+            try:
+                os.link(tmp, path)
+            except FileExistsError:
+                raise _exists_error([path]) from None
+            except OSError:  # file systems without hard links: fall back to the checked rename
+                if path.exists():
+                    raise _exists_error([path]) from None
+                os.replace(tmp, path)
+        else:
+            os.replace(tmp, path)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+    return path
+
+
+def _umask() -> int:
+    old = os.umask(0o022)  # the only portable way to read the umask is to set it and put it back
+    os.umask(old)
+    return old
+
+
+def refuse_existing(paths, *, overwrite: bool = False) -> None:
+    """Raise FileExistsError naming every path in ``paths`` that exists, unless ``overwrite``."""
+    existing = [Path(p) for p in paths if Path(p).exists()]
+    if existing and not overwrite:
+        raise _exists_error(existing)
+
+
+def _exists_error(paths) -> FileExistsError:
+    names = ", ".join(repr(str(p)) for p in paths)
+    what = "File" if len(paths) == 1 else "Files"
+    return FileExistsError(
+        f"{what} {names} already exist{'s' if len(paths) == 1 else ''}; refusing to replace "
+        f"{'it' if len(paths) == 1 else 'them'}. Pass overwrite=True (command line: --overwrite) to replace, "
+        "or choose another folder."
+    )
+
+
+# ----------------------------------------------------------------------------- renderers
+_LABEL_RE = re.compile(r"^[A-Za-z0-9:._\-]+$")
+
+
+def to_latex(df, *, caption=None, label=None, digits: int = 2, provenance=None, kind=None) -> str:
+    """A booktabs LaTeX table (``\\toprule``, ``\\midrule``, ``\\bottomrule``; needs ``\\usepackage{booktabs}``).
+
+    Parameters
+    ----------
+    df : DataFrame
+        A summary table: ``TreeSummary.table()``, ``.contrasts()``, ``.fit_r2_by_depth()``,
+        ``GroupSummary.table()``, ``LinearSummary.table()``, or additive curves (pick grid
+        points first with :func:`curve_points`).
+    caption : str, optional
+        Escaped for LaTeX.
+    label : str, optional
+        ``\\label`` key: letters, digits and ``: . _ -`` only.
+    digits : int, default 2
+        Decimals for every non-integer number.
+    provenance : dict, optional
+        From :func:`provenance`: written as ``%`` comment lines above the table and a short note below it.
+    kind : {"subgroups", "contrasts", "linear", "curves", "fit_r2"}, optional
+        Detected from the columns when omitted.
+
+    Returns
+    -------
+    str
+        A ``table`` float holding the tabular and its notes.
+    """
+    lay, digits = table_layout(df, kind, digits)
+    if label is not None and not _LABEL_RE.match(str(label)):
+        raise SummaryError(f"`label` must use only letters, digits and ': . _ -' (a LaTeX \\label key); got {label!r}.")
+    lines = []
+    if provenance is not None:
+        lines += ["% " + line for line in provenance_lines(provenance, full=True)]
+    lines += [r"\begin{table}[htbp]", r"\centering"]
+    if caption is not None:
+        lines.append(r"\caption{" + escape_latex(caption) + "}")
+    if label is not None:
+        lines.append(r"\label{" + str(label) + "}")
+    lines.append(r"\begin{tabular}{" + "".join(h[2] for h in lay.headers) + "}")
+    lines += [r"\toprule", " & ".join(h[1] for h in lay.headers) + r" \\", r"\midrule"]
+    for row in lay.rows:
+        cells = [format_cell(c, digits, "tex") for c in row]
+        if cells[0].startswith("["):
+            cells[0] = "{}" + cells[0]  # a row opening with "[" would be read as the optional argument of "\\"
+        lines.append(" & ".join(cells) + r" \\")
+    lines += [r"\bottomrule", r"\end{tabular}"]
+    notes = list(lay.notes)
+    if provenance is not None:
+        notes.append(provenance_lines(provenance, full=False)[0])
+    if notes:
+        lines.append(r"\par\smallskip")
+        lines.append(r"{\footnotesize " + r" \\ ".join(_latex_note(n) for n in notes) + r"\par}")
+    lines.append(r"\end{table}")
+    return "\n".join(lines) + "\n"
+
+
+def _latex_note(note: str) -> str:
+    # Our notes use two non-ASCII signs; typeset them in math so pdflatex needs no extra packages.
+    return escape_latex(note).replace(WEAK_MARK, r"$^{\dagger}$").replace("R\u00b2", "$R^2$")
+
+
+_MD_SPECIAL = re.compile(r"([\\`*_\[\]<>|#~&$])")
+
+
+def _md_text(s: str) -> str:
+    # CommonMark lets any ASCII punctuation be backslash-escaped; these are the ones that change a table cell.
+    return _MD_SPECIAL.sub(r"\\\1", " ".join(str(s).split()))
+
+
+def _md_code(s: str) -> str:
+    """A code span (rules read like code and keep < > & literal); "|" escaped for the table parser."""
+    s = " ".join(str(s).split()).replace("|", r"\|")
+    fence = "`" * (max((len(m) for m in re.findall(r"`+", s)), default=0) + 1)
+    pad = " " if s.startswith("`") or s.endswith("`") else ""
+    return f"{fence}{pad}{s}{pad}{fence}" if s else ""
+
+
+def to_markdown(df, *, caption=None, digits: int = 2, provenance=None, kind=None) -> str:
+    """A pipe table (GitHub / pandoc Markdown) with the caption above and notes below.
+
+    Parameters are those of :func:`to_latex`; rules are written as code spans, other text backslash-escaped.
+    """
+    lay, digits = table_layout(df, kind, digits)
+    align = {"l": ":---", "r": "---:", "c": ":---:"}
+    out = []
+    if caption is not None:
+        out += [f"**{_md_text(caption)}**", ""]
+    out.append("| " + " | ".join(_md_text(h[0]) for h in lay.headers) + " |")
+    out.append("| " + " | ".join(align[h[2]] for h in lay.headers) + " |")
+    for row in lay.rows:
+        # Numbers and intervals are ours (digits, signs, brackets) and need no escaping; text from the data does.
+        cells = [_md_code(rule_to_text(c[1])) if c[0] == "rule"
+                 else _md_text(c[1]) if c[0] == "text" else format_cell(c, digits, "text") for c in row]
+        out.append("| " + " | ".join(cells) + " |")
+    notes = list(lay.notes) + ([provenance_lines(provenance, full=False)[0]] if provenance is not None else [])
+    if notes:
+        out.append("")
+        out += [f"{_md_text(n)}  " for n in notes]
+    return "\n".join(out).rstrip() + "\n"
+
+
+def to_csv(df, **to_csv_kwargs) -> str:
+    """Every column at full precision (Python's shortest round-trip float repr), no index.
+
+    ``pd.read_csv(path)`` reads the numbers back exactly (pandas >= 3; older pandas needs
+    ``float_precision="round_trip"``). CSV has no comment
+    syntax every reader accepts, so provenance lives in ``provenance.json`` beside the file.
+    """
+    if not isinstance(df, pd.DataFrame):
+        raise SummaryError(f"`df` must be a pandas DataFrame; got {type(df).__name__}.")
+    return df.to_csv(index=False, lineterminator="\n", **to_csv_kwargs)
+
+
+def to_html(df, *, caption=None, digits: int = 2, provenance=None, kind=None, css_class: str = "sw-table") -> str:
+    """An HTML ``<table class="sw-table">`` with ``<caption>``, header, body and a notes footer; all text escaped.
+
+    Parameters are those of :func:`to_latex`; ``css_class`` names the table's class.
+    """
+    lay, digits = table_layout(df, kind, digits)
+    esc = html.escape
+    align = {"l": "sw-l", "r": "sw-r", "c": "sw-c"}
+    out = [f'<table class="{esc(css_class)}">']
+    if caption is not None:
+        out.append(f"<caption>{esc(str(caption))}</caption>")
+    out.append("<thead><tr>" + "".join(f'<th scope="col" class="{align[h[2]]}">{esc(h[0])}</th>' for h in lay.headers)
+               + "</tr></thead>")
+    out.append("<tbody>")
+    for row in lay.rows:
+        tds = []
+        for c, h in zip(row, lay.headers):
+            cls = align[h[2]] + (" sw-rule" if c[0] == "rule" else "")
+            tds.append(f'<td class="{cls}">{esc(format_cell(c, digits, "text"))}</td>')
+        out.append("<tr>" + "".join(tds) + "</tr>")
+    out.append("</tbody>")
+    notes = list(lay.notes) + ([provenance_lines(provenance, full=False)[0]] if provenance is not None else [])
+    if notes:
+        out.append(f'<tfoot><tr><td colspan="{len(lay.headers)}">'
+                   + "".join(f'<p class="sw-note">{esc(n)}</p>' for n in notes) + "</td></tr></tfoot>")
+    out.append("</table>")
+    return "\n".join(out) + "\n"
+
+
+def curve_points(curves, points=None, *, n_points: int = 5) -> pd.DataFrame:
+    """Pick rows of an additive ``.curves()`` table at chosen grid values, for a paper table.
+
+    Parameters
+    ----------
+    curves : DataFrame
+        From ``AdditiveSummary.curves()``.
+    points : dict of str -> sequence, optional
+        Per covariate, the values wanted; each picks the nearest grid value (numeric) or the
+        matching category. Covariates not named are left out. Default: every covariate, with
+        ``n_points`` evenly spaced grid values for numeric ones and every category.
+    n_points : int, default 5
+        Grid values per numeric covariate when ``points`` is None.
+
+    Returns
+    -------
+    DataFrame
+        The selected rows (same columns and attrs as ``curves``).
+    """
+    table_kind(curves, "curves")
+    n_points = check_int(n_points, "n_points", low=1)
+    known = list(dict.fromkeys(curves["covariate"]))
+    if points is not None:
+        if not isinstance(points, Mapping):
+            raise SummaryError(f"`points` must be a dict of covariate -> values; got {type(points).__name__}.")
+        unknown = [c for c in points if c not in known]
+        if unknown:
+            raise SummaryError(f"`points` names covariates not in the curves: {unknown}. Available: {known}.")
+    keep = []
+    for cov in (known if points is None else list(points)):
+        sub = curves[curves["covariate"] == cov]
+        numeric = sub["kind"].iloc[0] == "numeric" if "kind" in sub.columns else pd.api.types.is_numeric_dtype(sub["x"])
+        if points is None:
+            idx = (sub.index[np.unique(np.linspace(0, len(sub) - 1, min(n_points, len(sub))).round().astype(int))]
+                   if numeric else sub.index)
+        elif numeric:
+            xs = pd.to_numeric(sub["x"]).to_numpy(dtype=float)
+            idx = list(dict.fromkeys(sub.index[int(np.argmin(np.abs(xs - float(v))))] for v in points[cov]))
+        else:
+            want = [str(v) for v in points[cov]]
+            have = [str(v) for v in sub["x"]]
+            missing = [v for v in want if v not in have]
+            if missing:
+                raise SummaryError(f"`points[{cov!r}]` names categories not on the curve: {missing}. Available: {have}.")
+            idx = [sub.index[have.index(v)] for v in want]
+        keep.extend(idx)
+    out = curves.loc[keep].reset_index(drop=True)
+    out.attrs.update(curves.attrs)
+    return out
+
+
+def write_provenance(prov: Mapping, path, *, overwrite: bool = False) -> Path:
+    """Write a provenance record as indented JSON (a folder means ``<folder>/provenance.json``)."""
+    path = Path(path)
+    if path.is_dir():
+        path = path / "provenance.json"
+    return write_atomic(path, json.dumps(jsonable(prov), indent=2) + "\n", overwrite=overwrite)
+
+
+# ----------------------------------------------------------------------------- batch export
+def _call(method, level, interval):
+    """Call a table method with the level/interval arguments its signature accepts."""
+    params = inspect.signature(method).parameters
+    kw = {k: v for k, v in (("level", level), ("interval", interval)) if k in params}
+    return method(**kw)
+
+
+def summary_tables(*, tree=None, groups=None, linear=None, additive=None, level=0.95, interval="equal-tailed",
+                   contrasts: bool = True, points=None) -> dict[str, tuple[pd.DataFrame, str]]:
+    """Name -> (table, caption) for every summary given, in report order (used by export and the report)."""
+    out: dict[str, tuple[pd.DataFrame, str]] = {}
+    if tree is not None:
+        d = getattr(tree, "current_depth", None)
+        tag = f"_depth{d}" if d is not None else ""
+        lab = getattr(tree, "label", "effect")
+        out[f"subgroups{tag}"] = (_call(tree.table, level, interval), f"Subgroups of the {lab} (tree depth {d})")
+        if hasattr(tree, "fit_r2_by_depth"):
+            out["fit_r2_by_depth"] = (_call(tree.fit_r2_by_depth, level, interval), "Summary R\u00b2 by tree depth")
+        if contrasts:
+            out[f"contrasts{tag}"] = (_call(tree.contrasts, level, interval), f"Differences between subgroups (tree depth {d})")
+    if groups is not None:
+        out["groups"] = (_call(groups.table, level, interval), f"Pre-specified groups: {getattr(groups, 'label', 'effect')}")
+        if contrasts and hasattr(groups, "contrasts"):
+            out["groups_contrasts"] = (_call(groups.contrasts, level, interval), "Differences between pre-specified groups")
+    if linear is not None:
+        out["linear"] = (_call(linear.table, level, interval), "Best linear approximation of the effects")
+    if additive is not None:
+        curves = _call(additive.curves, level, interval)
+        out["trends"] = (curve_points(curves, points), "Additive summary at selected covariate values")
+    return out
+
+
+def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None, level: float = 0.95,
+                  interval: str = "equal-tailed", contrasts: bool = True, points=None, formats=FORMATS,
+                  digits: int = 2, provenance_record=None, overwrite: bool = False) -> dict[str, Path]:
+    """Write every summary's table in each format, plus ``provenance.json``.
+
+    Parameters
+    ----------
+    out_dir : str or Path
+        Folder (created if missing).
+    tree, groups, linear, additive : summary results, optional
+        ``TreeSummary`` (exported at its current depth, with its contrasts and R² by depth),
+        ``GroupSummary``, ``LinearSummary``, ``AdditiveSummary``.
+    level, interval : float, str
+        Passed to each ``.table()`` / ``.contrasts()`` / ``.curves()`` that accepts them.
+    contrasts : bool, default True
+        Also export pairwise subgroup differences.
+    points : dict, optional
+        Grid values for the additive table (see :func:`curve_points`).
+    formats : sequence of {"tex", "md", "csv", "html"}
+    digits : int, default 2
+    provenance_record : dict, optional
+        From :func:`provenance`; built from the results and settings when omitted.
+    overwrite : bool, default False
+        Without it, nothing is written if any target file exists.
+
+    Returns
+    -------
+    dict of str -> Path
+        ``"<table>.<ext>"`` -> written path, and ``"provenance.json"``.
+    """
+    formats = tuple([formats] if isinstance(formats, str) else formats)
+    bad = [f for f in formats if f not in FORMATS]
+    if bad or not formats:
+        raise SummaryError(f"`formats` must be a non-empty subset of {list(FORMATS)}; got {list(formats)}.")
+    results = {k: v for k, v in (("tree", tree), ("groups", groups), ("linear", linear), ("additive", additive)) if v is not None}
+    if not results:
+        raise SummaryError("export_tables needs at least one of `tree`, `groups`, `linear`, `additive`.")
+    tables = summary_tables(tree=tree, groups=groups, linear=linear, additive=additive, level=level,
+                            interval=interval, contrasts=contrasts, points=points)
+    prov = provenance_record if provenance_record is not None else provenance(
+        results, settings={"level": level, "interval": interval, "digits": digits})
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    files: dict[str, str] = {}
+    for name, (df, caption) in tables.items():
+        for fmt in formats:
+            if fmt == "tex":
+                text = to_latex(df, caption=caption, label=f"tab:{name}", digits=digits, provenance=prov)
+            elif fmt == "md":
+                text = to_markdown(df, caption=caption, digits=digits, provenance=prov)
+            elif fmt == "html":
+                text = to_html(df, caption=caption, digits=digits, provenance=prov)
+            else:
+                text = to_csv(df)
+            files[f"{name}.{fmt}"] = text
+    files["provenance.json"] = json.dumps(jsonable(prov), indent=2) + "\n"
+    refuse_existing([out_dir / f for f in files], overwrite=overwrite)  # all first: a refused export writes nothing
+    return {f: write_atomic(out_dir / f, text, overwrite=overwrite) for f, text in files.items()}
