@@ -1,0 +1,370 @@
+"""Additive summary: smooth trends in each covariate, with posterior bands.
+
+A penalized additive model (pygam's ``LinearGAM``) is fitted once to the weighted
+posterior mean, its smoothing chosen by pygam's grid search (GCV, its default
+criterion for a Gaussian model of unknown scale) unless given. Its model matrix
+and penalty are then frozen and the linear smoother is applied to every draw in
+one pass (METHOD.md sections 2 and 4): with the smoothing fixed this is exactly
+what refitting the same model to each draw would give. Weights: see
+:mod:`summarize_widgets.linear` (fixed weights ``wbar_i``, pseudo-values
+``Y_si = w_si T_si / wbar_i``; per-draw weights enter the numerator only).
+"""
+from __future__ import annotations
+
+import contextlib
+import functools
+import io
+import operator
+import warnings
+from numbers import Real
+
+import numpy as np
+import pandas as pd
+
+from ._design import ColumnSpec, category_codes, classify_columns, numeric_values
+from ._validate import SummaryError, check_columns, check_int
+from .intervals import interval as credible_interval
+from .intervals import simultaneous_band, summarize_draws
+from .linear import FrozenProjection, check_draws, checked_r2, r2_note
+
+__all__ = ["summarize_additive", "AdditiveSummary"]
+
+# pygam adds sqrt(machine epsilon) to the diagonal of every penalty "to improve condition"
+# (pygam/pygam.py, GAM._pirls: S = sp.sparse.diags(np.ones(m) * np.sqrt(EPS))); the frozen
+# smoother adds the same ridge so it equals pygam's own fit exactly.
+_PYGAM_RIDGE = float(np.sqrt(np.finfo(np.float64).eps))
+
+
+def _check_lam(lam, columns):
+    """None, one positive number for every term, or a dict covariate -> positive number."""
+    def positive(v, name):
+        if isinstance(v, bool) or not isinstance(v, Real) or not np.isfinite(v) or v <= 0:
+            raise SummaryError(f"`{name}` must be a positive finite number; got {v!r}.")
+        return float(v)
+
+    if lam is None:
+        return None
+    if isinstance(lam, dict):
+        unknown = [k for k in lam if k not in columns]
+        if unknown:
+            raise SummaryError(f"`lam` names covariates that are not summarized: {unknown}. Summarized: {columns}.")
+        absent = [c for c in columns if c not in lam]
+        if absent:
+            raise SummaryError(f"`lam` as a dict must give a value for every covariate; missing: {absent}.")
+        return {c: positive(lam[c], f"lam[{c!r}]") for c in columns}
+    v = positive(lam, "lam")
+    return {c: v for c in columns}
+
+
+def _features(covariates: pd.DataFrame, specs: list[ColumnSpec], keep: np.ndarray):
+    """pygam's input matrix for the kept units, and how each covariate is encoded.
+
+    Numeric: filled values (missing -> the observed mean, plus a 0/1 indicator column);
+    categorical: consecutive codes over the categories present among the kept units.
+    """
+    cols, info, indicators = [], [], []
+    for spec in specs:
+        s = covariates[spec.name][keep]
+        if spec.kind == "numeric":
+            x = numeric_values(s)
+            miss = np.isnan(x)
+            obs = x[~miss]
+            if np.unique(obs).size < 2:
+                raise SummaryError(
+                    f"Covariate {spec.name!r} has fewer than two distinct observed values among the units with "
+                    "positive weight; a smooth trend needs at least two. Drop it from `columns`."
+                )
+            fill = float(obs.mean())
+            cols.append(np.where(miss, fill, x))
+            ind = None
+            if miss.any():
+                ind = len(indicators)
+                indicators.append(miss.astype(np.float64))
+            info.append({"spec": spec, "fill": fill if miss.any() else None, "indicator": ind, "observed": obs})
+        else:
+            codes = category_codes(s, spec)
+            present = np.unique(codes)
+            if present.size < 2:
+                raise SummaryError(
+                    f"Covariate {spec.name!r} has a single category among the units with positive weight; "
+                    "it cannot describe any difference. Drop it from `columns`."
+                )
+            remap = np.full(len(spec.categories), -1)
+            remap[present] = np.arange(present.size)
+            cols.append(remap[codes].astype(np.float64))
+            info.append({"spec": spec, "labels": [spec.categories[k] for k in present]})
+    n_cov = len(cols)
+    for k, item in enumerate(info):
+        if item.get("indicator") is not None:
+            item["indicator"] = n_cov + item["indicator"]
+    return np.column_stack(cols + indicators), info
+
+
+def _grid(obs: np.ndarray, grid_size: int) -> np.ndarray:
+    """``grid_size`` points from the 1st to the 99th percentile, or the unique values if fewer."""
+    uniq = np.unique(obs)
+    if uniq.size <= grid_size:
+        return uniq
+    lo, hi = np.percentile(obs, [1, 99])
+    if hi <= lo:  # heavy ties at one value: fall back to the full observed range
+        lo, hi = uniq[0], uniq[-1]
+    return np.linspace(lo, hi, grid_size)
+
+
+class AdditiveSummary:
+    """Posterior of an additive summary ``f_0 + sum_j f_j(x_j)`` of the effect.
+
+    Build it with :func:`summarize_additive`.
+
+    Attributes
+    ----------
+    columns : list of str
+    kinds : dict
+        Covariate -> "numeric" or "categorical".
+    grids : dict
+        Covariate -> grid values (numeric) or category labels (categorical).
+    coef_draws : ndarray, shape (n_draws, n_coefs)
+        Projected coefficients, in pygam's term order (intercept last).
+    lam : dict
+        Covariate -> smoothing parameter used.
+    fill : dict
+        Numeric covariate with missing values -> the value put in their place.
+    label : str
+    settings : dict
+    """
+
+    def __init__(self, coef, r2, info, C, C_missing, design, keep, bbar, lam, label, settings):
+        self.coef_draws = coef
+        self._r2 = r2
+        self.columns = [it["spec"].name for it in info]
+        self.kinds = {it["spec"].name: it["spec"].kind for it in info}
+        self.grids = {k: v[0] for k, v in C.items()}
+        self._C = {k: v[1] for k, v in C.items()}
+        self._C_missing = C_missing
+        self.fill = {it["spec"].name: it["fill"] for it in info if it.get("fill") is not None}
+        self._design = design
+        self._keep = keep
+        self._bbar = bbar
+        self.lam = lam
+        self.label = label
+        self.settings = settings
+
+    @property
+    def fit_r2(self) -> np.ndarray:
+        """Summary R^2 per draw, shape (n_draws,) (METHOD.md section 3 with the pseudo-values).
+
+        NaN for draws with no heterogeneity (``fit_r2_note`` says how many); raises
+        :class:`SummaryError` when no draw has any.
+        """
+        return checked_r2(self._r2, self._r2.size)
+
+    @property
+    def fit_r2_note(self) -> str:
+        """How many draws had no heterogeneity (their R^2 is undefined), or ""."""
+        return r2_note(self._r2)
+
+    @property
+    def overall_draws(self) -> np.ndarray:
+        """Per draw, the ``wbar``-weighted mean of the fitted values, shape (n_draws,)."""
+        return self.coef_draws @ self._bbar
+
+    def _check_covariate(self, covariate):
+        if covariate not in self._C:
+            raise SummaryError(f"`covariate` must be one of {self.columns}; got {covariate!r}.")
+
+    def curve_draws(self, covariate: str) -> np.ndarray:
+        """Per-draw curve of one covariate on the effect scale, shape (n_draws, n_grid).
+
+        At grid value ``g``: ``overall_s + f_j,s(g) - avg_i f_j,s(x_ij)`` (wbar-weighted average
+        over the units; for a numeric covariate with missing values ``f_j`` includes the
+        missing-indicator term, so the curve is the effect if every unit had ``x_j = g``
+        observed). Columns follow ``grids[covariate]``.
+        """
+        self._check_covariate(covariate)
+        return self.coef_draws @ self._C[covariate].T
+
+    def curves(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
+        """Every covariate's curve with pointwise and simultaneous bands.
+
+        Columns: ``covariate``, ``kind``, ``x`` (grid value or category label), ``mean``,
+        ``lower``, ``upper`` (pointwise credible interval at ``level``), ``lower_joint``,
+        ``upper_joint`` (simultaneous band over that covariate's grid,
+        :func:`~summarize_widgets.intervals.simultaneous_band`). ``df.attrs`` holds ``level``,
+        ``interval``, ``label``, ``kind``.
+        """
+        frames = []
+        for name in self.columns:
+            cd = self.curve_draws(name)
+            lo, hi = credible_interval(cd, level, interval)
+            jlo, jhi = simultaneous_band(cd, level)
+            x = self.grids[name]
+            frames.append(pd.DataFrame({
+                "covariate": name,
+                "kind": self.kinds[name],
+                "x": pd.Series(list(x), dtype=object),
+                "mean": cd.mean(axis=0),
+                "lower": lo,
+                "upper": hi,
+                "lower_joint": jlo,
+                "upper_joint": jhi,
+            }))
+        out = pd.concat(frames, ignore_index=True)
+        out.attrs.update({"level": float(level), "interval": interval, "label": self.label, "kind": "additive"})
+        return out
+
+    def missing_effects(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
+        """For numeric covariates with missing values: the effect if every unit's value were missing.
+
+        Same scale as :meth:`curves` (``overall_s + f_j,s(fill) + beta_j,s - avg_i(...)``).
+        Columns ``covariate``, ``mean``, ``sd``, ``lower``, ``upper``, ``prob_positive``;
+        empty when no summarized numeric covariate has missing values.
+        """
+        names = list(self._C_missing)
+        if not names:
+            return pd.DataFrame(columns=["covariate", "mean", "sd", "lower", "upper", "prob_positive"])
+        draws = self.coef_draws @ np.column_stack([self._C_missing[k] for k in names])
+        return pd.DataFrame({"covariate": names, **summarize_draws(draws, level, interval)})
+
+    def fitted_values(self, rows=None) -> np.ndarray:
+        """Smoothed draws ``B gamma_s``, shape (n_rows, n_units); NaN for units with zero weight.
+
+        Parameters
+        ----------
+        rows : None, int, slice or array of int
+            Which draws (default: all; mind the memory, n_draws x n_units).
+        """
+        coef = self.coef_draws if rows is None else np.atleast_2d(self.coef_draws[rows])
+        out = np.full((coef.shape[0], self._keep.size), np.nan)
+        out[:, self._keep] = (self._design @ coef.T).T
+        return out
+
+    def __repr__(self) -> str:
+        return f"AdditiveSummary('{self.label}': {len(self.columns)} covariates, {self.coef_draws.shape[0]} draws)"
+
+
+def _pygam_model(X, info, n_splines, lam):
+    from pygam import LinearGAM, f, l, s
+
+    terms = []
+    for j, item in enumerate(info):
+        lj = 0.6 if lam is None else lam[item["spec"].name]  # 0.6: pygam's default, replaced by the search
+        if item["spec"].kind == "numeric":
+            terms.append(s(j, n_splines=n_splines, lam=lj))
+        else:
+            terms.append(f(j, lam=lj))
+    for item in info:
+        if item.get("indicator") is not None:
+            # Missing-indicator method: an unpenalized shift for units whose value is missing.
+            terms.append(l(item["indicator"], penalties=None))
+    return LinearGAM(functools.reduce(operator.add, terms))
+
+
+def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_size: int = 50,
+                       progress=None) -> AdditiveSummary:
+    """Fit an additive model to the posterior mean and apply its frozen smoother to every draw.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+    columns : list of str, optional
+        Covariates (default: all). Numeric ones get a penalized cubic spline ``s()``
+        (missing values: filled with the observed mean, plus an unpenalized linear term on a
+        missing indicator); categorical ones a factor term ``f()`` (one level per category).
+    n_splines : int, default 10
+        Basis functions per numeric covariate (4 to 100).
+    lam : None, float or dict, optional
+        Smoothing. None (default): pygam's ``gridsearch`` over its default grid
+        (``logspace(-3, 3, 11)``, one value shared by all terms) minimizing GCV. A number
+        applies to every term; a dict gives one per covariate.
+    grid_size : int, default 50
+        Points per numeric curve, between the 1st and 99th percentile of the observed
+        values (all unique values when there are at most ``grid_size``). Categorical
+        curves have one point per category.
+    progress : callable(done, total), optional
+        Called after each block of the single pass over the draws.
+
+    Returns
+    -------
+    AdditiveSummary
+
+    Notes
+    -----
+    Units with zero posterior-mean weight are left out. The frozen smoother uses pygam's
+    model matrix and penalty (lam times each term's penalty, plus pygam's
+    ``sqrt(eps)`` ridge), so per draw it equals ``LinearGAM(...).fit`` with the same terms
+    and lam. pygam casts fit weights to float32; the frozen smoother keeps the float64
+    weights (the two agree exactly when the weights are float32 numbers, e.g. no weights).
+    """
+    keep = check_draws(draws)
+    cols = check_columns(columns, list(draws.covariates.columns))
+    n_splines = check_int(n_splines, "n_splines", low=4, high=100)
+    grid_size = check_int(grid_size, "grid_size", low=2, high=10_000)
+    lam = _check_lam(lam, cols)
+    specs = classify_columns(draws.covariates, cols)
+    X, info = _features(draws.covariates, specs, keep)
+    wk = draws.mean_weights[keep]
+    target = draws.posterior_mean[keep]
+
+    gam = _pygam_model(X, info, n_splines, lam)
+    # pygam prints "did not converge" and divides by zero on a constant target (no heterogeneity);
+    # that case is reported by fit_r2, and the frozen smoother below never relies on pygam's iterations.
+    with warnings.catch_warnings(), contextlib.redirect_stdout(io.StringIO()):
+        warnings.simplefilter("ignore", RuntimeWarning)
+        if lam is None:
+            gam.gridsearch(X, target, weights=wk, progress=False)
+            source = "GCV grid search (pygam default grid, one lam for all terms)"
+        else:
+            gam.fit(X, target, weights=wk)  # compiles the terms (knots) for the given lam
+            source = "given"
+    lam_used = {it["spec"].name: float(gam.lam[j][0]) for j, it in enumerate(info)}
+    design = gam._modelmat(X).tocsr()
+    p = design.shape[1]
+    penalty = gam._P().toarray() + _PYGAM_RIDGE * np.eye(p)
+    proj = FrozenProjection(draws, design.toarray(), keep, penalty=penalty, intercept=p - 1)
+    coef, r2 = proj.run(draws, progress=progress)
+
+    bbar = np.asarray(design.T @ wk).ravel() / wk.sum()
+    C, C_missing = {}, {}
+    for j, item in enumerate(info):
+        name = item["spec"].name
+        idx = gam.terms.get_coef_indices(j)
+        if item["spec"].kind == "numeric":
+            grid = _grid(item["observed"], grid_size)
+            values = grid
+        else:
+            grid = np.arange(len(item["labels"]), dtype=np.float64)
+            values = np.array(item["labels"], dtype=object)
+        Xg = np.repeat(X[:1], grid.size, axis=0)
+        Xg[:, j] = grid
+        rows = np.tile(bbar, (grid.size, 1))
+        rows[:, idx] = gam._modelmat(Xg, term=j).toarray()
+        ind = item.get("indicator")
+        if ind is not None:
+            ind_idx = gam.terms.get_coef_indices(len(info) + sum(
+                1 for it in info[:j] if it.get("indicator") is not None))
+            rows[:, ind_idx] = 0.0
+            miss_row = bbar.copy()
+            Xm = X[:1].copy()
+            Xm[:, j] = item["fill"]
+            miss_row[idx] = gam._modelmat(Xm, term=j).toarray()[0]
+            miss_row[ind_idx] = 1.0
+            C_missing[name] = miss_row
+        C[name] = (values, rows)
+
+    settings = {
+        "kind": "additive",
+        "label": draws.label,
+        "columns": cols,
+        "n_splines": n_splines,
+        "lam": dict(lam_used),
+        "lam_source": source,
+        "criterion": "GCV" if lam is None else None,
+        "grid_size": grid_size,
+        "n_draws": draws.n_draws,
+        "n_units": draws.n_units,
+        "n_units_used": int(keep.sum()),
+        "weights": "posterior-mean weight per unit (per-draw weights enter the numerator only)"
+        if draws.has_draw_weights else ("per unit" if draws._weights is not None else "none"),
+        "complier_weighted": draws.is_complier_weighted,
+    }
+    return AdditiveSummary(coef, r2, info, C, C_missing, design, keep, bbar, lam_used, draws.label, settings)
