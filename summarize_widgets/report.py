@@ -1,0 +1,290 @@
+"""A self-contained HTML report: figures, tables, settings, provenance and cautions in one file.
+
+The page works offline: the plotly.js library is embedded once, inline, and a
+Content-Security-Policy forbids the page from fetching anything. Every piece of text
+from the data or the caller is HTML-escaped; plotly's figure JSON escapes ``<``, ``>``
+and ``/`` itself, so a label cannot close a script element.
+"""
+from __future__ import annotations
+
+import html
+import json
+import re
+from collections.abc import Mapping
+from pathlib import Path
+
+from ._provenance import jsonable, provenance as make_provenance, provenance_lines
+from ._validate import SummaryError, check_interval, check_level
+from .export import refuse_existing, summary_tables, to_html, write_atomic
+
+__all__ = ["write_report", "render_report", "default_figures", "CAUTIONS"]
+
+#: The cautions every report carries (also in DEVELOPERS.md and the README).
+CAUTIONS = (
+    "These summaries describe the posterior of a model's unit-level effects. They inherit every "
+    "assumption of that model and add none of their own evidence.",
+    "Subgroups and trends found by looking at the posterior are exploratory, unless they were "
+    "specified before the data were seen.",
+    "A covariate along which the effect varies is a moderator, not a mechanism: the summaries show "
+    "where effects differ, not why.",
+    "Decisions about particular people or households should follow the analysis standards of your "
+    "field, not these summaries alone.",
+)
+
+# Nothing may be fetched: scripts and styles are inline; plotly draws data: and blob: images.
+_CSP = ("default-src 'none'; script-src 'unsafe-inline' 'unsafe-eval'; style-src 'unsafe-inline'; "
+        "img-src data: blob:; font-src data:")
+
+_CSS = """
+:root { --ink:#2B2D33; --muted:#6B6E75; --paper:#F6F4EF; --card:#FFFFFF; --rule:#D9D5CC;
+        --accent:#2E5F8A; --warm:#E39A2D; --font:"Helvetica Neue",Helvetica,Arial,"Liberation Sans",sans-serif; }
+* { box-sizing:border-box; }
+body { margin:0; background:var(--paper); color:var(--ink); font:15px/1.55 var(--font); }
+.sw-page { max-width:1120px; margin:0 auto; padding:0 24px 48px; }
+.sw-head { border-bottom:3px solid var(--accent); padding:28px 0 16px; margin-bottom:20px; }
+.sw-head h1 { margin:0 0 4px; font-size:26px; letter-spacing:.2px; }
+.sw-head .sw-sub { color:var(--muted); margin:0 0 12px; }
+.sw-prov { display:grid; grid-template-columns:max-content 1fr; gap:2px 14px; font-size:13px; margin:0; }
+.sw-prov dt { color:var(--muted); }
+.sw-prov dd { margin:0; overflow-wrap:anywhere; }
+.sw-prov code, .sw-mono { font-family:"DejaVu Sans Mono",Menlo,Consolas,monospace; font-size:12px; }
+.sw-nav { display:flex; flex-wrap:wrap; gap:6px 18px; margin:0 0 20px; font-size:14px; }
+.sw-nav a { color:var(--accent); text-decoration:none; border-bottom:1px dotted var(--accent); }
+.sw-cautions { background:#FFF8EC; border-left:5px solid var(--warm); padding:12px 18px; margin:0 0 24px; }
+.sw-cautions h2 { font-size:16px; margin:0 0 6px; }
+.sw-cautions ul { margin:0; padding-left:20px; }
+.sw-section { background:var(--card); border:1px solid var(--rule); border-radius:6px; padding:18px 22px; margin:0 0 22px; }
+.sw-section h2 { margin:0 0 12px; font-size:20px; color:var(--accent); }
+.sw-section h3 { margin:18px 0 8px; font-size:16px; }
+.sw-figure { margin:8px 0 14px; min-height:320px; }
+.sw-table { border-collapse:collapse; margin:6px 0 12px; font-size:14px; font-variant-numeric:tabular-nums; }
+.sw-table caption { caption-side:top; text-align:left; font-weight:600; padding:0 0 6px; }
+.sw-table thead tr { border-top:2px solid var(--ink); border-bottom:1px solid var(--ink); }
+.sw-table tbody tr:last-child { border-bottom:2px solid var(--ink); }
+.sw-table th, .sw-table td { padding:4px 10px; vertical-align:top; }
+.sw-table th { font-weight:600; }
+.sw-table tbody tr:nth-child(even) { background:#FAF9F6; }
+.sw-table .sw-r { text-align:right; } .sw-table .sw-c { text-align:center; white-space:nowrap; }
+.sw-table .sw-l { text-align:left; }
+.sw-table .sw-rule { max-width:520px; }
+.sw-table tfoot td { padding-top:6px; }
+.sw-note { margin:2px 0; font-size:12px; color:var(--muted); }
+.sw-scroll { overflow-x:auto; }
+details summary { cursor:pointer; color:var(--accent); }
+pre.sw-json { background:#F1EFEA; padding:10px 12px; overflow-x:auto; font-size:12px; }
+.sw-foot { color:var(--muted); font-size:12px; margin-top:24px; }
+"""
+
+
+def default_figures(*, tree=None, groups=None, additive=None, linear=None, level: float = 0.95,
+                    interval: str = "equal-tailed") -> dict[str, list]:
+    """The report's standard figures, by section: ``{"tree": [(title, figure), ...], ...}``.
+
+    Uses :mod:`summarize_widgets.figures` (imported here so the table exporters work without plotly).
+    """
+    from . import figures as F
+
+    out: dict[str, list] = {}
+    if tree is not None:
+        out["tree"] = [("Subgroup effects", F.plot_subgroups(tree, level=level, interval=interval)),
+                       ("Summary R\u00b2 by depth", F.plot_fit_by_depth(tree, level=level, interval=interval))]
+        table = tree.table(level=level, interval=interval)
+        if len(table) > 1:  # contrasts of the subgroup with the largest posterior mean against the others
+            top = table["subgroup"].iloc[int(table["mean"].to_numpy().argmax())]
+            out["tree"].append(("Differences from the subgroup with the largest effect",
+                                F.plot_contrasts(tree, top, level=level, interval=interval)))
+    if groups is not None:
+        out["groups"] = [("Pre-specified group effects", F.plot_subgroups(groups, level=level, interval=interval))]
+    if additive is not None:
+        out["additive"] = [("Trends along each covariate", F.plot_trends(additive, level=level))]
+    if linear is not None:
+        out["linear"] = [("Linear summary coefficients", F.plot_coefficients(linear, level=level))]
+    return out
+
+
+def _plotly_js() -> str:
+    import plotly.offline
+
+    js = plotly.offline.get_plotlyjs()
+    if re.search(r"</script", js, re.IGNORECASE):  # would end the inline script early
+        raise SummaryError("The installed plotly.js contains '</script' and cannot be inlined safely.")
+    return js
+
+
+def _figure_html(fig, div_id: str) -> str:
+    import plotly.io as pio
+
+    if not hasattr(fig, "to_plotly_json"):
+        raise SummaryError(f"`figures` must hold plotly figures; got {type(fig).__name__}.")
+    # include_plotlyjs=False: the library is inlined once in <head>, not once per figure.
+    return pio.to_html(fig, full_html=False, include_plotlyjs=False, div_id=div_id, default_width="100%",
+                       default_height="460px", config={"displaylogo": False, "responsive": True})
+
+
+def _normalize_figures(figures, tree, groups, additive, linear, level, interval) -> dict[str, list]:
+    if figures is None:
+        return {}
+    if isinstance(figures, str):
+        if figures != "auto":
+            raise SummaryError(f"`figures` must be 'auto', None, or a dict of title -> plotly figure; got {figures!r}.")
+        return default_figures(tree=tree, groups=groups, additive=additive, linear=linear, level=level, interval=interval)
+    if isinstance(figures, Mapping):
+        return {"extra": list(figures.items())}
+    raise SummaryError(f"`figures` must be 'auto', None, or a dict of title -> plotly figure; got {type(figures).__name__}.")
+
+
+def _prov_header(prov: Mapping) -> str:
+    esc = html.escape
+    rows = [("Made with", f"{prov['package'].get('name')} {prov['package'].get('version')}", None),
+            ("Created (UTC)", str(prov.get("created_utc", "?")), None)]
+    for d in prov.get("inputs", []):
+        rows.append((f"Input: {d.get('role')}", str(d.get("name")), d.get("sha256") or d.get("sha256_of_row_hashes")))
+    if "draws" in prov:
+        d = prov["draws"]
+        rows.append(("Draws", f"{d.get('n_draws')} draws \u00d7 {d.get('n_units')} units, {d.get('n_chains')} chain(s), "
+                     f"{d.get('dtype')}", d.get("sha256")))
+    cells = []
+    for key, text, digest in rows:
+        sha = f" \u2014 SHA-256 <code>{esc(str(digest))}</code>" if digest else ""
+        cells.append(f"<dt>{esc(key)}</dt><dd>{esc(text)}{sha}</dd>")
+    return '<dl class="sw-prov">' + "".join(cells) + "</dl>"
+
+
+def _section_of(table_name: str) -> str:
+    """Which report section a table from :func:`summary_tables` belongs to."""
+    for prefix, section in (("subgroups", "tree"), ("fit_r2", "tree"), ("contrasts", "tree"), ("groups", "groups"),
+                            ("linear", "linear"), ("trends", "additive")):
+        if table_name.startswith(prefix):
+            return section
+    return "extra"
+
+
+def _setting_text(value) -> str:
+    """A setting for reading: lists joined by commas, dicts as "key: value" pairs, None as "default"."""
+    if value is None:
+        return "default"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_setting_text(v) for v in value)
+    if isinstance(value, Mapping):
+        return "; ".join(f"{k}: {_setting_text(v)}" for k, v in value.items())
+    return str(value)
+
+
+def _settings_html(prov: Mapping) -> str:
+    esc = html.escape
+    blocks = [(f"Summary: {name}", s) for name, s in prov.get("summaries", {}).items()]
+    if prov.get("settings"):
+        blocks.append(("Export settings", prov["settings"]))
+    parts = []
+    for heading, s in blocks:
+        items = "".join(f"<dt>{esc(str(k))}</dt><dd>{esc(_setting_text(v))}</dd>" for k, v in s.items())
+        parts.append(f'<h3>{esc(heading)}</h3><dl class="sw-prov">{items}</dl>')
+    full = esc(json.dumps(jsonable(prov), indent=2, ensure_ascii=False))
+    parts.append(f'<details><summary>Full provenance record (JSON)</summary><pre class="sw-json">{full}</pre></details>')
+    return "".join(parts)
+
+
+_SECTIONS = (("tree", "Subgroups from the summary tree"), ("groups", "Pre-specified groups"),
+             ("additive", "Trends (additive summary)"), ("linear", "Linear summary"), ("extra", "Figures"))
+
+
+def render_report(*, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
+                  level: float = 0.95, interval: str = "equal-tailed", digits: int = 2, points=None,
+                  title: str = "Posterior summary report") -> str:
+    """The report page as a string (see :func:`write_report` for the parameters)."""
+    level = check_level(level)
+    interval = check_interval(interval)
+    results = {k: v for k, v in (("tree", tree), ("groups", groups), ("additive", additive), ("linear", linear))
+               if v is not None}
+    if not results and not (isinstance(figures, Mapping) and figures):
+        raise SummaryError("A report needs at least one of `tree`, `groups`, `additive`, `linear` or a dict of `figures`.")
+    prov = provenance if provenance is not None else make_provenance(
+        results, settings={"level": level, "interval": interval, "digits": digits})
+    provenance_lines(prov)  # validates the record's shape
+    tables = summary_tables(tree=tree, groups=groups, linear=linear, additive=additive, level=level,
+                            interval=interval, points=points)
+    figs = _normalize_figures(figures, tree, groups, additive, linear, level, interval)
+    esc = html.escape
+    body, nav, fig_no = [], [], 0
+    for key, heading in _SECTIONS:
+        sec_tables = [(n, t) for n, t in tables.items() if _section_of(n) == key]
+        sec_figs = figs.get(key, [])
+        if not sec_tables and not sec_figs:
+            continue
+        nav.append(f'<a href="#sw-{key}">{esc(heading)}</a>')
+        parts = [f'<section class="sw-section" id="sw-{key}"><h2>{esc(heading)}</h2>']
+        for fig_title, fig in sec_figs:
+            fig_no += 1
+            parts.append(f"<h3>{esc(str(fig_title))}</h3>"
+                         f'<div class="sw-figure">{_figure_html(fig, f"sw-figure-{fig_no}")}</div>')
+        for name, (df, caption) in sec_tables:
+            table = '<div class="sw-scroll">' + to_html(df, caption=caption, digits=digits) + "</div>"
+            if "contrasts" in name:  # every pair of subgroups: long, so folded
+                table = f"<details><summary>{esc(caption)} ({len(df)} pairs)</summary>{table}</details>"
+            parts.append(table)
+        parts.append("</section>")
+        body.append("".join(parts))
+    nav.append('<a href="#sw-settings">Settings and provenance</a>')
+    body.append(f'<section class="sw-section" id="sw-settings"><h2>Settings and provenance</h2>{_settings_html(prov)}</section>')
+    label = next((getattr(r, "label", None) for r in results.values() if getattr(r, "label", None)), None)
+    subtitle = f"Posterior summaries of the {label}" if label else "Posterior summaries"
+    cautions = "".join(f"<li>{esc(c)}</li>" for c in CAUTIONS)
+    scripts = f"<script>{_plotly_js()}</script>" if fig_no else ""
+    return (
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+        f'<meta http-equiv="Content-Security-Policy" content="{esc(_CSP)}">\n'
+        '<meta name="viewport" content="width=device-width, initial-scale=1">\n'
+        f"<title>{esc(title)}</title>\n<style>{_CSS}</style>\n{scripts}\n</head>\n<body>\n"
+        f'<div class="sw-page">\n<header class="sw-head"><h1>{esc(title)}</h1><p class="sw-sub">{esc(subtitle)}</p>'
+        f"{_prov_header(prov)}</header>\n"
+        f'<nav class="sw-nav">{"".join(nav)}</nav>\n'
+        f'<aside class="sw-cautions" id="sw-cautions"><h2>Cautions</h2><ul>{cautions}</ul></aside>\n'
+        + "\n".join(body)
+        + f'\n<footer class="sw-foot">{esc(provenance_lines(prov, full=False)[0])}</footer>\n</div>\n</body>\n</html>\n'
+    )
+
+
+def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
+                 level: float = 0.95, interval: str = "equal-tailed", digits: int = 2, points=None,
+                 title: str = "Posterior summary report", filename: str = "report.html",
+                 overwrite: bool = False) -> Path:
+    """Write a self-contained ``report.html`` that opens offline in any browser.
+
+    Parameters
+    ----------
+    out_dir : str or Path
+        Folder (created if missing).
+    tree, groups, additive, linear : summary results, optional
+        ``TreeSummary`` (at its current depth), ``GroupSummary``, ``AdditiveSummary``, ``LinearSummary``.
+    figures : "auto", None or dict of str -> plotly Figure, default "auto"
+        "auto" draws the standard figures with :mod:`summarize_widgets.figures`; a dict adds
+        your own figures (title -> figure) in a "Figures" section; None leaves figures out.
+    provenance : dict, optional
+        From :func:`summarize_widgets.export.provenance` (pass the one written beside the
+        tables so both agree); built from the results when omitted.
+    level, interval : float, str
+        Credible level and interval kind of every table and figure.
+    digits : int, default 2
+        Decimals in the tables.
+    points : dict, optional
+        Grid values of the additive table (see :func:`summarize_widgets.export.curve_points`).
+    title : str
+    filename : str, default "report.html"
+    overwrite : bool, default False
+        Replace an existing report; without it an existing file is refused (FileExistsError).
+
+    Returns
+    -------
+    Path
+        The written report.
+    """
+    out_dir = Path(out_dir)
+    target = out_dir / filename
+    refuse_existing([target], overwrite=overwrite)  # before the (slow) rendering
+    page = render_report(tree=tree, groups=groups, additive=additive, linear=linear, figures=figures,
+                         provenance=provenance, level=level, interval=interval, digits=digits, points=points,
+                         title=title)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    return write_atomic(target, page, overwrite=overwrite)
