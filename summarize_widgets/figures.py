@@ -947,8 +947,9 @@ def save_figures(items, *, overwrite: bool = False, width: int | None = None, he
 
 def _job(fig: go.Figure, fmt: str, width, height, scale) -> tuple[dict, dict]:
     layout = fig.layout
+    # Vector files keep the layout size: a scale there would only enlarge the page, not add detail.
     opts = dict(format=fmt, width=width or layout.width or 900, height=height or layout.height or 500,
-                scale=scale)
+                scale=scale if fmt == "png" else 1)
     return fig.to_dict(), opts
 
 
@@ -968,7 +969,8 @@ def save_figure(fig: go.Figure, path, *, format: str | None = None, overwrite: b
     width, height : int, optional
         Size in layout pixels; default the figure's own size, else 900 x 500.
     scale : float, default 1.0
-        Pixel multiplier for PNG (a PNG is ``width*scale`` x ``height*scale`` pixels).
+        Pixel multiplier for PNG (a PNG is ``width*scale`` x ``height*scale`` pixels; 3 gives
+        about 300 dpi at print size). SVG and PDF keep the layout size.
 
     Returns
     -------

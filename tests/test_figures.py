@@ -40,10 +40,10 @@ def _strings(obj):
             yield from _strings(v)
 
 
-def _assert_no_markup_injected(fig):
+def _assert_no_markup_injected(fig, raw=INJECT):
     texts = list(_strings(fig.to_plotly_json()))
-    assert not any("<script" in t.lower() for t in texts)
-    assert any("&lt;script&gt;" in t for t in texts)
+    assert not any(raw in t for t in texts)
+    assert any(raw.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;") in t for t in texts)
 
 
 def _trace(fig, name):
@@ -315,3 +315,345 @@ def test_plot_functions_reject_wrong_result_types(tree):
         F.plot_coefficients(tree)
     with pytest.raises(SummaryError, match="`result` must be a TreeSummary or GroupSummary; got int"):
         F.plot_contrasts(3, 1)
+
+
+# -- summary R^2 by depth --------------------------------------------------------------------
+def test_fit_by_depth_on_a_real_tree(tree):
+    t2 = tree.depth(2)
+    fig = F.plot_fit_by_depth(t2, level=0.8)
+    summary = tree.fit_r2_by_depth(level=0.8)
+    tr = _trace(fig, "summary R²")
+    np.testing.assert_allclose(tr.x, summary["depth"])
+    np.testing.assert_allclose(tr.y, summary["mean"])
+    np.testing.assert_allclose(np.array(tr.y) + tr.error_y.array, summary["upper"])
+    np.testing.assert_allclose(np.array(tr.y) - tr.error_y.arrayminus, summary["lower"])
+    # the mean is the plain average of the per-draw R^2 (numpy), the upper limit its 90% quantile
+    by_depth = tree.fit_r2_draws_by_depth()
+    assert tr.y[2] == pytest.approx(np.mean(by_depth[3]))
+    assert tr.y[0] + tr.error_y.array[0] == pytest.approx(np.quantile(by_depth[1], 0.9))
+    # the current depth (2) is drawn in the accent colour, the others in ink
+    assert list(tr.marker.line.color) == [F.INK, F.ACCENT, F.INK]
+    assert "80% credible interval" in fig.layout.yaxis.title.text
+    violins = _trace(fig, "posterior density")
+    assert sum(v is None for v in violins.x) == 3
+    assert "subgroups" in fig.layout.xaxis.ticktext[0]
+    no_violins = F.plot_fit_by_depth(t2, show_draws=False, current_depth=3)
+    assert [t.name for t in no_violins.data] == ["summary R²"]
+
+
+def test_fit_by_depth_skips_violin_of_constant_draws():
+    summary = pd.DataFrame({"depth": [1, 2], "n_subgroups": [2, 4], "mean": [0.4, 1.0],
+                            "lower": [0.3, 1.0], "upper": [0.5, 1.0]})
+    fig = F._fit_by_depth_figure(summary, {1: np.random.default_rng(0).normal(0.4, 0.05, 200), 2: np.ones(200)})
+    assert sum(v is None for v in _trace(fig, "posterior density").x) == 1
+
+
+def test_fit_by_depth_errors():
+    summary = pd.DataFrame({"depth": [1, 2], "n_subgroups": [2, 4], "mean": [0.4, 0.6],
+                            "lower": [0.3, 0.5], "upper": [0.5, 0.7]})
+    with pytest.raises(SummaryError, match=r"`current_depth` 5 is not one of the depths \[1, 2\]"):
+        F._fit_by_depth_figure(summary, current_depth=5)
+    with pytest.raises(SummaryError, match=r"`draws_by_depth` has no draws for depth\(s\) \[2\]"):
+        F._fit_by_depth_figure(summary, {1: np.zeros(3)})
+    with pytest.raises(SummaryError, match=r"`summary` lacks the column\(s\) 'n_subgroups'"):
+        F._fit_by_depth_figure(summary.drop(columns="n_subgroups"))
+
+
+# -- additive curves -------------------------------------------------------------------------
+def _curves():
+    x = np.linspace(20, 80, 30)
+    rows = [dict(covariate="age", kind="numeric", x=v, mean=-0.1 * v, lower=-0.1 * v - 1, upper=-0.1 * v + 1,
+                 lower_joint=-0.1 * v - 2, upper_joint=-0.1 * v + 2) for v in x[::-1]]
+    rows += [dict(covariate="heating", kind="categorical", x=c, mean=m, lower=m - 1, upper=m + 1,
+                  lower_joint=m - 2, upper_joint=m + 2) for c, m in [("gas", -1.0), ("heat <pump>", 2.0)]]
+    df = pd.DataFrame(rows)
+    df.attrs.update(level=0.9, label="Change in winter bill")
+    return df
+
+
+def test_trends_numeric_bands_and_categorical_points():
+    df = _curves()
+    fig = F._trends_figure(df)
+    num = df[df.covariate == "age"].sort_values("x")
+    fills = [t for t in fig.data if t.fill == "tonexty"]
+    assert [t.fillcolor for t in fills] == [F._JOINT_FILL, F._POINTWISE_FILL]  # lighter band drawn first
+    np.testing.assert_allclose(fills[0].y, num["upper_joint"])
+    np.testing.assert_allclose(fills[1].y, num["upper"])
+    mean_lines = [t for t in fig.data if t.name == "posterior mean" and t.mode == "lines" and t.x[0] is not None]
+    np.testing.assert_allclose(mean_lines[0].x, num["x"].astype(float))  # sorted by x although the table was not
+    np.testing.assert_allclose(mean_lines[0].y, num["mean"])
+    cat = [t for t in fig.data if t.name == "posterior mean" and t.mode == "markers"][0]
+    assert list(cat.x) == ["gas", "heat &lt;pump&gt;"]
+    np.testing.assert_allclose(np.array(cat.y), [-1.0, 2.0])
+    whiskers = [t for t in fig.data if t.error_y is not None and t.error_y.array is not None]
+    assert sorted(float(w.error_y.array[1]) for w in whiskers) == [1.0, 2.0]  # pointwise and simultaneous
+    assert fig.layout.xaxis2.type == "category"
+    legend = [t.name for t in fig.data if t.showlegend is not False]
+    assert legend == ["posterior mean", "pointwise 90%", "simultaneous 90%"]
+    assert [a.text for a in fig.layout.annotations] == ["age", "heating"]
+    assert fig.layout.yaxis.title.text == "Change in winter bill"
+
+
+def test_trends_one_covariate_and_escaping():
+    df = _curves()
+    df.loc[df.covariate == "age", "covariate"] = INJECT
+    fig = F._trends_figure(df, covariate=INJECT)
+    assert fig.layout.xaxis.title.text == "&lt;script&gt;alert(1)&lt;/script&gt;"
+    _assert_no_markup_injected(fig)
+    _assert_no_markup_injected(F._trends_figure(df, n_cols=1))
+
+
+@pytest.mark.parametrize("kwargs, match", [
+    (dict(covariate="income"), r"`covariate` names 'income'; available: 'age', 'heating'"),
+    (dict(covariate=[]), r"`covariate` names nothing"),
+    (dict(n_cols=0), r"`n_cols` must be an integer >= 1; got 0"),
+])
+def test_trends_errors(kwargs, match):
+    with pytest.raises(SummaryError, match=match):
+        F._trends_figure(_curves(), **kwargs)
+
+
+def test_trends_rejects_unknown_kind():
+    df = _curves()
+    df.loc[df.covariate == "heating", "kind"] = "ordinal"
+    with pytest.raises(SummaryError, match=r"column 'kind' for covariate 'heating' must be one of"):
+        F._trends_figure(df)
+
+
+def test_plot_trends_on_a_real_additive_summary(draws):
+    from summarize_widgets.additive import summarize_additive
+
+    add = summarize_additive(draws, columns=["age", "heating"])
+    curves = add.curves(level=0.9)
+    fig = F.plot_trends(add, level=0.9)
+    num = curves[curves.covariate == "age"].assign(x=lambda d: d.x.astype(float)).sort_values("x")
+    line = [t for t in fig.data if t.name == "posterior mean" and t.mode == "lines" and t.x[0] is not None][0]
+    np.testing.assert_allclose(line.y, num["mean"])
+    assert [a.text for a in fig.layout.annotations] == ["age", "heating"]
+    _assert_no_markup_injected(F.plot_trends(add, covariate="heating"), raw="heat <pump>")
+
+
+# -- linear coefficients ---------------------------------------------------------------------
+def _coefs():
+    df = pd.DataFrame({"term": ["(intercept)", "age", INJECT, "heating = oil"], "mean": [3.0, -0.05, 0.4, 1.5],
+                       "sd": [0.2, 0.01, 0.05, 0.3], "lower": [2.6, -0.07, 0.3, 0.9], "upper": [3.4, -0.03, 0.5, 2.1],
+                       "prob_positive": [1.0, 0.0, 1.0, 1.0]})
+    df.attrs.update(level=0.95, interval="equal-tailed", reference={"heating": "gas"})
+    return df
+
+
+def test_coefficients_order_intercept_and_reference():
+    df = _coefs()
+    fig = F._coefficients_figure(df)
+    tr = _trace(fig, "coefficients")
+    np.testing.assert_allclose(tr.x, [1.5, 0.4, -0.05])  # first slope on top (largest y)
+    np.testing.assert_allclose(np.array(tr.x) + tr.error_x.array, [2.1, 0.5, -0.03])
+    assert "compared with heating = gas" in fig.layout.xaxis.title.text
+    _assert_no_markup_injected(fig)
+    with_icpt = _trace(F._coefficients_figure(df, intercept=True), "coefficients")
+    np.testing.assert_allclose(with_icpt.x, [1.5, 0.4, -0.05, 3.0])
+    with pytest.raises(SummaryError, match="`table` holds only the intercept; pass `intercept=True`"):
+        F._coefficients_figure(df.iloc[:1])
+
+
+def test_plot_coefficients_on_a_real_linear_summary(draws):
+    from summarize_widgets.linear import summarize_linear
+
+    lin = summarize_linear(draws, columns=["age", INJECT])
+    tab = lin.table(level=0.9)
+    fig = F.plot_coefficients(lin, level=0.9)
+    tr = _trace(fig, "coefficients")
+    slopes = tab[tab.term != "(intercept)"]
+    np.testing.assert_allclose(tr.x, slopes["mean"].to_numpy()[::-1])
+    np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, slopes["lower"].to_numpy()[::-1])
+    assert len(_trace(F.plot_coefficients(lin, intercept=True), "coefficients").x) == len(tab)
+    _assert_no_markup_injected(fig)
+
+
+# -- contrasts -------------------------------------------------------------------------------
+def test_contrasts_orient_subgroup_as_a_whichever_column_it_is_in():
+    df = pd.DataFrame({"subgroup_a": [1, 1, 2], "subgroup_b": [2, 3, 3], "rule_a": ["r1", "r1", "r2"],
+                       "rule_b": ["r2", "r3 " + INJECT, "r3 " + INJECT], "difference": [0.5, -1.0, 2.0],
+                       "lower": [0.1, -1.5, 1.0], "upper": [0.9, -0.4, 3.0], "prob_a_greater": [0.99, 0.01, 1.0]})
+    df.attrs.update(level=0.95, interval="equal-tailed")
+    fig = F._contrasts_figure(df, 2)
+    tr = _trace(fig, "contrasts")
+    # 2 vs 1 is the flip of (1, 2): -0.5 in [-0.9, -0.1], P = 0.01; 2 vs 3 as stored; sorted by difference
+    np.testing.assert_allclose(tr.x, [-0.5, 2.0])
+    np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, [-0.9, 1.0])
+    np.testing.assert_allclose(np.array(tr.x) + tr.error_x.array, [-0.1, 3.0])
+    np.testing.assert_allclose(tr.customdata[:, 3].astype(float), [0.01, 1.0])
+    assert "P(A &gt; B)" not in tr.hovertemplate and "P(A > B)" in tr.hovertemplate
+    assert fig.layout.yaxis.ticktext[0] == "r1" and "r2" in fig.layout.title.text
+    _assert_no_markup_injected(fig)
+    with pytest.raises(SummaryError, match=r"`subgroup` 9 is not one of the subgroups in the contrasts: \[1, 2, 3\]"):
+        F._contrasts_figure(df, 9)
+
+
+def test_plot_contrasts_on_a_real_tree_against_numpy(tree):
+    t2 = tree.depth(2)
+    ids = [int(i) for i in t2.leaf_ids]
+    a = ids[1]
+    fig = F.plot_contrasts(t2, np.int64(a), level=0.9)
+    tr = _trace(fig, "contrasts")
+    # Reference: differences of the leaf draws and their 5% / 95% quantiles, computed with numpy.
+    theta = t2.leaf_draws
+    want = []
+    for b in ids:
+        if b != a:
+            d = theta[:, ids.index(a)] - theta[:, ids.index(b)]
+            want.append((d.mean(), np.quantile(d, 0.05), np.quantile(d, 0.95), (d > 0).mean()))
+    want = np.array(sorted(want))
+    np.testing.assert_allclose(tr.x, want[:, 0])
+    np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, want[:, 1])
+    np.testing.assert_allclose(np.array(tr.x) + tr.error_x.array, want[:, 2])
+    np.testing.assert_allclose(tr.customdata[:, 3].astype(float), want[:, 3])
+    _assert_no_markup_injected(fig)
+
+
+def test_plot_contrasts_on_groups(draws):
+    groups = summarize_groups(draws, {"older": "age >= 60", "younger": "age < 60"})
+    fig = F.plot_contrasts(groups, "older")
+    assert len(_trace(fig, "contrasts").x) == 2  # against "All units" and "younger"
+
+
+def test_public_names_resolve():
+    for name in F.__all__:
+        assert getattr(F, name) is not None
+
+
+# -- static export ---------------------------------------------------------------------------
+def _have_browser():
+    try:
+        F.find_browser()
+        return True
+    except F.BrowserNotFoundError:
+        return False
+
+
+# Like the browser suite: skipped locally without chromium, never skipped in CI (CI=true).
+needs_browser = pytest.mark.skipif(not _have_browser() and os.environ.get("CI") != "true",
+                                   reason="static export needs chromium (apt-get install chromium)")
+
+
+@pytest.fixture(scope="module")
+def small_fig():
+    df, draws_ = _subgroup_table()
+    return F._subgroups_figure(df, highlight=7, draws=draws_, title="Subgroups")
+
+
+def _png_size(data: bytes):
+    # PNG spec (ISO/IEC 15948): 8-byte signature, then the IHDR chunk: length, b"IHDR", width, height (big-endian).
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    assert data[12:16] == b"IHDR"
+    return struct.unpack(">II", data[16:24])
+
+
+@needs_browser
+def test_save_figures_writes_valid_svg_pdf_png(tmp_path, small_fig):
+    paths = F.save_figures({tmp_path / "fig.svg": small_fig, tmp_path / "fig.pdf": small_fig,
+                            tmp_path / "fig.png": small_fig}, width=640, height=400, scale=2)
+    assert [p.name for p in paths] == ["fig.svg", "fig.pdf", "fig.png"]
+    svg = (tmp_path / "fig.svg").read_bytes()
+    root = ET.fromstring(svg)
+    assert root.tag.endswith("svg") and root.get("width") == "640" and root.get("height") == "400"
+    # the injected rule stays text: no script element, the literal text is in a text node
+    assert not any(el.tag.endswith("script") for el in root.iter())
+    assert any(INJECT in t for t in root.itertext())
+    pdf = (tmp_path / "fig.pdf").read_bytes()
+    assert pdf.startswith(b"%PDF-") and b"%%EOF" in pdf[-64:]
+    png = (tmp_path / "fig.png").read_bytes()
+    assert _png_size(png) == (1280, 800)
+    for data in (svg, pdf, png):
+        assert len(data) > 5_000
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["fig.pdf", "fig.png", "fig.svg"]  # no temp files left
+    assert (os.stat(tmp_path / "fig.png").st_mode & 0o777) == 0o666 & ~F._umask()
+
+
+@needs_browser
+def test_save_figure_refuses_existing_file_and_overwrites_when_asked(tmp_path, small_fig):
+    target = tmp_path / "subgroups.png"
+    target.write_bytes(b"keep me")
+    with pytest.raises(FileExistsError, match=r"subgroups\.png' already exists; pass overwrite=True"):
+        F.save_figure(small_fig, target)
+    assert target.read_bytes() == b"keep me"
+    out = F.save_figure(small_fig, str(target), overwrite=True, width=500, height=300)
+    assert out == target and _png_size(target.read_bytes()) == (500, 300)
+    assert [p.name for p in tmp_path.iterdir()] == ["subgroups.png"]
+
+
+@needs_browser
+def test_save_figure_uses_the_figures_own_height_and_format_argument(tmp_path, small_fig):
+    out = F.save_figure(small_fig, tmp_path / "plot", format="svg")
+    root = ET.fromstring(out.read_bytes())
+    assert root.get("height") == str(small_fig.layout.height) and root.get("width") == "900"
+
+
+def test_write_atomic_never_clobbers_a_file_created_meanwhile(tmp_path):
+    # The existence check happens before rendering; a file appearing after it must still survive.
+    target = tmp_path / "a.svg"
+    target.write_bytes(b"first")
+    with pytest.raises(FileExistsError, match=r"a\.svg' already exists"):
+        F._write_atomic(target, b"second", overwrite=False)
+    assert target.read_bytes() == b"first" and [p.name for p in tmp_path.iterdir()] == ["a.svg"]
+    F._write_atomic(target, b"second", overwrite=True)
+    assert target.read_bytes() == b"second"
+
+
+@pytest.mark.parametrize("name, kwargs, match", [
+    ("fig.jpg", {}, r"`format` was not given and the file name '.*fig\.jpg' does not end in one of \.svg, \.pdf, \.png"),
+    ("fig.svg", dict(format="png"), r"`format` is 'png' but the file name '.*fig\.svg' ends in \.svg"),
+    ("fig", dict(format="eps"), r"`format` must be one of 'svg', 'pdf', 'png'; got 'eps'"),
+    ("missing/fig.svg", {}, r"The folder '.*missing' for '.*fig\.svg' does not exist"),
+    ("fig.png", dict(width=0), r"`width` must be a positive integer \(pixels\); got 0"),
+    ("fig.png", dict(height=2.5), r"`height` must be a positive integer \(pixels\); got 2.5"),
+    ("fig.png", dict(scale=-1), r"`scale` must be a positive number; got -1"),
+])
+def test_save_figure_errors(tmp_path, small_fig, name, kwargs, match):
+    with pytest.raises(SummaryError, match=match):
+        F.save_figure(small_fig, tmp_path / name, **kwargs)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_save_figure_rejects_non_figures(tmp_path, small_fig):
+    with pytest.raises(SummaryError, match="`fig` must be a plotly.graph_objects.Figure; got dict"):
+        F.save_figure({"data": []}, tmp_path / "a.svg")
+    with pytest.raises(SummaryError, match=r"`path` must be a file path \(str or os.PathLike\); got int"):
+        F.save_figure(small_fig, 3)
+
+
+def test_save_figures_checks_every_target_before_rendering(tmp_path, small_fig, monkeypatch):
+    monkeypatch.setattr(F, "_render", lambda jobs: pytest.fail("rendered although a target was refused"))
+    (tmp_path / "b.pdf").write_bytes(b"old")
+    with pytest.raises(FileExistsError, match=r"b\.pdf' already exists"):
+        F.save_figures([(small_fig, tmp_path / "a.svg"), (small_fig, tmp_path / "b.pdf")])
+    with pytest.raises(SummaryError, match=r"a\.svg' is listed twice in `items`"):
+        F.save_figures([(small_fig, tmp_path / "a.svg"), (small_fig, str(tmp_path / "a.svg"))])
+    with pytest.raises(SummaryError, match=r"`fig` for '.*c\.svg' must be a plotly.graph_objects.Figure; got str"):
+        F.save_figures({tmp_path / "c.svg": "figure"})
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["b.pdf"]
+
+
+def test_missing_browser_gives_install_hint(tmp_path, small_fig, monkeypatch):
+    monkeypatch.delenv("BROWSER_PATH", raising=False)
+    monkeypatch.setattr(F.shutil, "which", lambda name: None)
+    monkeypatch.setattr(F, "_TYPICAL_PATHS", ())
+    with pytest.raises(F.BrowserNotFoundError, match=r"No Chromium-family browser found\..*apt-get install chromium"):
+        F.find_browser()
+    with pytest.raises(F.BrowserNotFoundError, match="apt-get install chromium"):
+        F.save_figure(small_fig, tmp_path / "a.svg")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_bad_browser_path_is_named(tmp_path, monkeypatch):
+    monkeypatch.setenv("BROWSER_PATH", str(tmp_path / "no-browser"))
+    with pytest.raises(F.BrowserNotFoundError, match=r"BROWSER_PATH is set to '.*no-browser', which is not an executable"):
+        F.find_browser()
+
+
+def test_browser_path_setting_is_honoured(tmp_path, monkeypatch):
+    fake = tmp_path / "my-chromium"
+    fake.write_text("#!/bin/sh\n")
+    fake.chmod(0o755)
+    monkeypatch.setenv("BROWSER_PATH", str(fake))
+    assert F.find_browser() == str(fake)
