@@ -215,6 +215,9 @@ def _layout(df: pd.DataFrame, kind: str) -> _Layout:
             rows.append([("text", r.term), ("num", r.mean), ("interval", (r.lower, r.upper)), ("num", r.prob_positive)])
         notes.append(_interval_note(df, "the coefficients of the best linear approximation")
                      + " P(>0): posterior probability that a coefficient is positive.")
+        reference = df.attrs.get("reference")
+        if reference:
+            notes.append("Reference categories: " + "; ".join(f"{k} = {v}" for k, v in dict(reference).items()) + ".")
     elif kind == "curves":
         headers = [("Covariate", "Covariate", "l"), ("Value", "Value", "r"), ("Mean", "Mean", "r"),
                    (f"{iv} (pointwise)", escape_latex(f"{iv} (pointwise)"), "c"),

@@ -28,6 +28,7 @@ import numpy as np
 import pandas as pd
 
 from ._provenance import hash_array, hash_file, jsonable, provenance, provenance_lines
+from ._provenance import provenance as _make_provenance  # export_tables' `provenance` argument shadows the name
 from ._table_layout import (WEAK_MARK, escape_latex, format_cell, rule_to_latex, rule_to_text, table_kind,
                             table_layout)
 from ._validate import SummaryError, check_int
@@ -376,7 +377,7 @@ def summary_tables(*, tree=None, groups=None, linear=None, additive=None, level=
 
 def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None, level: float = 0.95,
                   interval: str = "equal-tailed", contrasts: bool = True, points=None, formats=FORMATS,
-                  digits: int = 2, provenance_record=None, overwrite: bool = False) -> dict[str, Path]:
+                  digits: int = 2, provenance=None, overwrite: bool = False) -> dict[str, Path]:
     """Write every summary's table in each format, plus ``provenance.json``.
 
     Parameters
@@ -394,8 +395,9 @@ def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None
         Grid values for the additive table (see :func:`curve_points`).
     formats : sequence of {"tex", "md", "csv", "html"}
     digits : int, default 2
-    provenance_record : dict, optional
-        From :func:`provenance`; built from the results and settings when omitted.
+    provenance : dict, optional
+        From :func:`provenance` (pass the same record to :func:`summarize_widgets.report.write_report`
+        so the report and the tables agree); built from the results and settings when omitted.
     overwrite : bool, default False
         Without it, nothing is written if any target file exists.
 
@@ -413,7 +415,7 @@ def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None
         raise SummaryError("export_tables needs at least one of `tree`, `groups`, `linear`, `additive`.")
     tables = summary_tables(tree=tree, groups=groups, linear=linear, additive=additive, level=level,
                             interval=interval, contrasts=contrasts, points=points)
-    prov = provenance_record if provenance_record is not None else provenance(
+    prov = provenance if provenance is not None else _make_provenance(
         results, settings={"level": level, "interval": interval, "digits": digits})
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)

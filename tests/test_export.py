@@ -19,7 +19,9 @@ import pytest
 import summarize_widgets
 from summarize_widgets import EffectDraws, SummaryError
 from summarize_widgets import export as ex
+from summarize_widgets.additive import summarize_additive
 from summarize_widgets.groups import summarize_groups
+from summarize_widgets.linear import summarize_linear
 from summarize_widgets.tree import summarize_tree
 
 NASTY = "a&b%c$d#e_f{g}h~i^j\\k"  # every LaTeX special in one name
@@ -87,6 +89,12 @@ def real():
     tree = summarize_tree(draws, max_depth=3).depth(2)
     groups = summarize_groups(draws, {"big & <b>bills</b>": "baseline_bill > 200", "small": "baseline_bill <= 100"})
     return draws, tree, groups
+
+
+@pytest.fixture(scope="module")
+def smooth(real):
+    draws = real[0]
+    return summarize_linear(draws), summarize_additive(draws, columns=["baseline_bill", "<script>alert(1)</script>"])
 
 
 # ----------------------------------------------------------------------------- escaping
@@ -202,15 +210,17 @@ def test_latex_every_table_kind():
 
 
 @pytest.mark.skipif(shutil.which("pdflatex") is None, reason="pdflatex not installed (apt-get install texlive-latex-recommended)")
-def test_latex_compiles_with_pdflatex(tmp_path, real):
+def test_latex_compiles_with_pdflatex(tmp_path, real, smooth):
     # The real check of "escaped and valid": LaTeX itself must accept every table.
     _, tree, groups = real
+    linear, additive = smooth
     prov = ex.provenance([tree, groups], settings={"note": NASTY})
     body = "".join([
         ex.to_latex(subgroup_table(weak=[True, False, False], rules=[f"{NASTY} <= 1 & z in {{{NASTY}, b}}", "[x] = y", "q > 1"]),
                     caption=NASTY, label="tab:a", provenance=prov),
         ex.to_latex(tree.table(), provenance=prov), ex.to_latex(tree.contrasts()), ex.to_latex(tree.fit_r2_by_depth()),
         ex.to_latex(groups.table()), ex.to_latex(linear_table()), ex.to_latex(ex.curve_points(curves_table())),
+        ex.to_latex(linear.table()), ex.to_latex(ex.curve_points(additive.curves())),
     ])
     (tmp_path / "t.tex").write_text("\\documentclass{article}\n\\usepackage{booktabs}\n\\begin{document}\n"
                                     + body + "\\end{document}\n", encoding="utf-8")
@@ -457,6 +467,54 @@ def test_export_tables_errors(tmp_path, real):
         ex.export_tables(tmp_path, tree=tree, formats=("pdf",))
     with pytest.raises(SummaryError, match="needs at least one of `tree`"):
         ex.export_tables(tmp_path)
+
+
+def test_real_linear_and_additive_tables(smooth):
+    linear, additive = smooth
+    lt = linear.table(level=0.9)
+    tex = ex.to_latex(lt, digits=3)
+    for row in lt.itertuples():  # every coefficient with its interval, formatted independently
+        assert f"{ex.escape_latex(row.term)} & {row.mean:.3f}".replace("-", "$-$") in tex
+    assert "Reference categories: " in tex and "90\\% equal-tailed" in tex
+    curves = additive.curves()
+    picked = ex.curve_points(curves, {"baseline_bill": [150.0], "<script>alert(1)</script>": ['a&b "q"']})
+    grid = curves[curves.covariate == "baseline_bill"]["x"].to_numpy()
+    assert picked["x"].iloc[0] == grid[np.argmin(np.abs(grid - 150.0))]
+    html_out = ex.to_html(picked)
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html_out and "a&amp;b &quot;q&quot;" in html_out
+    assert "<script>" not in html_out
+
+
+def test_complier_weighted_weak_uptake_from_real_groups():
+    # Renters rarely take the retrofit (complier share about 0.03): their Wald ratio is flagged.
+    rng = np.random.default_rng(5)
+    n, S = 300, 80
+    cov = pd.DataFrame({"baseline_bill": rng.uniform(40, 300, n), "tenure": rng.choice(["owner", "renter"], n)})
+    share = np.where(cov["tenure"] == "owner", 0.6, 0.03)
+    uptake = np.clip(share + rng.normal(0, 0.02, (S, n)), 0, None)
+    itt = uptake * (-0.1 * cov["baseline_bill"].to_numpy()) + rng.normal(0, 0.2, (S, n))
+    draws = EffectDraws.from_itt(itt, uptake, cov)
+    table = summarize_groups(draws, {"owners": "tenure == 'owner'", "renters": "tenure == 'renter'"}).table()
+    assert table["weak_uptake"].tolist() == [False, False, True]
+    tex = ex.to_latex(table)
+    rows = tex.split(r"\midrule")[1].split(r"\bottomrule")[0].strip().splitlines()
+    assert [r"\dagger" in r for r in rows] == [False, False, True]
+    assert "Weak uptake" in tex and "below 0.05" in tex
+    md = ex.to_markdown(table)
+    assert md.count("\u2020") == 2  # the marked mean and the note
+
+
+def test_export_tables_all_four_summaries(tmp_path, real, smooth):
+    _, tree, groups = real
+    linear, additive = smooth
+    prov = ex.provenance([tree, groups, linear, additive], settings={"level": 0.95})
+    files = ex.export_tables(tmp_path, tree=tree, groups=groups, linear=linear, additive=additive,
+                             formats=("md",), contrasts=False, provenance=prov)
+    assert sorted(files) == ["fit_r2_by_depth.md", "groups.md", "linear.md", "provenance.json", "subgroups_depth2.md",
+                             "trends.md"]
+    saved = json.loads((tmp_path / "provenance.json").read_text())
+    assert saved["created_utc"] == prov["created_utc"] and set(saved["summaries"]) == {"tree", "groups", "linear", "additive"}
+    assert all(prov["created_utc"] in (tmp_path / f).read_text() for f in files if f.endswith(".md"))
 
 
 def test_public_names_resolve():
