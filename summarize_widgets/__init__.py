@@ -1,20 +1,59 @@
 """summarize_widgets: subgroups, trends and tables from a posterior of unit-level effects.
 
 Computation (the core) returns plain result objects and DataFrames; figures take
-results and return plotly figures; widgets compose both.
+results and return plotly figures; widgets compose both. Heavy optional layers
+(figures, export, widgets, demo) are imported on first use, so ``import
+summarize_widgets`` stays light.
 """
+from importlib import import_module
+
 from ._version import __version__
 from ._validate import SummaryError
+from .additive import AdditiveSummary, summarize_additive
 from .draws import EffectDraws
 from .groups import GroupSummary, summarize_groups
+from .io import load_draws
+from .linear import LinearSummary, summarize_linear
 from .tree import TreeSummary, summarize_tree
 
 __all__ = [
     "__version__",
     "SummaryError",
     "EffectDraws",
+    "load_draws",
     "summarize_tree",
     "TreeSummary",
+    "summarize_additive",
+    "AdditiveSummary",
+    "summarize_linear",
+    "LinearSummary",
     "summarize_groups",
     "GroupSummary",
+    "simulate_retrofit_study",
+    "summarize_all",
+    "write_summary_folder",
+    "Explorer",
+    "figures",
+    "export",
 ]
+
+_LAZY = {
+    "simulate_retrofit_study": ("demo", "simulate_retrofit_study"),
+    "summarize_all": ("bundle", "summarize_all"),
+    "write_summary_folder": ("bundle", "write_summary_folder"),
+    "Explorer": ("widgets", "Explorer"),
+    "figures": ("figures", None),
+    "export": ("export", None),
+}
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        module, attr = _LAZY[name]
+        mod = import_module(f".{module}", __name__)
+        return mod if attr is None else getattr(mod, attr)
+    raise AttributeError(f"module 'summarize_widgets' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(__all__))

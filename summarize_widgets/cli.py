@@ -1,0 +1,244 @@
+"""Command line: ``summarize-widgets demo | summarize | report``.
+
+Errors the user can fix (bad files, bad settings, a folder that would be overwritten)
+end in one line on stderr and exit status 2, never a traceback.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from datetime import datetime
+from pathlib import Path
+
+__all__ = ["main"]
+
+_TABLES = ("subgroups", "contrasts", "fit", "linear", "trends")
+
+
+def _add_summary_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("summary settings")
+    g.add_argument("--depth", type=int, default=3, help="depth of the reported subgroup tree (default 3)")
+    g.add_argument("--max-depth", type=int, default=None, help="depth the tree is grown to (default max(depth, 4))")
+    g.add_argument("--min-size", type=int, default=None, help="smallest subgroup in units (default 5%% of units, at most 1000)")
+    g.add_argument("--columns", default=None, help="comma-separated covariates to use (default: all)")
+    g.add_argument("--level", type=float, default=0.95, help="credible level (default 0.95)")
+    g.add_argument("--interval", choices=("equal-tailed", "highest-density"), default="equal-tailed",
+                   help="kind of credible interval (default equal-tailed)")
+
+
+def _add_input_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("draws", metavar="DRAWS", help="draws file: .npy, .npz, .csv, .parquet, .nc, or sampler CSV")
+    p.add_argument("--covariates", required=True, metavar="FILE", help="covariates, one row per unit (.csv or .parquet)")
+    g = p.add_argument_group("reading the draws")
+    g.add_argument("--variable", default=None, help="array / netCDF variable / sampler column prefix holding the effects")
+    g.add_argument("--draws-format", default=None, choices=("npy", "npz", "csv", "parquet", "netcdf", "sampler-csv"),
+                   help="file format (default: from the extension)")
+    g.add_argument("--chains", type=int, default=None, help="number of chains, stored chain-major")
+    g.add_argument("--uptake", default=None, metavar="FILE",
+                   help="draws of the offer's effect on uptake: DRAWS is then the outcome ITT and every subgroup "
+                        "effect is complier-weighted (LATE)")
+    g.add_argument("--label", default=None, help="what the effect is, for titles (default 'effect' or 'LATE')")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from . import __version__
+
+    parser = argparse.ArgumentParser(
+        prog="summarize-widgets",
+        description="Summarize posterior draws of unit-level effects into subgroups, trends and tables.",
+    )
+    parser.add_argument("--version", action="version", version=f"%(prog)s {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    demo = sub.add_parser("demo", help="run the whole job on the built-in simulated retrofit study (no data needed)",
+                          description="Simulate the built-in home-retrofit lottery study, summarize its posterior, "
+                                      "print the subgroup table and write tables, figures and report.html into a folder.")
+    demo.add_argument("--out", default=None, metavar="DIR", help="output folder (default: a new folder here)")
+    demo.add_argument("--overwrite", action="store_true", help="replace files in an existing non-empty folder")
+    demo.add_argument("--compliers", action="store_true",
+                      help="summarize the retrofit's effect among compliers (LATE) instead of the offer's effect")
+    demo.add_argument("--households", type=int, default=2000, help="simulated households (default 2000)")
+    demo.add_argument("--n-draws", type=int, default=1000, help="posterior draws (default 1000)")
+    demo.add_argument("--seed", type=int, default=20261201, help="random seed (default 20261201)")
+    demo.add_argument("--no-figures", action="store_true", help="skip the SVG/PDF/PNG figure files")
+    _add_summary_options(demo)
+
+    summ = sub.add_parser("summarize", help="print a summary table of your own draws",
+                          description="Summarize your own draws and print one table.")
+    _add_input_options(summ)
+    _add_summary_options(summ)
+    summ.add_argument("--table", choices=_TABLES, default="subgroups", help="which table to print (default subgroups)")
+    summ.add_argument("--format", choices=("text", "csv", "markdown", "json"), default="text",
+                      help="output format (default text)")
+
+    rep = sub.add_parser("report", help="write tables, figures and report.html for your own draws",
+                         description="Summarize your own draws and write tables (LaTeX, Markdown, CSV, HTML), "
+                                     "figures (SVG, PDF, PNG), report.html and provenance.json into a folder.")
+    _add_input_options(rep)
+    _add_summary_options(rep)
+    rep.add_argument("--out", required=True, metavar="DIR", help="output folder")
+    rep.add_argument("--overwrite", action="store_true", help="replace files in an existing non-empty folder")
+    rep.add_argument("--group", action="append", default=[], metavar="LABEL=QUERY",
+                     help="a pre-specified group as a pandas query, e.g. --group \"older=age >= 65\" (repeatable)")
+    rep.add_argument("--no-figures", action="store_true", help="skip the SVG/PDF/PNG figure files")
+    return parser
+
+
+def _columns(text):
+    return None if text is None else [c.strip() for c in text.split(",") if c.strip()]
+
+
+def _groups(items):
+    out = {}
+    for item in items:
+        label, sep, query = item.partition("=")
+        if not sep or not label.strip() or not query.strip():
+            raise ValueError(f"--group must look like LABEL=QUERY (e.g. \"older=age >= 65\"); got {item!r}.")
+        out[label.strip()] = query.strip()
+    return out
+
+
+def _load(args):
+    from .draws import EffectDraws
+    from .io import load_draws
+
+    kw = dict(format=args.draws_format, variable=args.variable, chains=args.chains)
+    if args.uptake is None:
+        return load_draws(args.draws, args.covariates, label=args.label or "effect", **kw)
+    outcome = load_draws(args.draws, args.covariates, **kw)
+    uptake = load_draws(args.uptake, args.covariates, **kw)
+    return EffectDraws.from_itt(outcome._values, uptake._values, outcome.covariates, chains=outcome.n_chains,
+                                label=args.label or "LATE")
+
+
+def _text_table(df) -> str:
+    """A terminal rendering of a summary table: readable columns, rounded numbers."""
+    import pandas as pd
+
+    show = df.copy()
+    if {"lower", "upper"} <= set(show.columns):
+        show["interval"] = [f"[{lo:.3g}, {hi:.3g}]" for lo, hi in zip(show["lower"], show["upper"])]
+    keep = [c for c in ("subgroup", "rule", "term", "covariate", "x", "subgroup_a", "subgroup_b", "depth", "n_subgroups",
+                        "n_units", "share", "mean", "difference", "interval", "prob_positive", "prob_a_greater",
+                        "uptake_share", "weak_uptake") if c in show.columns]
+    show = show[keep]
+    for c in show.columns:
+        if pd.api.types.is_float_dtype(show[c]):
+            show[c] = show[c].map(lambda v: f"{v:.3g}")
+    level = df.attrs.get("level")
+    head = f"{df.attrs.get('label', '')}  ({int(round(100 * level))}% {df.attrs.get('interval', '')} intervals)" if level else ""
+    with pd.option_context("display.max_colwidth", 80, "display.width", 200):
+        return (head + "\n" if head else "") + show.to_string(index=False)
+
+
+def _render(df, fmt: str) -> str:
+    if fmt == "text":
+        return _text_table(df)
+    if fmt == "csv":
+        return df.to_csv(index=False)
+    if fmt == "markdown":
+        from .export import to_markdown
+        return to_markdown(df)
+    return json.dumps({"attrs": {k: v for k, v in df.attrs.items() if isinstance(v, (str, int, float, bool))},
+                       "rows": json.loads(df.to_json(orient="records"))}, indent=2)
+
+
+def _pick_table(bundle, name, level, interval):
+    tree = bundle.tree
+    if name == "subgroups":
+        return tree.table(level=level, interval=interval)
+    if name == "contrasts":
+        return tree.contrasts(level=level, interval=interval)
+    if name == "fit":
+        return tree.fit_r2_by_depth(level=level, interval=interval)
+    if name == "linear":
+        return bundle.linear.table(level=level, interval=interval)
+    return bundle.additive.curves(level=level, interval=interval)
+
+
+def _summaries(draws, args, groups=None, need=("additive", "linear")):
+    from .bundle import summarize_all
+
+    return summarize_all(draws, depth=args.depth, max_depth=args.max_depth, min_size=args.min_size,
+                         columns=_columns(args.columns), groups=groups,
+                         additive="additive" in need, linear="linear" in need)
+
+
+def _print_headline(bundle, level, interval) -> None:
+    tree = bundle.tree
+    print(_text_table(tree.table(level=level, interval=interval)))
+    try:
+        r2 = tree.fit_r2_by_depth(level=level, interval=interval)
+        row = r2[r2["depth"] == tree.current_depth].iloc[0]
+        print(f"\nSummary R^2 at depth {tree.current_depth}: {row['mean']:.2f} "
+              f"[{row['lower']:.2f}, {row['upper']:.2f}] (share of each draw's heterogeneity the subgroups capture)")
+    except Exception as exc:  # noqa: BLE001 - R^2 can be undefined (constant effects); say so, go on
+        print(f"\nSummary R^2: {exc}")
+
+
+def _cmd_demo(args) -> int:
+    from .bundle import write_summary_folder
+    from .demo import simulate_retrofit_study
+
+    out = Path(args.out) if args.out else Path.cwd() / f"summary_output_{datetime.now():%Y%m%d-%H%M%S}"
+    from .bundle import _folder_ready
+    _folder_ready(out, args.overwrite)  # refuse before the work, not after
+    study = simulate_retrofit_study(n_households=args.households, n_draws=args.n_draws, seed=args.seed)
+    draws = study.complier_draws() if args.compliers else study.effect_draws()
+    print(f"Simulated retrofit study: {draws}")
+    bundle = _summaries(draws, args)
+    _print_headline(bundle, args.level, args.interval)
+    files = write_summary_folder(bundle, out, level=args.level, interval=args.interval, figures=not args.no_figures,
+                                 inputs={"simulated study (seed {})".format(args.seed): draws._values},
+                                 overwrite=args.overwrite)
+    print(f"\nWrote {len(files)} files into {out} (open {out / 'report.html'} in a browser).")
+    return 0
+
+
+def _cmd_summarize(args) -> int:
+    draws = _load(args)
+    need = {"linear": ("linear",), "trends": ("additive",)}.get(args.table, ())
+    bundle = _summaries(draws, args, need=need)
+    print(_render(_pick_table(bundle, args.table, args.level, args.interval), args.format))
+    return 0
+
+
+def _cmd_report(args) -> int:
+    from .bundle import _folder_ready, write_summary_folder
+
+    out = Path(args.out)
+    _folder_ready(out, args.overwrite)
+    groups = _groups(args.group)
+    draws = _load(args)
+    bundle = _summaries(draws, args, groups=groups or None)
+    _print_headline(bundle, args.level, args.interval)
+    inputs = [args.draws, args.covariates] + ([args.uptake] if args.uptake else [])
+    files = write_summary_folder(bundle, out, level=args.level, interval=args.interval, inputs=inputs,
+                                 figures=not args.no_figures, overwrite=args.overwrite)
+    print(f"\nWrote {len(files)} files into {out} (open {out / 'report.html'} in a browser).")
+    return 0
+
+
+def main(argv=None) -> int:
+    """Entry point of ``summarize-widgets``."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return 0
+    handler = {"demo": _cmd_demo, "summarize": _cmd_summarize, "report": _cmd_report}[args.command]
+    try:
+        return handler(args)
+    except (ValueError, FileExistsError, FileNotFoundError, PermissionError, RuntimeError) as exc:
+        # SummaryError is a ValueError; BrowserNotFoundError a RuntimeError: all say what to fix.
+        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        print(f"summarize-widgets {args.command}: error: {msg}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("summarize-widgets: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
