@@ -35,9 +35,8 @@
 
 /**
  * @typedef {object} Palette
- * @property {string} negative  colour at -limit (#rrggbb)
- * @property {string} neutral   colour at zero
- * @property {string} positive  colour at +limit
+ * @property {string[]} stops   colours from the most negative to the most positive (#rrggbb),
+ *                              evenly spaced, the middle one at zero
  * @property {string} [missing] colour for a non-finite value
  */
 
@@ -59,12 +58,10 @@
 /** Box geometry in px. */
 export const GEOMETRY = Object.freeze({ width: 224, height: 58, gapX: 34, gapY: 10, margin: 6 });
 
-/** Fallback palette (the Python side sends the shared one). */
+/** Fallback palette: a copy of figures.py's DIVERGING and MUTED (the Python side sends the live one). */
 export const DEFAULT_PALETTE = Object.freeze({
-  negative: "#2c6e8f",
-  neutral: "#f3f0e8",
-  positive: "#b5562b",
-  missing: "#d5d5d5",
+  stops: Object.freeze(["#1D4E79", "#6F9BC4", "#F3F0EA", "#E2A066", "#9A4A12"]),
+  missing: "#A7A9AC",
 });
 
 const MINUS = "\u2212";
@@ -176,23 +173,32 @@ function toHex(rgb) {
 }
 
 /**
- * Colour for `value` on a diverging scale: `neutral` at zero, `negative` at
- * -limit and below, `positive` at +limit and above, linear in sRGB between.
+ * Colour for `value` on a diverging scale centred at zero: position
+ * t = 0.5 + 0.5 * clamp(value / limit, -1, 1) along evenly spaced `stops`,
+ * linear in sRGB between neighbouring stops (as plotly interpolates
+ * colorscales and as figures.py's effect_color does).
  *
  * @param {number|null|undefined} value
- * @param {number} limit  > 0
+ * @param {number} limit  the |value| that gets an end colour (> 0; otherwise 1)
  * @param {Palette} [palette]
  * @returns {string} "#rrggbb"
  */
 export function divergingColour(value, limit, palette = DEFAULT_PALETTE) {
   if (value === null || value === undefined || !Number.isFinite(value)) {
-    return palette.missing ?? DEFAULT_PALETTE.missing;
+    return (palette.missing ?? DEFAULT_PALETTE.missing).toLowerCase();
+  }
+  const stops = palette.stops;
+  if (!Array.isArray(stops) || stops.length < 2) {
+    throw new Error(`tree view: palette.stops must list at least two colours, got ${JSON.stringify(stops)}`);
   }
   const lim = Number.isFinite(limit) && limit > 0 ? limit : 1;
-  const t = Math.min(1, Math.abs(value) / lim);
-  const end = parseHex(value < 0 ? palette.negative : palette.positive);
-  const mid = parseHex(palette.neutral);
-  return toHex(/** @type {[number, number, number]} */ (mid.map((c, i) => c + t * (end[i] - c))));
+  const t = 0.5 + 0.5 * Math.max(-1, Math.min(1, value / lim));
+  const pos = t * (stops.length - 1);
+  const i = Math.min(stops.length - 2, Math.floor(pos));
+  const f = pos - i;
+  const a = parseHex(stops[i]);
+  const b = parseHex(stops[i + 1]);
+  return toHex(/** @type {[number, number, number]} */ (a.map((c, k) => c + f * (b[k] - c))));
 }
 
 /**
@@ -473,7 +479,7 @@ function drawKey(palette, limit) {
   low.textContent = formatNumber(-limit);
   const bar = document.createElement("span");
   bar.className = "swtv-key-bar";
-  bar.style.background = `linear-gradient(to right, ${palette.negative}, ${palette.neutral}, ${palette.positive})`;
+  bar.style.background = `linear-gradient(to right, ${palette.stops.join(", ")})`;
   const high = document.createElement("span");
   high.textContent = formatNumber(limit);
   const note = document.createElement("span");

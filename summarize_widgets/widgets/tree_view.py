@@ -16,6 +16,7 @@ import anywidget
 import traitlets
 
 from .._validate import SummaryError
+from ..figures import DIVERGING, MUTED
 
 __all__ = ["TreeView", "NODE_FIELDS", "node_records", "asset_path", "DEFAULT_PALETTE"]
 
@@ -24,8 +25,8 @@ NODE_FIELDS = ("node", "parent", "depth", "split", "rule", "is_leaf", "n_units",
 _INT_FIELDS = ("node", "parent", "depth", "n_units")
 _FLOAT_FIELDS = ("share", "mean", "lower", "upper")
 
-# Used only until figures.py's shared palette is passed in (the Explorer passes it).
-DEFAULT_PALETTE = {"negative": "#2c6e8f", "neutral": "#f3f0e8", "positive": "#b5562b", "missing": "#d5d5d5"}
+# The figures' diverging scale, so a leaf's fill matches its marker in every figure.
+DEFAULT_PALETTE = {"stops": list(DIVERGING), "missing": MUTED}
 
 
 def asset_path(name: str) -> Path:
@@ -109,7 +110,9 @@ class TreeView(anywidget.AnyWidget):
     selected : int, default -1
         Selected node id (-1: none).
     palette : dict, optional
-        ``negative``, ``neutral``, ``positive`` (and ``missing``) colours as ``#rrggbb``.
+        ``stops``: colours from the most negative to the most positive effect, evenly
+        spaced with the middle one at zero; ``missing``: colour of a missing value.
+        Default: figures.py's ``DIVERGING`` and ``MUTED``.
     colour_limit : float, default 0
         The |posterior mean| that gets the full colour; 0 or less means the
         largest |mean| among the leaves shown.
@@ -129,14 +132,15 @@ class TreeView(anywidget.AnyWidget):
     @traitlets.validate("palette")
     def _check_palette(self, proposal):
         value = dict(proposal["value"])
-        missing = [k for k in ("negative", "neutral", "positive") if k not in value]
-        if missing:
-            raise SummaryError(f"`palette` must have the keys 'negative', 'neutral' and 'positive'; missing {missing}.")
-        for key, colour in value.items():
+        stops = value.get("stops")
+        if not isinstance(stops, (list, tuple)) or len(stops) < 2:
+            raise SummaryError(f"`palette['stops']` must list at least two colours; got {stops!r}.")
+        named = [(f"palette['stops'][{i}]", c) for i, c in enumerate(stops)]
+        for name, colour in named + [("palette['missing']", value.get("missing", MUTED))]:
             text = str(colour)
             if not (len(text) == 7 and text.startswith("#") and all(c in "0123456789abcdefABCDEF" for c in text[1:])):
-                raise SummaryError(f"`palette[{key!r}]` must be a colour like '#1f77b4'; got {colour!r}.")
-        return value
+                raise SummaryError(f"`{name}` must be a colour like '#1f77b4'; got {colour!r}.")
+        return {"stops": [str(c) for c in stops], "missing": str(value.get("missing", MUTED))}
 
     @property
     def leaf_ids(self) -> list[int]:

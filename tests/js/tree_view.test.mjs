@@ -84,28 +84,33 @@ test("layout: malformed records are reported", () => {
   assert.throws(() => layoutTree([rec(0, -1, 0), rec(1, 2, 1), rec(2, 1, 1)]), /2 node\(s\) are not connected to the root/);
 });
 
-test("colour: neutral at zero, palette ends at +-limit, clamped beyond, linear between", () => {
+test("colour: centre stop at zero, end stops at +-limit, clamped beyond, linear between stops", () => {
   const p = DEFAULT_PALETTE;
-  assert.equal(divergingColour(0, 2, p), p.neutral);
-  assert.equal(divergingColour(2, 2, p), p.positive);
-  assert.equal(divergingColour(-2, 2, p), p.negative);
-  assert.equal(divergingColour(50, 2, p), p.positive);
-  assert.equal(divergingColour(-50, 2, p), p.negative);
-  const mid = parseHex(divergingColour(1, 2, p));
-  const a = parseHex(p.neutral);
-  const b = parseHex(p.positive);
+  const lower = (h) => h.toLowerCase();
+  assert.equal(divergingColour(0, 2, p), lower(p.stops[2]));
+  assert.equal(divergingColour(2, 2, p), lower(p.stops[4]));
+  assert.equal(divergingColour(-2, 2, p), lower(p.stops[0]));
+  assert.equal(divergingColour(1, 2, p), lower(p.stops[3]), "half the limit lands on the next stop of five");
+  assert.equal(divergingColour(50, 2, p), lower(p.stops[4]));
+  assert.equal(divergingColour(-50, 2, p), lower(p.stops[0]));
+  // A quarter of the limit: halfway between the centre stop and the next one.
+  const mid = parseHex(divergingColour(0.5, 2, p));
+  const a = parseHex(p.stops[2]);
+  const b = parseHex(p.stops[3]);
   mid.forEach((c, i) => assert.ok(Math.abs(c - (a[i] + b[i]) / 2) <= 0.5 + 1e-9));
-  assert.equal(divergingColour(Number.NaN, 2, p), p.missing);
-  assert.equal(divergingColour(null, 2, p), p.missing);
-  assert.equal(divergingColour(1, 0, p), p.positive, "a zero limit falls back to 1");
+  assert.equal(divergingColour(Number.NaN, 2, p), lower(p.missing));
+  assert.equal(divergingColour(null, 2, p), lower(p.missing));
+  assert.equal(divergingColour(1, 0, p), lower(p.stops[4]), "a zero limit falls back to 1");
 });
 
 test("colour: custom palette and bad colours", () => {
-  const pal = { negative: "#0000ff", neutral: "#ffffff", positive: "#ff0000" };
+  const pal = { stops: ["#0000ff", "#ffffff", "#ff0000"] };
   assert.equal(divergingColour(-1, 1, pal), "#0000ff");
   assert.equal(divergingColour(0.5, 1, pal), "#ff8080");
+  assert.equal(divergingColour(Number.NaN, 1, pal), DEFAULT_PALETTE.missing.toLowerCase());
   assert.deepEqual(parseHex("#0A0b0C"), [10, 11, 12]);
   assert.throws(() => parseHex("red"), /colour must look like #rrggbb, got "red"/);
+  assert.throws(() => divergingColour(1, 1, { stops: ["#000000"] }), /palette.stops must list at least two colours/);
 });
 
 test("luminance and text colour follow WCAG 2 definitions", () => {
@@ -119,9 +124,9 @@ test("luminance and text colour follow WCAG 2 definitions", () => {
   assert.ok(Math.abs(ratio - 4.48) < 0.01, `ratio ${ratio}`);
   assert.equal(textColourOn("#ffffff"), "#222222");
   assert.equal(textColourOn("#000000"), "#ffffff");
-  assert.equal(textColourOn(DEFAULT_PALETTE.neutral), "#222222");
-  assert.equal(textColourOn(DEFAULT_PALETTE.negative), "#ffffff");
-  assert.equal(textColourOn(DEFAULT_PALETTE.positive), "#ffffff");
+  assert.equal(textColourOn(DEFAULT_PALETTE.stops[2]), "#222222");
+  assert.equal(textColourOn(DEFAULT_PALETTE.stops[0]), "#ffffff");
+  assert.equal(textColourOn(DEFAULT_PALETTE.stops[4]), "#ffffff");
 });
 
 test("colour limit: largest |mean| among leaves", () => {

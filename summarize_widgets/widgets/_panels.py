@@ -1,0 +1,152 @@
+"""The Explorer's panels: figures drawn from stored results, updated in place.
+
+Every panel is drawn by a builder of :mod:`summarize_widgets.figures` from a table
+the summaries already hold (no pass over the draws). :func:`show_figure` then
+moves the new figure into the panel's existing ``FigureWidget`` (traces replaced,
+layout replaced) so the front end keeps one widget per panel and the saved widget
+state always describes what is on screen.
+"""
+from __future__ import annotations
+
+import html
+from copy import deepcopy
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+
+from .. import figures as _fig
+from ..export import to_html
+
+__all__ = [
+    "show_figure",
+    "message_figure",
+    "subgroups_figure",
+    "fit_figure",
+    "trends_figure",
+    "coefficients_figure",
+    "contrasts_figure",
+    "table_html",
+    "status_html",
+]
+
+
+def show_figure(widget: go.FigureWidget, fig: go.Figure) -> None:
+    """Make ``widget`` show ``fig``, keeping the same widget (and its front-end view).
+
+    Parameters
+    ----------
+    widget : plotly.graph_objects.FigureWidget
+        The panel's widget, already displayed or not.
+    fig : plotly.graph_objects.Figure
+        The new content.
+
+    Notes
+    -----
+    Traces are deleted and re-added (the number and kind of traces change with the
+    subgroups); layout keys the new figure lacks are removed explicitly, because a
+    plotly relayout only touches the keys it names. plotly's widget syncs later
+    edits as messages only, so the full data and layout are also written back into
+    the widget's state traits: a notebook saved with widget state (nbconvert,
+    nbclient ``store_widget_state=True``) then shows the current figure, not the
+    first one.
+    """
+    new_layout = fig.layout.to_plotly_json()
+    stale = set(widget.layout.to_plotly_json()) - set(new_layout) - {"template"}
+    with widget.batch_update():
+        widget.data = ()
+    if stale:
+        widget.plotly_relayout({key: None for key in stale})
+    widget.layout = fig.layout
+    widget.add_traces(list(fig.data))
+    widget._widget_layout = deepcopy(widget._layout_obj._props)
+    widget._widget_data = deepcopy(widget._data)
+
+
+def message_figure(text: str, *, height: int = 240) -> go.Figure:
+    """An empty panel that says ``text`` (plain text, escaped) in its middle."""
+    fig = go.Figure()
+    fig.add_annotation(text=html.escape(text, quote=False), x=0.5, y=0.5, xref="paper", yref="paper",
+                       showarrow=False, font=dict(size=14, color=_fig.INK))
+    fig.update_layout(template="none", height=height, paper_bgcolor="white", plot_bgcolor="white",
+                      margin=dict(l=20, r=20, t=20, b=20))
+    fig.update_xaxes(visible=False)
+    fig.update_yaxes(visible=False)
+    return fig
+
+
+def subgroups_figure(tree, table: pd.DataFrame, *, highlight, densities: bool) -> go.Figure:
+    """Subgroup effects with intervals at the tree's current depth; ``highlight`` a node id or None."""
+    draws = None
+    if densities:
+        mat = tree.leaf_draws
+        draws = {int(sid): mat[:, j] for j, sid in enumerate(tree.leaf_ids)}
+    return _fig._subgroups_figure(table, highlight=highlight, draws=draws, effect_label=tree.label)
+
+
+def fit_figure(fit_table: pd.DataFrame, fit_draws: dict, *, current_depth: int) -> go.Figure:
+    """Posterior of summary R^2 at every depth, the current one marked."""
+    return _fig._fit_by_depth_figure(fit_table, fit_draws, current_depth=current_depth)
+
+
+def trends_figure(curves: pd.DataFrame, covariate: str, *, label: str) -> go.Figure:
+    """One covariate's additive curve with pointwise and simultaneous bands."""
+    return _fig._trends_figure(curves, covariate=covariate, effect_label=label)
+
+
+def coefficients_figure(table: pd.DataFrame) -> go.Figure:
+    """Linear-summary coefficients with intervals (intercept left out)."""
+    return _fig._coefficients_figure(table)
+
+
+def contrasts_figure(contrasts: pd.DataFrame, subgroup) -> go.Figure:
+    """The selected subgroup minus each other subgroup."""
+    return _fig._contrasts_figure(contrasts, subgroup)
+
+
+def table_html(table: pd.DataFrame, *, selected_row: int | None, css_scope: str) -> str:
+    """The subgroup table as escaped HTML, the selected row shaded.
+
+    Parameters
+    ----------
+    table : DataFrame
+        ``TreeSummary.table()`` output.
+    selected_row : int or None
+        0-based row to shade.
+    css_scope : str
+        A class name unique to this widget, so the style applies to its own table only.
+    """
+    scope = html.escape(css_scope)
+    accent = _fig._rgba(_fig.ACCENT, 0.14)
+    style = [
+        f".{scope} table {{border-collapse: collapse; font-size: 13px; margin: 4px 0;}}",
+        f".{scope} th, .{scope} td {{padding: 3px 10px; border-bottom: 1px solid {_fig.GRID};}}",
+        f".{scope} thead th {{border-bottom: 2px solid {_fig.INK}; text-align: left;}}",
+        f".{scope} .sw-r {{text-align: right; font-variant-numeric: tabular-nums;}}",
+        f".{scope} .sw-c {{text-align: center; font-variant-numeric: tabular-nums; white-space: nowrap;}}",
+        f".{scope} .sw-rule {{max-width: 520px;}}",
+        f".{scope} caption {{caption-side: top; text-align: left; font-weight: 600; padding: 4px 0;}}",
+        f".{scope} .sw-note {{font-size: 12px; color: #555; margin: 2px 0;}}",
+    ]
+    if selected_row is not None:
+        style.append(f".{scope} tbody tr:nth-child({int(selected_row) + 1}) {{background: {accent}; font-weight: 600;}}")
+    body = to_html(table, caption="Subgroups at the chosen depth")
+    return f'<div class="{scope}"><style>{" ".join(style)}</style>{body}</div>'
+
+
+def status_html(text: str, *, kind: str = "info") -> str:
+    """One escaped status line; ``kind`` is "info", "busy" or "error"."""
+    colours = {"info": "#444444", "busy": _fig.BAND, "error": "#9b1c1c"}
+    if kind not in colours:
+        raise ValueError(f"`kind` must be one of {sorted(colours)}; got {kind!r}.")
+    weight = "600" if kind == "error" else "400"
+    role = ' role="alert"' if kind == "error" else ""
+    return (f'<div class="swx-status swx-status-{kind}"{role} style="color:{colours[kind]};font-weight:{weight};'
+            f'font-size:13px;line-height:1.4">{html.escape(text)}</div>')
+
+
+def vmax_of(values) -> float:
+    """Largest finite |value| (0 when there is none): the colour limit figures use."""
+    v = np.abs(np.asarray(values, dtype=float))
+    v = v[np.isfinite(v)]
+    return float(v.max()) if v.size else 0.0

@@ -1,0 +1,571 @@
+"""The notebook Explorer: subgroups, fit, trends and contrasts behind a few controls.
+
+Two kinds of change, two costs:
+
+* depth, interval level, interval type and the selected subgroup only re-read
+  stored results (``TreeSummary.depth(d)`` and per-draw subgroup effects), never
+  the draws: :meth:`Explorer.apply` does it and returns;
+* the smallest subgroup size and the covariates used change the summaries
+  themselves: one pass over the draws per summary, run on a worker thread (the
+  widget stays usable, a progress bar appears when it takes a while). A setting
+  that cannot work is reported in the widget's status line and the previous
+  view stays.
+
+Panels in hidden tabs are redrawn when their tab is opened, so a change costs
+the tree view plus the panel in sight.
+"""
+from __future__ import annotations
+
+import threading
+import time
+from collections.abc import Mapping
+
+import ipywidgets as widgets
+import numpy as np
+import plotly.graph_objects as go
+
+from .._validate import SummaryError, check_columns, check_int, check_interval, check_level
+from ..draws import EffectDraws
+from ..tree import summarize_tree
+from . import _panels as P
+from .tree_view import TreeView, node_records
+
+__all__ = ["Explorer"]
+
+LEVELS = (0.5, 0.8, 0.9, 0.95, 0.99)
+INTERVALS = (("Equal-tailed", "equal-tailed"), ("Highest density", "highest-density"))
+# A recompute that has run this long shows its progress bar (shorter ones would only flicker).
+PROGRESS_AFTER_S = 0.3
+_WIDE = {"description_width": "initial"}
+
+
+class _Panel:
+    """One tab: its widget, the figure (or HTML) inside, and the key of what it shows."""
+
+    def __init__(self, name: str, title: str, body, figure=None):
+        self.name, self.title, self.body, self.figure = name, title, body, figure
+        self.key = None
+
+
+class Explorer(widgets.VBox):
+    """Interactive summaries of a posterior of unit-level effects.
+
+    Display it by putting it last in a notebook cell.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+        The posterior draws (plain or complier-weighted) with their covariates.
+    max_depth : int, default 4
+        Deepest tree offered by the "Tree depth" control (1 to 8).
+    depth : int, optional
+        Depth shown first; default ``min(2, max_depth)``.
+    min_size : int, optional
+        Smallest subgroup in units; default that of :func:`summarize_tree`.
+    columns : list of str, optional
+        Covariates the summaries may use (default: all).
+    level : float, default 0.95
+        Credible level of every interval.
+    interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
+    trends : bool, default True
+        Compute the additive summary (one smooth curve per covariate) for the "Trends" tab.
+        Its smoothing search is the slowest part of the start-up.
+    linear : bool, default True
+        Compute the linear summary for the "Linear fit" tab.
+    additive_options : dict, optional
+        Extra keyword arguments for :func:`summarize_widgets.additive.summarize_additive`
+        (for example ``{"lam": 1.0}`` to skip the smoothing search).
+    background : bool, default True
+        Run recomputations triggered from the controls on a worker thread.
+
+    Attributes
+    ----------
+    tree : TreeSummary
+        The summary tree at the depth shown.
+    additive, linear : AdditiveSummary or LinearSummary or None
+    tree_view : TreeView
+    """
+
+    def __init__(self, draws, *, max_depth: int = 4, depth: int | None = None, min_size: int | None = None,
+                 columns=None, level: float = 0.95, interval: str = "equal-tailed", trends: bool = True,
+                 linear: bool = True, additive_options: Mapping | None = None, background: bool = True):
+        if not isinstance(draws, EffectDraws):
+            raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); "
+                               f"got {type(draws).__name__}.")
+        self._draws = draws
+        max_depth = check_int(max_depth, "max_depth", low=1, high=8)
+        depth = min(2, max_depth) if depth is None else check_int(depth, "depth", low=1, high=max_depth)
+        level = check_level(level)
+        interval = check_interval(interval)
+        columns = check_columns(columns, list(draws.covariates.columns))
+        if additive_options is not None and not isinstance(additive_options, Mapping):
+            raise SummaryError(f"`additive_options` must be a dict of keyword arguments; got {type(additive_options).__name__}.")
+        self._want = {"trends": bool(trends), "linear": bool(linear)}
+        self._additive_options = dict(additive_options or {})
+        self._background = bool(background)
+        self._lock = threading.RLock()  # one view update at a time (main thread or worker)
+        self._pending = None
+        self._worker: threading.Thread | None = None
+        self._quiet = False  # set while the code itself moves a control
+
+        summaries = self._compute(max_depth, min_size, columns, progress=None)
+        self._install(summaries)
+        self._state = {"depth": depth, "level": level, "interval": interval,
+                       "selected": self._default_selection(self._full.depth(depth)),
+                       "densities": False, "covariate": None}
+        self._build_controls(max_depth, level, interval, columns)
+        self._build_panels()
+        super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs])
+        self.add_class("swx-explorer")
+        self._refresh(all_panels=True)
+
+    # -- computation ---------------------------------------------------------------------
+    def _compute(self, max_depth, min_size, columns, progress):
+        """Every summary for these settings (one pass over the draws per summary)."""
+        stages = ["tree"] + (["linear"] if self._want["linear"] else []) + (["trends"] if self._want["trends"] else [])
+
+        def tick(k):
+            return None if progress is None else (lambda done, total: progress(stages[k], k, len(stages), done, total))
+
+        out = {"tree": summarize_tree(self._draws, max_depth=max_depth, min_size=min_size, columns=columns,
+                                      progress=tick(0)),
+               "linear": None, "additive": None, "errors": {}}
+        # Trends and the linear fit are extras: if one cannot be computed, its tab says why.
+        if self._want["linear"]:
+            from ..linear import summarize_linear
+            try:
+                out["linear"] = summarize_linear(self._draws, columns=columns, progress=tick(stages.index("linear")))
+            except SummaryError as exc:
+                out["errors"]["linear"] = str(exc)
+        if self._want["trends"]:
+            from ..additive import summarize_additive
+            try:
+                out["additive"] = summarize_additive(self._draws, columns=columns, progress=tick(stages.index("trends")),
+                                                     **self._additive_options)
+            except SummaryError as exc:
+                out["errors"]["trends"] = str(exc)
+        return out
+
+    def _install(self, summaries):
+        self._full = summaries["tree"]
+        self.additive = summaries["additive"]
+        self.linear = summaries["linear"]
+        self._errors = summaries["errors"]
+        self._cache = {}
+        self._fit_draws = self._full.fit_r2_draws_by_depth()
+
+    def _cached(self, key, make):
+        if key not in self._cache:
+            self._cache[key] = make()
+        return self._cache[key]
+
+    @staticmethod
+    def _default_selection(tree) -> int:
+        """The subgroup whose posterior mean is farthest from zero: the one that stands out."""
+        tab = tree.table()
+        return int(tab["subgroup"].iloc[int(np.argmax(np.abs(tab["mean"].to_numpy(float))))])
+
+    # -- controls and panels -----------------------------------------------------------
+    def _build_controls(self, max_depth, level, interval, columns):
+        d = self._draws
+        kind = "complier-weighted (LATE) draws" if d.is_complier_weighted else "draws"
+        self._header = widgets.HTML(P.status_html(
+            f"{d.label}: {d.n_draws:,} {kind} \u00d7 {d.n_units:,} units; {d.covariates.shape[1]} covariates"))
+        self.depth_control = widgets.IntSlider(value=self._state["depth"], min=1, max=max_depth, step=1,
+                                               description="Tree depth", continuous_update=False, style=_WIDE,
+                                               layout=widgets.Layout(width="300px"))
+        levels = sorted(set(LEVELS) | {level})
+        self.level_control = widgets.Dropdown(options=[(f"{100 * v:g}%", v) for v in levels], value=level,
+                                              description="Interval level", style=_WIDE,
+                                              layout=widgets.Layout(width="190px"))
+        self.interval_control = widgets.ToggleButtons(options=INTERVALS, value=interval, description="Interval type",
+                                                      style={**_WIDE, "button_width": "120px"})
+        self.min_size_control = widgets.IntText(value=self._full.min_size, description="Smallest subgroup (units)",
+                                                continuous_update=False, style=_WIDE,
+                                                layout=widgets.Layout(width="270px"))
+        self.columns_control = widgets.SelectMultiple(options=list(d.covariates.columns), value=tuple(columns),
+                                                      rows=min(5, d.covariates.shape[1]), description="Covariates used",
+                                                      style=_WIDE, layout=widgets.Layout(width="330px"))
+        self.progress = widgets.FloatProgress(value=0.0, min=0.0, max=1.0, description="Recomputing",
+                                              style=_WIDE, layout=widgets.Layout(width="320px", display="none"))
+        self.status = widgets.HTML(self._selection_text())
+        self.status.add_class("swx-status-line")
+        self.tree_view = TreeView(palette={"stops": list(P._fig.DIVERGING), "missing": P._fig.MUTED})
+        for control in (self.depth_control, self.level_control, self.interval_control, self.min_size_control,
+                        self.columns_control, self.progress):
+            control.layout.margin = "2px 18px 2px 0"
+        row1 = widgets.HBox([self.depth_control, self.level_control, self.interval_control],
+                            layout=widgets.Layout(flex_flow="row wrap", align_items="center"))
+        row2 = widgets.HBox([self.min_size_control, self.columns_control],
+                            layout=widgets.Layout(flex_flow="row wrap", align_items="flex-start"))
+        self._controls = widgets.VBox([row1, row2])
+        self._status_row = widgets.HBox([self.status, self.progress],
+                                        layout=widgets.Layout(align_items="center", min_height="28px"))
+        for control in (self.depth_control, self.level_control, self.interval_control):
+            control.observe(self._guard(self._on_view_control), names="value")
+        self.tree_view.observe(self._guard(self._on_pick), names="selected")
+        self.min_size_control.observe(self._guard(self._on_regroup_control), names="value")
+        self.columns_control.observe(self._guard(self._on_regroup_control), names="value")
+
+    def _build_panels(self):
+        def fig_widget():
+            return go.FigureWidget(layout=dict(height=300, template="none"))
+
+        panels = []
+        effects = fig_widget()
+        self.densities_control = widgets.Checkbox(value=False, description="Show posterior densities", indent=False)
+        self.densities_control.observe(self._guard(self._on_panel_control), names="value")
+        panels.append(_Panel("effects", "Subgroup effects", widgets.VBox([self.densities_control, effects]), effects))
+        fit = fig_widget()
+        panels.append(_Panel("fit", "Fit by depth", widgets.VBox([fit]), fit))
+        if self._want["trends"]:
+            trend = fig_widget()
+            names = self.additive.columns if self.additive is not None else []
+            self.covariate_control = widgets.Dropdown(options=names, value=names[0] if names else None,
+                                                      description="Covariate", style=_WIDE)
+            self.covariate_control.observe(self._guard(self._on_panel_control), names="value")
+            panels.append(_Panel("trends", "Trends", widgets.VBox([self.covariate_control, trend]), trend))
+        if self._want["linear"]:
+            lin = fig_widget()
+            panels.append(_Panel("linear", "Linear fit", widgets.VBox([lin]), lin))
+        self._table_html = widgets.HTML()
+        panels.append(_Panel("table", "Table", widgets.VBox([self._table_html])))
+        con = fig_widget()
+        panels.append(_Panel("contrasts", "Contrasts", widgets.VBox([con]), con))
+        self._panels = {p.name: p for p in panels}
+        self._tabs = widgets.Tab(children=[p.body for p in panels], titles=[p.title for p in panels])
+        self._tabs.observe(self._guard(self._on_tab), names="selected_index")
+
+    # -- event handlers ------------------------------------------------------------------
+    def _guard(self, handler):
+        """Run a control's handler; a failure becomes a message in the widget, never a traceback."""
+        def run(change):
+            if self._quiet:
+                return
+            try:
+                handler(change)
+            except SummaryError as exc:
+                self._show_error(str(exc))
+            except Exception as exc:  # noqa: BLE001 - the output area must not get a traceback
+                self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
+        return run
+
+    def _on_view_control(self, change):
+        self.apply(depth=self.depth_control.value, level=self.level_control.value,
+                   interval=self.interval_control.value)
+
+    def _on_pick(self, change):
+        self.apply(selected=int(change["new"]))
+
+    def _on_panel_control(self, change):
+        with self._lock:
+            self._state["densities"] = bool(self.densities_control.value)
+            if self._want["trends"]:
+                self._state["covariate"] = self.covariate_control.value
+            self._refresh()
+
+    def _on_tab(self, change):
+        with self._lock:
+            self._refresh()
+
+    def _on_regroup_control(self, change):
+        columns = list(self.columns_control.value)
+        if not columns:
+            raise SummaryError("Choose at least one covariate under \u201cCovariates used\u201d.")
+        request = (self.depth_control.max, int(self.min_size_control.value), columns)
+        if not self._background:
+            self._regroup(*request, progress=self._progress_callback(time.monotonic()))
+            return
+        with self._lock:
+            self._pending = request
+            if self._worker is None:
+                self._worker = threading.Thread(target=self._work, name="summarize-widgets-regroup", daemon=True)
+                self._worker.start()
+
+    # -- public API --------------------------------------------------------------------------
+    def apply(self, *, depth: int | None = None, level: float | None = None, interval: str | None = None,
+              selected: int | None = None) -> None:
+        """Change what is shown without a pass over the draws; returns when the view is updated.
+
+        Parameters
+        ----------
+        depth : int, optional
+            Tree depth, 1 to the largest offered.
+        level : float, optional
+            Credible level, strictly between 0 and 1.
+        interval : {"equal-tailed", "highest-density"}, optional
+        selected : int, optional
+            Node id of the selected subgroup (any node of the tree at the current depth;
+            -1 for none).
+
+        Notes
+        -----
+        This is the hook the benchmark times: it updates the tree view and the visible
+        panel; panels in other tabs are redrawn when their tab is opened.
+        """
+        with self._lock:
+            s = dict(self._state)
+            if depth is not None:
+                s["depth"] = check_int(depth, "depth", low=1, high=self._full.max_depth)
+            if level is not None:
+                s["level"] = check_level(level)
+            if interval is not None:
+                s["interval"] = check_interval(interval)
+            if selected is not None:
+                sel = check_int(selected, "selected", low=-1)
+                known = set(self._tree_nodes(s)["node"].tolist()) | {-1}
+                if sel not in known:
+                    raise SummaryError(f"`selected` must be a node of the tree at depth {s['depth']} "
+                                       f"(one of {sorted(known)}) or -1; got {selected!r}.")
+                s["selected"] = sel
+            elif s["depth"] != self._state["depth"]:
+                s["selected"] = self._follow(s["selected"], s["depth"])
+            self._state = s
+            self._sync_controls()
+            self._refresh()
+
+    def recompute(self, *, min_size: int | None = None, columns=None) -> None:
+        """Recompute the summaries for a new smallest subgroup size or covariate set (one pass each).
+
+        Raises :class:`SummaryError` for an impossible setting; the view is unchanged then.
+        """
+        min_size = self._full.min_size if min_size is None else min_size
+        columns = self._full.columns if columns is None else columns
+        self._regroup(self._full.max_depth, min_size, columns, progress=None, raise_errors=True)
+
+    def wait(self, timeout: float | None = None) -> bool:
+        """Wait for a background recomputation to finish; True if none is running."""
+        worker = self._worker
+        if worker is not None:
+            worker.join(timeout)
+        return self._worker is None or not self._worker.is_alive()
+
+    @property
+    def tree(self):
+        """The summary tree at the depth shown (a :class:`TreeSummary`)."""
+        return self._full.depth(self._state["depth"])
+
+    @property
+    def settings(self) -> dict:
+        """What the view shows: depth, level, interval kind, selection and the tree's settings."""
+        return {**self.tree.settings, "level": self._state["level"], "interval": self._state["interval"],
+                "selected": self._state["selected"]}
+
+    # -- recomputation -----------------------------------------------------------------------
+    def _work(self):
+        """Worker thread: run the newest request; drop results a newer request has overtaken."""
+        while True:
+            with self._lock:
+                request, self._pending = self._pending, None
+                if request is None:
+                    self._worker = None
+                    return
+            try:
+                self._regroup(*request, progress=self._progress_callback(time.monotonic()), stale=lambda: self._pending is not None)
+            except Exception as exc:  # noqa: BLE001 - a worker thread has no output area to report to
+                self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
+
+    def _progress_callback(self, started):
+        def progress(stage, k, n_stages, done, total):
+            if time.monotonic() - started < PROGRESS_AFTER_S:
+                return
+            self.progress.layout.display = None
+            self.progress.description = {"tree": "Regrouping", "linear": "Linear fit", "trends": "Trends"}[stage]
+            self.progress.value = (k + done / max(total, 1)) / n_stages
+        return progress
+
+    def _regroup(self, max_depth, min_size, columns, *, progress, stale=lambda: False, raise_errors=False):
+        before = {"min_size": self._full.min_size, "columns": self._full.columns}
+        self.status.value = P.status_html("Recomputing the summaries (one pass over the draws each)\u2026", kind="busy")
+        try:
+            min_size = check_int(min_size, "min_size", low=1, high=self._draws.n_units)
+            summaries = self._compute(max_depth, min_size, columns, progress)
+        except SummaryError as exc:
+            if raise_errors:
+                self._refresh_status()
+                raise
+            self._revert_controls(before)
+            self._show_error(f"{exc} The previous summaries are still shown "
+                             f"(smallest subgroup {before['min_size']:,} units).")
+            return
+        finally:
+            self.progress.layout.display = "none"
+            self.progress.value = 0.0
+        if stale():
+            return
+        with self._lock:
+            self._install(summaries)
+            s = self._state
+            s["selected"] = self._default_selection(self._full.depth(s["depth"]))
+            if self._want["trends"]:
+                names = self.additive.columns if self.additive is not None else []
+                self._quietly(lambda: setattr(self.covariate_control, "options", names))
+                s["covariate"] = self.covariate_control.value
+            self._sync_controls()
+            for p in self._panels.values():
+                p.key = None
+            self._refresh()
+
+    # -- drawing -------------------------------------------------------------------------------
+    def _follow(self, node: int, depth: int) -> int:
+        """The selected node at a new depth: itself if still shown, else its ancestor at ``depth``."""
+        if node < 0:
+            return node
+        nodes = self._cached(("nodes-all",), lambda: self._full.depth(self._full.max_depth).nodes())
+        parent = dict(zip(nodes["node"].tolist(), nodes["parent"].tolist()))
+        depth_of = dict(zip(nodes["node"].tolist(), nodes["depth"].tolist()))
+        while node in depth_of and depth_of[node] > depth:
+            node = parent[node]
+        return node
+
+    def _quietly(self, action):
+        self._quiet = True
+        try:
+            action()
+        finally:
+            self._quiet = False
+
+    def _sync_controls(self):
+        s = self._state
+
+        def move():
+            self.depth_control.value = s["depth"]
+            values = [v for _, v in self.level_control.options]
+            if s["level"] not in values:
+                self.level_control.options = [(f"{100 * v:g}%", v) for v in sorted(set(values) | {s["level"]})]
+            self.level_control.value = s["level"]
+            self.interval_control.value = s["interval"]
+            self.min_size_control.value = self._full.min_size
+            self.columns_control.value = tuple(self._full.columns)
+        self._quietly(move)
+
+    def _revert_controls(self, before):
+        self._quietly(lambda: (setattr(self.min_size_control, "value", before["min_size"]),
+                               setattr(self.columns_control, "value", tuple(before["columns"]))))
+
+    def _show_error(self, text: str) -> None:
+        self.status.value = P.status_html(text, kind="error")
+
+    def _selection_text(self) -> str:
+        s = getattr(self, "_state", None)
+        if s is None:
+            return P.status_html("")
+        nodes = self._tree_nodes()
+        row = nodes[nodes["node"] == s["selected"]]
+        if s["selected"] < 0 or row.empty:
+            return P.status_html("Click a box in the tree to select a subgroup.")
+        r = row.iloc[0]
+        rule = r["rule"] or "All units"
+        pct = f"{100 * s['level']:g}%"
+        if not bool(r["is_leaf"]):
+            return P.status_html(f"Selected: {rule} (split further at this depth; click one of its coloured "
+                                 "subgroups to compare it with the others).")
+        return P.status_html(f"Selected: {rule}. Posterior mean {r['mean']:.3g}, {pct} interval "
+                             f"[{r['lower']:.3g}, {r['upper']:.3g}], {int(r['n_units']):,} units.")
+
+    def _refresh_status(self):
+        self.status.value = self._selection_text()
+
+    def _tree_nodes(self, state=None):
+        s = self._state if state is None else state
+        return self._cached(("nodes", s["depth"], s["level"], s["interval"]),
+                            lambda: self._full.depth(s["depth"]).nodes(level=s["level"], interval=s["interval"]))
+
+    def _tree_table(self):
+        s = self._state
+        return self._cached(("table", s["depth"], s["level"], s["interval"]),
+                            lambda: self._full.depth(s["depth"]).table(level=s["level"], interval=s["interval"]))
+
+    def _refresh(self, all_panels: bool = False):
+        """Redraw the tree view, the status line and the panels whose inputs changed."""
+        s = self._state
+        nodes = self._tree_nodes()
+        leaves = nodes[nodes["is_leaf"]]
+        pct = f"{100 * s['level']:g}%"
+        kind = "highest-density" if s["interval"] == "highest-density" else "equal-tailed"
+        with self.tree_view.hold_sync():
+            self.tree_view.nodes = node_records(nodes)
+            self.tree_view.selected = s["selected"]
+            self.tree_view.colour_limit = P.vmax_of(leaves["mean"])
+            self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show units, posterior mean "
+                                      f"and {pct} {kind} interval. Click a subgroup to select it.")
+        self._refresh_status()
+        visible = self._tabs.selected_index or 0
+        for i, panel in enumerate(self._panels.values()):
+            if all_panels or i == visible:
+                self._draw_panel(panel)
+
+    def _panel_key(self, name):
+        s = self._state
+        keys = {
+            "effects": (s["depth"], s["level"], s["interval"], s["selected"], s["densities"]),
+            "fit": (s["depth"], s["level"], s["interval"]),
+            "trends": (s["level"], s["interval"], s["covariate"]),
+            "linear": (s["level"], s["interval"]),
+            "table": (s["depth"], s["level"], s["interval"], s["selected"]),
+            "contrasts": (s["depth"], s["level"], s["interval"], s["selected"]),
+        }
+        return keys[name]
+
+    def _draw_panel(self, panel: _Panel) -> None:
+        key = self._panel_key(panel.name)
+        if key == panel.key:
+            return
+        getattr(self, f"_draw_{panel.name}")(panel)
+        panel.key = key
+
+    def _highlight(self):
+        """The selected node if it is a subgroup at the current depth, else None."""
+        sel = self._state["selected"]
+        return sel if sel in set(self.tree.leaf_ids.tolist()) else None
+
+    def _draw_effects(self, panel):
+        tab = self._tree_table()
+        P.show_figure(panel.figure, P.subgroups_figure(self.tree, tab, highlight=self._highlight(),
+                                                       densities=self._state["densities"]))
+
+    def _draw_fit(self, panel):
+        s = self._state
+        table = self._cached(("fit", s["level"], s["interval"]),
+                             lambda: self._full.fit_r2_by_depth(level=s["level"], interval=s["interval"]))
+        P.show_figure(panel.figure, P.fit_figure(table, self._fit_draws, current_depth=s["depth"]))
+
+    def _draw_trends(self, panel):
+        s = self._state
+        if self.additive is None:
+            why = self._errors.get("trends", "The additive summary was not computed.")
+            P.show_figure(panel.figure, P.message_figure(f"No trends: {why}"))
+            return
+        curves = self._cached(("curves", s["level"], s["interval"]),
+                              lambda: self.additive.curves(level=s["level"], interval=s["interval"]))
+        covariate = s["covariate"] or self.covariate_control.value
+        P.show_figure(panel.figure, P.trends_figure(curves, covariate, label=self.additive.label))
+
+    def _draw_linear(self, panel):
+        s = self._state
+        if self.linear is None:
+            why = self._errors.get("linear", "The linear summary was not computed.")
+            P.show_figure(panel.figure, P.message_figure(f"No linear fit: {why}"))
+            return
+        table = self._cached(("linear", s["level"], s["interval"]),
+                             lambda: self.linear.table(level=s["level"], interval=s["interval"]))
+        P.show_figure(panel.figure, P.coefficients_figure(table))
+
+    def _draw_table(self, panel):
+        tab = self._tree_table()
+        hit = np.flatnonzero(tab["subgroup"].to_numpy() == self._state["selected"])
+        self._table_html.value = P.table_html(tab, selected_row=int(hit[0]) if hit.size else None,
+                                              css_scope=f"swx-table-{self.model_id[:8]}")
+
+    def _draw_contrasts(self, panel):
+        s = self._state
+        sel = self._highlight()
+        if sel is None:
+            fig = P.message_figure("Select a subgroup (a coloured box in the tree) to compare it with the others.")
+        elif len(self.tree.leaf_ids) < 2:
+            fig = P.message_figure("Only one subgroup at this depth: nothing to compare.")
+        else:
+            table = self._cached(("contrasts", s["depth"], s["level"], s["interval"], sel),
+                                 lambda: self.tree.contrasts(level=s["level"], interval=s["interval"], subgroup=sel))
+            fig = P.contrasts_figure(table, sel)
+        P.show_figure(panel.figure, fig)

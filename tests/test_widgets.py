@@ -1,0 +1,360 @@
+"""Kernel-side tests of the notebook widgets (no browser: see tests/browser/ for that)."""
+from __future__ import annotations
+
+import html
+import json
+import os
+import shutil
+import subprocess
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+import pytest
+
+from summarize_widgets import EffectDraws, SummaryError, summarize_tree
+from summarize_widgets.demo import simulate_retrofit_study
+from summarize_widgets.figures import DIVERGING, MUTED, effect_color
+from summarize_widgets.widgets import Explorer, TreeView
+from summarize_widgets.widgets import _panels as P
+from summarize_widgets.widgets import explorer as explorer_module
+from summarize_widgets.widgets.tree_view import NODE_FIELDS, asset_path, node_records
+
+REPO = Path(__file__).resolve().parents[1]
+IN_CI = os.environ.get("CI", "").lower() == "true"
+
+
+@pytest.fixture(scope="module")
+def study():
+    return simulate_retrofit_study(n_households=400, n_draws=200, seed=7)
+
+
+@pytest.fixture(scope="module")
+def draws(study):
+    return study.effect_draws()
+
+
+@pytest.fixture()
+def explorer(draws):
+    # lam fixed: the smoothing search is not what these tests are about, and it is the slow part.
+    return Explorer(draws, max_depth=3, background=False, additive_options={"lam": 1.0})
+
+
+def _leaf_draws_by_groupby(draws_values, covariates, tree):
+    """Per-draw subgroup means computed outside the package: pandas groupby over the tree's assignment."""
+    groups = tree.assign(covariates)
+    frame = pd.DataFrame(np.asarray(draws_values, dtype=float).T)
+    return frame.groupby(groups.to_numpy()).mean()  # (n_subgroups, n_draws), index = node id
+
+
+# -- front-end files and the tree view -------------------------------------------------------------
+def test_asset_path_finds_the_repository_js_in_an_editable_install():
+    js = asset_path("tree_view.js")
+    assert js == REPO / "js" / "tree_view.js" or js.parent.name == "_static"
+    assert "export default { render }" in js.read_text()
+    assert asset_path("tree_view.css").read_text().count(".swtv-") > 5
+    with pytest.raises(FileNotFoundError, match=r"front-end file 'nope.js' not found"):
+        asset_path("nope.js")
+
+
+def test_tree_view_ships_its_module_and_styles():
+    view = TreeView()
+    assert "function render" in view._esm and "export function layoutTree" in view._esm
+    # No network imports: the module must work offline.
+    assert "import " not in "\n".join(line for line in view._esm.splitlines() if not line.lstrip().startswith(("*", "//")))
+    assert ".swtv-root" in view._css
+    assert view.palette == {"stops": list(DIVERGING), "missing": MUTED}
+
+
+def test_node_records_are_json_ready(draws):
+    nodes = summarize_tree(draws, max_depth=2).nodes()
+    nodes.loc[nodes.index[-1], "mean"] = np.nan
+    recs = node_records(nodes)
+    assert len(recs) == len(nodes)
+    assert all(set(r) == set(NODE_FIELDS) for r in recs)
+    assert recs[-1]["mean"] is None
+    json.dumps(recs, allow_nan=False)  # raises if a NaN or a numpy scalar slipped through
+    assert type(recs[0]["node"]) is int and type(recs[0]["is_leaf"]) is bool and type(recs[1]["share"]) is float
+    assert recs[0]["parent"] == -1 and recs[0]["split"] == ""
+
+
+def test_node_records_name_missing_columns():
+    with pytest.raises(SummaryError, match=r"`nodes` must be a DataFrame with columns .* missing \['split', 'rule'"):
+        node_records(pd.DataFrame({"node": [0], "parent": [-1], "depth": [0]}))
+
+
+def test_tree_view_rejects_bad_palettes():
+    with pytest.raises(SummaryError, match=r"`palette\['stops'\]` must list at least two colours"):
+        TreeView(palette={"stops": ["#000000"]})
+    with pytest.raises(SummaryError, match=r"`palette\['stops'\]\[1\]` must be a colour like '#1f77b4'; got 'blue'"):
+        TreeView(palette={"stops": ["#000000", "blue"]})
+    with pytest.raises(SummaryError, match=r"`palette\['missing'\]` must be a colour"):
+        TreeView(palette={"stops": ["#000000", "#ffffff"], "missing": "#12345"})
+
+
+def _node_or_skip():
+    node = shutil.which("node")
+    if node is None:
+        if IN_CI:
+            pytest.fail("node is missing; CI=true, so the JavaScript tests must run (apt-get install -y nodejs).")
+        pytest.skip("node is not installed")
+    return node
+
+
+def test_js_unit_tests_pass():
+    """Runs tests/js/ with node's built-in runner, so the JavaScript tests run with pytest."""
+    node = _node_or_skip()
+    proc = subprocess.run([node, "--test", str(REPO / "tests" / "js")], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-2000:]
+    assert "# fail 0" in proc.stdout
+
+
+def test_js_colours_match_the_figures(tmp_path):
+    """The tree view fills a leaf with the colour figures.effect_color gives its marker."""
+    node = _node_or_skip()
+    values = [-3.0, -1.7, -0.4, 0.0, 0.3, 1.1, 2.0, 2.5, float("nan")]
+    script = tmp_path / "colours.mjs"
+    script.write_text(
+        f"import {{ divergingColour }} from {json.dumps((REPO / 'js' / 'tree_view.js').as_uri())};\n"
+        f"const pal = {json.dumps({'stops': list(DIVERGING), 'missing': MUTED})};\n"
+        f"console.log(JSON.stringify({json.dumps(values[:-1])}.map((v) => divergingColour(v, 2.5, pal))"
+        f".concat([divergingColour(NaN, 2.5, pal)])));\n")
+    out = json.loads(subprocess.run([node, str(script)], capture_output=True, text=True, check=True).stdout)
+    expected = effect_color(np.array(values), 2.5)
+    for got, want in zip(out, expected):
+        g = np.array([int(got[i:i + 2], 16) for i in (1, 3, 5)])
+        w = np.array([int(want[i:i + 2], 16) for i in (1, 3, 5)])
+        # Python rounds halves to even, JavaScript up: one unit of difference is allowed.
+        assert np.abs(g - w).max() <= 1, (got, want)
+
+
+# -- panels ------------------------------------------------------------------------------------------
+def test_show_figure_replaces_content_and_state():
+    widget = go.FigureWidget()
+    first = go.Figure(go.Bar(x=[1, 2], y=[3, 4]), layout=dict(title=dict(text="first"), shapes=[dict(type="line", x0=0, x1=1, y0=0, y1=1)]))
+    P.show_figure(widget, first)
+    second = go.Figure([go.Scatter(x=[1], y=[2]), go.Scatter(x=[3], y=[4])], layout=dict(height=333))
+    P.show_figure(widget, second)
+    got = widget.to_dict()
+    assert [t["type"] for t in got["data"]] == ["scatter", "scatter"]
+    assert [{k: v for k, v in t.items() if k != "uid"} for t in got["data"]] == second.to_dict()["data"]
+    assert got["layout"]["height"] == 333
+    assert not got["layout"].get("shapes") and not got["layout"].get("title", {}).get("text")
+    # The saved widget state (what a static export renders) describes the new figure.
+    assert [t["type"] for t in widget._widget_data] == ["scatter", "scatter"]
+    assert widget._widget_layout["height"] == 333 and "shapes" not in widget._widget_layout
+
+
+def test_table_html_escapes_and_marks_the_selected_row():
+    tab = pd.DataFrame({"subgroup": [1, 2], "rule": ["x < 1 & <b>bold</b>", "x >= 1"], "n_units": [5, 6],
+                        "share": [0.4, 0.6], "mean": [1.0, 2.0], "sd": [0.1, 0.1], "lower": [0.8, 1.8],
+                        "upper": [1.2, 2.2], "prob_positive": [1.0, 1.0]})
+    tab.attrs.update(level=0.95, interval="equal-tailed", label="effect", kind="tree")
+    out = P.table_html(tab, selected_row=1, css_scope="scope-x")
+    assert "<b>bold</b>" not in out and "&lt;b&gt;bold&lt;/b&gt;" in out
+    assert ".scope-x tbody tr:nth-child(2)" in out
+    assert "nth-child" not in P.table_html(tab, selected_row=None, css_scope="scope-x")
+
+
+def test_status_html_escapes_and_checks_kind():
+    assert "&lt;script&gt;" in P.status_html("<script>", kind="error")
+    with pytest.raises(ValueError, match=r"`kind` must be one of \['busy', 'error', 'info'\]; got 'loud'"):
+        P.status_html("x", kind="loud")
+
+
+# -- the Explorer ------------------------------------------------------------------------------------
+def test_explorer_rejects_bad_arguments(draws):
+    with pytest.raises(SummaryError, match=r"`draws` must be an EffectDraws .* got ndarray"):
+        Explorer(np.zeros((3, 4)))
+    with pytest.raises(SummaryError, match=r"`depth` must be between 1 and 2; got 3"):
+        Explorer(draws, max_depth=2, depth=3, trends=False, linear=False)
+    with pytest.raises(SummaryError, match=r"`level` must be a number strictly between 0 and 1"):
+        Explorer(draws, level=95, trends=False, linear=False)
+    with pytest.raises(SummaryError, match=r"`columns` names covariates that are not in the covariate table: 'zip'"):
+        Explorer(draws, columns=["zip"], trends=False, linear=False)
+    with pytest.raises(SummaryError, match=r"`additive_options` must be a dict"):
+        Explorer(draws, additive_options=[1], trends=False, linear=False)
+
+
+def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
+    reference = summarize_tree(draws, max_depth=3).depth(2)
+    assert explorer.tree_view.leaf_ids == [int(i) for i in reference.leaf_ids]
+    assert explorer.tree_view.nodes == node_records(reference.nodes())
+    tab = reference.table()
+    expected = int(tab["subgroup"].iloc[np.argmax(np.abs(tab["mean"].to_numpy()))])
+    assert explorer.tree_view.selected == expected
+    assert explorer.tree_view.palette["stops"] == list(DIVERGING)
+    assert explorer.tree_view.colour_limit == pytest.approx(np.abs(tab["mean"]).max())
+    # Every panel was drawn at start, so a saved notebook shows them all.
+    assert all(p.key is not None for p in explorer._panels.values())
+    titles = [explorer._tabs.get_title(i) for i in range(len(explorer._tabs.children))]
+    assert titles == ["Subgroup effects", "Fit by depth", "Trends", "Linear fit", "Table", "Contrasts"]
+
+
+def _highlighted_rule(fig_widget):
+    traces = [t for t in fig_widget.data if t.name == "highlight"]
+    if not traces or traces[0].customdata is None or len(traces[0].customdata) == 0:
+        return None
+    return html.unescape(str(traces[0].customdata[0][0]).replace("<br>", " "))
+
+
+def _plain(rule):
+    return rule.replace("<=", "\u2264").replace(">=", "\u2265")
+
+
+def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
+    effects = explorer._panels["effects"].figure
+    leaves3 = summarize_tree(draws, max_depth=3).depth(3)
+    explorer.apply(depth=3)
+    assert len(explorer.tree_view.leaf_ids) == len(leaves3.leaf_ids)
+    assert explorer.depth_control.value == 3
+    # The selected node is still shown (it may now be split further).
+    assert explorer.tree_view.selected in [r["node"] for r in explorer.tree_view.nodes]
+
+    leaf = int(leaves3.leaf_ids[0])
+    explorer.apply(selected=leaf, level=0.9)
+    rule = leaves3.table().set_index("subgroup").loc[leaf, "rule"]
+    assert _highlighted_rule(effects) == _plain(rule)
+    assert explorer.status.value.count(html.escape(rule)) == 1
+
+    # Intervals at the new level equal numpy quantiles (type 7) of per-draw means from a pandas groupby.
+    ref = _leaf_draws_by_groupby(study.itt_outcome_draws, study.covariates, leaves3)
+    lo, hi = np.quantile(ref.to_numpy(), [0.05, 0.95], axis=1)
+    shown = {r["node"]: r for r in explorer.tree_view.nodes if r["is_leaf"]}
+    for node, a, b in zip(ref.index, lo, hi):
+        assert shown[int(node)]["lower"] == pytest.approx(a, rel=1e-9)
+        assert shown[int(node)]["upper"] == pytest.approx(b, rel=1e-9)
+
+    # Hidden panels are redrawn when their tab is opened.
+    table_panel = explorer._panels["table"]
+    assert table_panel.key != explorer._panel_key("table")
+    explorer._tabs.selected_index = list(explorer._panels).index("table")
+    assert table_panel.key == explorer._panel_key("table")
+    assert "90% interval" in explorer._table_html.value and "nth-child" in explorer._table_html.value
+    explorer._tabs.selected_index = list(explorer._panels).index("contrasts")
+    contrasts = explorer._panels["contrasts"].figure
+    assert html.escape(_plain(rule), quote=False)[:30] in contrasts.layout.title.text.replace("<br>", " ")
+    assert len(contrasts.data[-1].y) == len(leaves3.leaf_ids) - 1
+
+    # Back to depth 2: the selection moves to the ancestor that is a subgroup there.
+    explorer.apply(depth=2)
+    parent = {r["node"]: r["parent"] for r in node_records(leaves3.nodes())}
+    assert explorer.tree_view.selected == parent[leaf]
+
+
+def test_selecting_an_inner_node_clears_the_highlight(explorer):
+    root = 0
+    explorer.apply(selected=root)
+    assert _highlighted_rule(explorer._panels["effects"].figure) is None
+    assert "split further at this depth" in explorer.status.value
+    explorer._tabs.selected_index = list(explorer._panels).index("contrasts")
+    text = explorer._panels["contrasts"].figure.layout.annotations[0].text
+    assert text.startswith("Select a subgroup")
+
+
+def test_clicks_from_the_front_end_go_through_the_same_path(explorer):
+    leaf = explorer.tree_view.leaf_ids[-1]
+    explorer.tree_view.selected = leaf  # what the ES module does on a click
+    assert explorer.settings["selected"] == leaf
+    assert _highlighted_rule(explorer._panels["effects"].figure) is not None
+
+
+def test_apply_rejects_impossible_values(explorer):
+    with pytest.raises(SummaryError, match=r"`depth` must be between 1 and 3; got 0"):
+        explorer.apply(depth=0)
+    with pytest.raises(SummaryError, match=r"`selected` must be a node of the tree at depth 2 .* got 9999"):
+        explorer.apply(selected=9999)
+    with pytest.raises(SummaryError, match=r"`interval` must be one of 'equal-tailed', 'highest-density'"):
+        explorer.apply(interval="central")
+    with pytest.raises(SummaryError, match=r"`level` must be a number strictly between 0 and 1"):
+        explorer.apply(level=1.0)
+    assert explorer.settings["depth"] == 2
+
+
+def test_odd_level_is_added_to_the_level_control(explorer):
+    explorer.apply(level=0.85)
+    assert explorer.level_control.value == 0.85
+    assert "85%" in explorer.tree_view.caption
+
+
+def test_densities_and_trend_covariate_controls(explorer):
+    effects = explorer._panels["effects"].figure
+    n_before = len(effects.data)
+    explorer.densities_control.value = True
+    assert len(effects.data) == n_before + 1 and effects.data[0].name == "posterior density"
+    explorer._tabs.selected_index = list(explorer._panels).index("trends")
+    explorer.covariate_control.value = "baseline_bill"
+    assert explorer._panels["trends"].figure.layout.xaxis.title.text == "baseline_bill"
+
+
+def test_impossible_min_size_shows_a_message_and_keeps_the_view(explorer, draws):
+    before = list(explorer.tree_view.nodes)
+    explorer.min_size_control.value = draws.n_units + 1  # what typing into the box does
+    assert "swx-status-error" in explorer.status.value
+    assert f"`min_size` must be between 1 and {draws.n_units}; got {draws.n_units + 1}" in explorer.status.value
+    assert explorer.tree_view.nodes == before
+    assert explorer.min_size_control.value == explorer.tree.min_size
+    explorer.columns_control.value = ()
+    assert "Choose at least one covariate" in explorer.status.value
+    assert explorer.tree_view.nodes == before
+
+
+def test_unexpected_errors_become_messages(explorer, monkeypatch):
+    def boom(*args, **kwargs):
+        raise RuntimeError("disk on fire")
+    monkeypatch.setattr(explorer, "apply", boom)
+    explorer.depth_control.value = 3
+    assert "Unexpected error (RuntimeError): disk on fire" in explorer.status.value
+
+
+def test_min_size_and_covariates_recompute_on_a_worker_thread(draws, monkeypatch):
+    monkeypatch.setattr(explorer_module, "PROGRESS_AFTER_S", 0.0)
+    ex = Explorer(draws, max_depth=3, trends=False, additive_options={"lam": 1.0})
+    seen = []
+    ex.progress.observe(lambda ch: seen.append(ch["new"]), names="value")
+    ex.min_size_control.value = 150
+    assert ex.wait(timeout=60)
+    assert ex.tree.min_size == 150
+    reference = summarize_tree(draws, max_depth=3, min_size=150).depth(2)
+    assert ex.tree_view.leaf_ids == [int(i) for i in reference.leaf_ids]
+    assert seen and max(seen) > 0 and ex.progress.layout.display == "none"
+    ex.columns_control.value = ("tenure", "baseline_bill")
+    assert ex.wait(timeout=60)
+    assert ex.tree.columns == ["tenure", "baseline_bill"]
+    assert set(ex.linear.table()["term"]) <= {"(intercept)"} | {t for t in ex.linear.table()["term"] if
+                                                                  t.startswith(("tenure", "baseline_bill"))}
+    assert "swx-status-error" not in ex.status.value
+
+
+def test_recompute_api_raises_and_keeps_the_view(explorer, draws):
+    before = list(explorer.tree_view.nodes)
+    with pytest.raises(SummaryError, match=r"`min_size` must be between 1 and 400; got 401"):
+        explorer.recompute(min_size=draws.n_units + 1)
+    assert explorer.tree_view.nodes == before
+    assert "swx-status-error" not in explorer.status.value
+    explorer.recompute(min_size=60)
+    assert explorer.tree.min_size == 60 and explorer.min_size_control.value == 60
+
+
+def test_complier_weighted_draws(study):
+    ex = Explorer(study.complier_draws(), max_depth=2, trends=False, background=False)
+    assert "complier-weighted" in ex._header.value
+    ex._tabs.selected_index = list(ex._panels).index("table")
+    assert "sw-table" in ex._table_html.value
+
+
+def test_text_from_the_data_is_escaped():
+    rng = np.random.default_rng(3)
+    n = 300
+    cov = pd.DataFrame({"<i>group</i>": pd.Categorical(rng.choice(["<script>alert(1)</script>", "a & b"], n)),
+                        "x": rng.normal(size=n)})
+    shift = np.where(cov["<i>group</i>"] == "a & b", 2.0, -2.0)
+    values = rng.normal(size=(50, n)) * 0.1 + shift + cov["x"].to_numpy()
+    ex = Explorer(EffectDraws(values, cov), max_depth=1, min_size=20, trends=False, linear=False, background=False)
+    ex._tabs.selected_index = list(ex._panels).index("table")
+    assert "<script>" not in ex._table_html.value and "&lt;script&gt;" in ex._table_html.value
+    assert "<script>" not in ex.status.value
+    # The tree view receives the raw text; the ES module only ever sets it as textContent.
+    assert any("<script>" in r["rule"] for r in ex.tree_view.nodes)
+    assert "innerHTML" not in asset_path("tree_view.js").read_text()
