@@ -222,9 +222,13 @@ def _layout(df: pd.DataFrame, kind: str) -> _Layout:
         headers = [("Covariate", "Covariate", "l"), ("Value", "Value", "r"), ("Mean", "Mean", "r"),
                    (f"{iv} (pointwise)", escape_latex(f"{iv} (pointwise)"), "c"),
                    (f"{iv} (simultaneous)", escape_latex(f"{iv} (simultaneous)"), "c")]
+        previous = None
         for r in df.itertuples(index=False):
+            # Name each covariate once, on the first of its rows, as a paper table would.
+            name = ("text", "" if r.covariate == previous else r.covariate)
+            previous = r.covariate
             x = ("num", r.x) if isinstance(r.x, (int, float, np.number)) and not isinstance(r.x, bool) else ("text", r.x)
-            rows.append([("text", r.covariate), x, ("num", r.mean), ("interval", (r.lower, r.upper)),
+            rows.append([name, x, ("num", r.mean), ("interval", (r.lower, r.upper)),
                          ("interval", (r.lower_joint, r.upper_joint))])
         notes.append(_interval_note(df, "the additive summary's effect at each value")
                      + " Simultaneous intervals cover a covariate's whole curve jointly.")

@@ -361,12 +361,14 @@ def summary_tables(*, tree=None, groups=None, linear=None, additive=None, level=
         out[f"subgroups{tag}"] = (_call(tree.table, level, interval), f"Subgroups of the {lab} (tree depth {d})")
         if hasattr(tree, "fit_r2_by_depth"):
             out["fit_r2_by_depth"] = (_call(tree.fit_r2_by_depth, level, interval), "Summary R\u00b2 by tree depth")
-        if contrasts:
-            out[f"contrasts{tag}"] = (_call(tree.contrasts, level, interval), f"Differences between subgroups (tree depth {d})")
+        pairs = _call(tree.contrasts, level, interval) if contrasts else None
+        if pairs is not None and len(pairs):  # a single subgroup has no pairs: no empty table
+            out[f"contrasts{tag}"] = (pairs, f"Differences between subgroups (tree depth {d})")
     if groups is not None:
         out["groups"] = (_call(groups.table, level, interval), f"Pre-specified groups: {getattr(groups, 'label', 'effect')}")
-        if contrasts and hasattr(groups, "contrasts"):
-            out["groups_contrasts"] = (_call(groups.contrasts, level, interval), "Differences between pre-specified groups")
+        pairs = _call(groups.contrasts, level, interval) if contrasts and hasattr(groups, "contrasts") else None
+        if pairs is not None and len(pairs):
+            out["groups_contrasts"] = (pairs, "Differences between pre-specified groups")
     if linear is not None:
         out["linear"] = (_call(linear.table, level, interval), "Best linear approximation of the effects")
     if additive is not None:

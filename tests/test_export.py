@@ -205,6 +205,9 @@ def test_latex_every_table_kind():
     tex = ex.to_latex(ex.curve_points(curves_table(), {"baseline_bill": [100], "fuel": ['a&b "q"']}))
     assert r"baseline\_bill & 100.00 & $-$10.00 & [$-$11.00, $-$9.00] & [$-$12.00, $-$8.00] \\" in tex
     assert r'fuel & a\&b "q" & 1.00 & [0.00, 2.00] & [$-$1.00, 3.00] \\' in tex
+    tex = ex.to_latex(ex.curve_points(curves_table(), n_points=2))  # a covariate is named on its first row only
+    assert tex.count("baseline\\_bill & ") == 1 and r" & 300.00 & $-$30.00 &" in tex
+    assert tex.count("fuel & ") == 1 and r" & oil & $-$8.00 &" in tex
     r2 = pd.DataFrame({"depth": [1, 2], "n_subgroups": [2, 4], "mean": [0.41, 0.6], "lower": [0.3, 0.5], "upper": [0.5, 0.7]})
     assert r"2 & 4 & 0.60 & [0.50, 0.70] \\" in ex.to_latex(r2)
 
