@@ -244,6 +244,18 @@ class TreeSummary:
         ids = self.leaf_ids
         return ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
 
+    def fitted_values(self, rows=None) -> np.ndarray:
+        """Projected draws: each unit's subgroup effect, shape (n_rows, n_units).
+
+        Parameters
+        ----------
+        rows : None, int, slice or array of int
+            Which draws (default: all; mind the memory, n_draws x n_units).
+        """
+        theta = self.leaf_draws if rows is None else np.atleast_2d(self.leaf_draws[rows])
+        col = np.searchsorted(self.leaf_ids, self._ancestor_at_depth()[self._f.sk_leaves[self._f.unit_leaf]])
+        return theta[:, col]
+
     def _uptake(self, ids):
         f = self._f
         if f.unit_w_node is None:
