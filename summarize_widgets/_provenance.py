@@ -103,10 +103,10 @@ def _describe_draws(draws) -> dict:
     # EffectDraws keeps the user's matrix unchanged in `_values` (and the uptake draws in `_den`);
     # there is no public accessor yet, and hashing what the reducers see (weighted values) would
     # not identify the input.
-    values = getattr(draws, "_values", None)
+    values = getattr(draws, "values", None)
     if values is not None:
         out["sha256"] = hash_array(values)
-    den = getattr(draws, "_den", None)
+    den = getattr(draws, "uptake_values", None)
     if den is not None:
         out["uptake_sha256"] = hash_array(den)
     return out

@@ -108,7 +108,7 @@ def _load(args):
         return load_draws(args.draws, args.covariates, label=args.label or "effect", **kw)
     outcome = load_draws(args.draws, args.covariates, **kw)
     uptake = load_draws(args.uptake, args.covariates, **kw)
-    return EffectDraws.from_itt(outcome._values, uptake._values, outcome.covariates, chains=outcome.n_chains,
+    return EffectDraws.from_itt(outcome.values, uptake.values, outcome.covariates, chains=outcome.n_chains,
                                 label=args.label or "LATE")
 
 
@@ -190,7 +190,7 @@ def _cmd_demo(args) -> int:
     bundle = _summaries(draws, args)
     _print_headline(bundle, args.level, args.interval)
     files = write_summary_folder(bundle, out, level=args.level, interval=args.interval, figures=not args.no_figures,
-                                 inputs={"simulated study (seed {})".format(args.seed): draws._values},
+                                 inputs={"simulated study (seed {})".format(args.seed): draws.values},
                                  overwrite=args.overwrite)
     print(f"\nWrote {len(files)} files into {out} (open {out / 'report.html'} in a browser).")
     return 0

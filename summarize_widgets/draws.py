@@ -398,6 +398,30 @@ class EffectDraws:
         return self._values.dtype
 
     @property
+    def values(self) -> np.ndarray:
+        """The draw matrix as given (effects, or the outcome ITT for complier-weighted draws), not a copy.
+
+        Read-only view: summaries assume it does not change after construction.
+        """
+        v = self._values.view()
+        v.flags.writeable = False
+        return v
+
+    @property
+    def uptake_values(self) -> np.ndarray | None:
+        """The uptake ITT draws of complier-weighted draws (read-only view), else None."""
+        if self._den is None:
+            return None
+        v = self._den.view()
+        v.flags.writeable = False
+        return v
+
+    @property
+    def weights(self) -> np.ndarray | None:
+        """The weights as given (None, per unit, or per draw and unit)."""
+        return self._weights
+
+    @property
     def is_complier_weighted(self) -> bool:
         """True for draws built with :meth:`from_itt`."""
         return self._den is not None
