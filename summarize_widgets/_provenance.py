@@ -100,9 +100,8 @@ def _is_draws(obj) -> bool:
 
 def _describe_draws(draws) -> dict:
     out = jsonable(draws.describe())
-    # EffectDraws keeps the user's matrix unchanged in `_values` (and the uptake draws in `_den`);
-    # there is no public accessor yet, and hashing what the reducers see (weighted values) would
-    # not identify the input.
+    # Hash the matrices as the user gave them (not the weighted values the reducers see), so the
+    # checksum identifies the input.
     values = getattr(draws, "values", None)
     if values is not None:
         out["sha256"] = hash_array(values)
