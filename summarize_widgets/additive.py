@@ -94,7 +94,7 @@ def _features(covariates: pd.DataFrame, specs: list[ColumnSpec], keep: np.ndarra
             cols.append(remap[codes].astype(np.float64))
             info.append({"spec": spec, "labels": [spec.categories[k] for k in present]})
     n_cov = len(cols)
-    for k, item in enumerate(info):
+    for item in info:
         if item.get("indicator") is not None:
             item["indicator"] = n_cov + item["indicator"]
     return np.column_stack(cols + indicators), info
@@ -340,8 +340,9 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
         rows[:, idx] = gam._modelmat(Xg, term=j).toarray()
         ind = item.get("indicator")
         if ind is not None:
-            ind_idx = gam.terms.get_coef_indices(len(info) + sum(
-                1 for it in info[:j] if it.get("indicator") is not None))
+            # indicator terms follow the covariate terms in the order of their feature columns,
+            # so the feature index of an indicator is also its term index
+            ind_idx = gam.terms.get_coef_indices(ind)
             rows[:, ind_idx] = 0.0
             miss_row = bbar.copy()
             Xm = X[:1].copy()

@@ -27,7 +27,7 @@ from ._passes import LinearMap, run_pass
 from ._validate import SummaryError, check_columns
 from .intervals import summarize_draws
 
-__all__ = ["summarize_linear", "LinearSummary", "FrozenProjection"]
+__all__ = ["summarize_linear", "LinearSummary"]
 
 # A draw whose centred total sum of squares is below this share of W * c^2 has no heterogeneity
 # (rounding level; the same rule as the tree summary).
