@@ -240,3 +240,16 @@ def test_bad_level_and_interval_are_named():
         lin.table(level=95)
     with pytest.raises(SummaryError, match=r"`interval` must be one of"):
         lin.table(interval="hpd")
+
+
+def test_per_draw_weights_fix_the_denominator_at_its_posterior_mean():
+    # Documented behaviour (summarize_linear Notes): with per-draw weights the wbar-weighted mean of the
+    # fitted values is sum_i w_si T_si / sum_i wbar_i, not the per-draw ratio EffectDraws.overall.
+    T, X = _data(S=40)
+    W = np.random.default_rng(12).uniform(0.2, 2.0, T.shape)
+    d = sw.EffectDraws(T, X, weights=W)
+    fit = summarize_linear(d).fitted_values()
+    wbar = W.mean(axis=0)
+    mean_fit = (fit * wbar).sum(axis=1) / wbar.sum()
+    np.testing.assert_allclose(mean_fit, (W * T).sum(axis=1) / wbar.sum(), rtol=1e-10)
+    assert np.abs(mean_fit - d.overall).max() > 1e-4  # the two differ when weights vary by draw
