@@ -135,8 +135,26 @@ def _wrap(text, width: int = 40) -> str:
     Comparison operators are typeset (``<=`` as ≤, ``>=`` as ≥) so rules read as in print.
     """
     text = str(text).replace("<=", "\u2264").replace(">=", "\u2265")
-    lines = textwrap.wrap(text, width=width, break_long_words=False, break_on_hyphens=False) or [""]
+    # Break between the conditions of a rule ("a & b & c") first, so no condition is split
+    # across lines unless it is longer than a line by itself.
+    lines: list[str] = []
+    for part in text.split(" & "):
+        if lines and len(lines[-1]) + 3 + len(part) <= width:
+            lines[-1] += " & " + part
+            continue
+        if lines:
+            lines[-1] += " &"
+        lines += textwrap.wrap(part, width=width, break_long_words=False, break_on_hyphens=False) or [""]
     return "<br>".join(_esc(line) for line in lines)
+
+
+def _padded_range(*arrays, pad: float = 0.04) -> list[float]:
+    """Axis range over the finite values (and zero, so the zero line is always in view), padded."""
+    vals = np.concatenate([np.ravel(np.asarray(a, dtype=float)) for a in arrays] + [np.zeros(1)])
+    vals = vals[np.isfinite(vals)]
+    lo, hi = float(vals.min()), float(vals.max())
+    span = (hi - lo) or 1.0
+    return [lo - pad * span, hi + pad * span]
 
 
 def _level_text(attrs: Mapping, level: float | None = None) -> str:
@@ -161,6 +179,13 @@ def _require(df, columns, name: str) -> pd.DataFrame:
 
 
 # -- shared drawing pieces -------------------------------------------------------------------
+_TOP, _TOP_BARE, _BOTTOM = 70, 30, 64  # px margins: with a title, without one, below the plot
+
+
+def _margins(title) -> int:
+    return (_TOP if title else _TOP_BARE) + _BOTTOM
+
+
 def _style(fig: go.Figure, *, title=None, height=None, x_title=None, y_title=None, legend=False,
            title_markup: str | None = None) -> go.Figure:
     """House style. ``title`` is plain text (escaped); ``title_markup`` is our own markup."""
@@ -170,8 +195,8 @@ def _style(fig: go.Figure, *, title=None, height=None, x_title=None, y_title=Non
         font=dict(family=_FONT, size=13, color=INK),
         title=dict(text=title, x=0.01, xanchor="left", font=dict(size=16)) if title else None,
         paper_bgcolor="white", plot_bgcolor="white",
-        margin=dict(l=20, r=30, t=70 if title else 30, b=60),
-        height=height,
+        margin=dict(l=20, r=30, t=_TOP if title else _TOP_BARE, b=_BOTTOM),
+        height=None if height is None else int(round(height)),
         showlegend=legend,
         legend=dict(orientation="h", yref="container", yanchor="top", y=0.99, xanchor="right", x=1.0, traceorder="normal",
                     bgcolor="rgba(0,0,0,0)"),
@@ -208,7 +233,11 @@ def _density_outline(values: np.ndarray, centre: float, half_width: float, *, ve
     return (across, along) if vertical else (along, across)
 
 
-def _violins(groups, *, vertical: bool, half_width: float = 0.38, color=INK):
+#: Half-width of a violin as a share of the (smallest) row height or depth spacing.
+_VIOLIN_SHARE = 0.4
+
+
+def _violins(groups, *, vertical: bool, half_width: float, color=INK):
     """One scatter trace holding every violin (None-separated polygons, filled)."""
     xs, ys = [], []
     for centre, values in groups:
@@ -246,8 +275,16 @@ def _zero_line(fig, axis: str = "x"):
         fig.add_hline(y=0, line=dict(color=INK, width=1, dash="dot"))
 
 
-def _row_heights(labels) -> list[int]:
-    return [max(30, 16 * (lab.count("<br>") + 1) + 14) for lab in labels]
+def _rows(labels) -> tuple[np.ndarray, np.ndarray]:
+    """Row centres and heights, in pixels from the bottom: a row is as tall as its label needs."""
+    heights = np.array([max(30, 16 * (lab.count("<br>") + 1) + 14) for lab in labels], dtype=float)
+    return np.cumsum(heights) - heights / 2, heights
+
+
+def _row_axis(fig, pos, heights, labels):
+    """Tick labels at the row centres; the y axis spans the rows exactly (1 unit = 1 pixel)."""
+    fig.update_yaxes(tickmode="array", tickvals=pos, ticktext=labels, range=[0, float(heights.sum())],
+                     showgrid=False, ticks="", showline=False, zeroline=False)
 
 
 # -- subgroup effects ------------------------------------------------------------------------
@@ -285,25 +322,31 @@ def _subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None
 
     labels = []
     for r in ordered.itertuples(index=False):
-        lab = _wrap(r.rule, 42)
+        # Named groups (string ids) show their name, with the query in small print; tree
+        # subgroups (node ids) show their rule.
+        named = isinstance(r.subgroup, str)
+        lab = _wrap(r.subgroup if named else r.rule, 42)
         if r.subgroup == highlight:
             lab = f"<span style='color:{ACCENT}'><b>{lab}</b></span>"
-        labels.append(f"{lab}<br><span style='font-size:11px;color:#6b6e73'>n = {int(r.n_units):,} "
-                      f"({100 * float(r.share):.1f}%)</span>")
-    heights = _row_heights(labels)
-    pos = np.arange(n, dtype=float)
+        small = f"n = {int(r.n_units):,} ({100 * float(r.share):.1f}%)"
+        if named and r.subgroup not in pinned and str(r.rule).strip():
+            small = f"{_wrap(r.rule, 60)}<br>{small}"
+        labels.append(f"{lab}<br><span style='font-size:11px;color:#6b6e73'>{small}</span>")
+    pos, heights = _rows(labels)
 
     fig = go.Figure()
     if highlight is not None:
         k = ordered.index[ordered["subgroup"] == highlight][0]
-        fig.add_hrect(y0=k - 0.5, y1=k + 0.5, fillcolor=_rgba(ACCENT, 0.10), line_width=0, layer="below")
+        fig.add_hrect(y0=pos[k] - heights[k] / 2, y1=pos[k] + heights[k] / 2, fillcolor=_rgba(ACCENT, 0.10),
+                      line_width=0, layer="below")
     if len(top):
-        fig.add_hline(y=len(rest) - 0.5, line=dict(color=MUTED, width=1, dash="dot"))
+        fig.add_hline(y=float(heights[:len(rest)].sum()), line=dict(color=MUTED, width=1, dash="dot"))
     if draws is not None:
         missing = [s for s in ids if s not in draws]
         if missing:
             raise SummaryError(f"`draws` has no posterior draws for subgroup(s) {missing}.")
-        v = _violins([(pos[i], draws[s]) for i, s in enumerate(ordered["subgroup"])], vertical=False)
+        v = _violins([(pos[i], draws[s]) for i, s in enumerate(ordered["subgroup"])], vertical=False,
+                     half_width=_VIOLIN_SHARE * heights.min())
         if v is not None:
             fig.add_trace(v)
     _zero_line(fig, "x")
@@ -330,10 +373,11 @@ def _subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None
                        symbol="diamond" if name == "pinned" else "circle",
                        custom=custom[mask], hover=hover, name=name)
 
-    _style(fig, title=title, height=sum(heights) + (130 if title else 100),
+    _style(fig, title=title, height=heights.sum() + _margins(title),
            x_title=f"{_esc(effect_label or df.attrs.get('label') or 'Effect')} (mean and {level})")
-    fig.update_yaxes(tickmode="array", tickvals=pos, ticktext=labels, range=[-0.6, n - 0.4],
-                     showgrid=False, ticks="", showline=False)
+    fig.update_xaxes(range=_padded_range(ordered["lower"], ordered["upper"],
+                                         *(draws.values() if draws is not None else [])))
+    _row_axis(fig, pos, heights, labels)
     return fig
 
 
@@ -415,7 +459,7 @@ def _fit_by_depth_figure(summary: pd.DataFrame, draws_by_depth: Mapping | None =
         missing = [d for d in depths if d not in draws_by_depth]
         if missing:
             raise SummaryError(f"`draws_by_depth` has no draws for depth(s) {missing}.")
-        v = _violins([(float(d), draws_by_depth[d]) for d in depths], vertical=True, half_width=0.36)
+        v = _violins([(float(d), draws_by_depth[d]) for d in depths], vertical=True, half_width=_VIOLIN_SHARE * 0.9)
         if v is not None:
             fig.add_trace(v)
     level = _level_text(summary.attrs)
@@ -551,9 +595,11 @@ def _trends_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, eff
     k = len(chosen)
     cols = min(int(n_cols), k)
     rows = -(-k // cols)
+    panel, gap = (250 if k > 1 else 380), 70  # px per row of panels, px between rows (room for titles)
+    plot_height = rows * panel + (rows - 1) * gap
     level = f"{100 * curves.attrs['level']:g}%" if "level" in curves.attrs else ""
     fig = make_subplots(rows=rows, cols=cols, shared_yaxes="all", horizontal_spacing=0.06 if cols > 1 else 0.0,
-                        vertical_spacing=min(0.5 / rows, 0.16) if rows > 1 else 0.0,
+                        vertical_spacing=gap / plot_height if rows > 1 else 0.0,
                         subplot_titles=[_esc(c) for c in chosen] if k > 1 else None)
     for j, name in enumerate(chosen):
         d = curves[curves["covariate"] == name]
@@ -569,7 +615,7 @@ def _trends_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, eff
             fig.update_xaxes(title_text=_esc(name), **row_col)
     _band_legend(fig, level)
     label = _esc(effect_label or curves.attrs.get("label") or "Effect")
-    _style(fig, title=title, height=(300 if k > 1 else 380) * rows + 90, legend=True)
+    _style(fig, title=title, height=plot_height + (150 if title else 120), legend=True)
     fig.update_annotations(font=dict(size=13, color=INK))
     for r in range(1, rows + 1):
         fig.update_yaxes(title_text=label if r == (rows + 1) // 2 else None, row=r, col=1)
@@ -614,16 +660,49 @@ _COEF_COLS = ["term", "mean", "lower", "upper", "prob_positive"]
 _INTERCEPT_NAMES = {"intercept", "(intercept)", "const"}
 
 
-def _coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, title: str | None = None) -> go.Figure:
-    """Linear-summary coefficients: point + interval per term, in table order (first on top)."""
-    table = _require(table, _COEF_COLS, "table")
+def _per_unit(table: pd.DataFrame, per) -> pd.DataFrame:
+    """Coefficients of the terms in ``per`` multiplied by the given amounts (effect per that many units).
+
+    Multiplying every draw by a positive constant multiplies its mean and quantiles by the same
+    constant, so rescaling the table is exact; P(coefficient > 0) is unchanged.
+    """
+    if per is None:
+        return table.assign(shown=table["term"].astype(str))
+    if not isinstance(per, Mapping):
+        raise SummaryError(f"`per` must be a mapping of term -> amount, like {{'age': 10}}; got {type(per).__name__}.")
+    terms = table["term"].astype(str).tolist()
+    unknown = [t for t in per if t not in terms]
+    if unknown:
+        raise SummaryError(f"`per` names term(s) {', '.join(repr(u) for u in unknown)} that are not in the table; "
+                           f"terms: {', '.join(repr(t) for t in terms)}.")
+    out = table.copy()
+    out["shown"] = terms
+    for term, amount in per.items():
+        if isinstance(amount, bool) or not isinstance(amount, (int, float, np.integer, np.floating)) \
+                or not np.isfinite(amount) or amount <= 0:
+            raise SummaryError(f"`per[{term!r}]` must be a positive number; got {amount!r}.")
+        rows = out["term"].astype(str) == term
+        out.loc[rows, ["mean", "lower", "upper"]] *= float(amount)
+        out.loc[rows, "shown"] = f"{term} (per {float(amount):g})"
+    return out
+
+
+def _coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=None,
+                         title: str | None = None) -> go.Figure:
+    """Linear-summary coefficients: point + interval per term, in table order (first on top).
+
+    ``per`` maps terms to amounts: those coefficients are drawn per that many units
+    (for example ``{"age": 10}``: effect change per 10 years), so slopes of covariates on
+    very different scales can share one axis.
+    """
+    table = _per_unit(_require(table, _COEF_COLS, "table"), per)
     if not intercept:
         table = table[~table["term"].astype(str).str.lower().isin(_INTERCEPT_NAMES)]
         if len(table) == 0:
             raise SummaryError("`table` holds only the intercept; pass `intercept=True` to draw it.")
     d = table.iloc[::-1].reset_index(drop=True)  # first term on top
-    labels = [_wrap(t, 36) for t in d["term"]]
-    pos = np.arange(len(d), dtype=float)
+    labels = [_wrap(t, 36) for t in d["shown"]]
+    pos, heights = _rows(labels)
     level = _level_text(table.attrs)
     fig = go.Figure()
     _zero_line(fig, "x")
@@ -640,15 +719,15 @@ def _coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, title:
     if reference:  # dummies are read against these categories
         ref = "; ".join(f"{k} = {v}" for k, v in reference.items())
         x_title += f"<br><span style='font-size:11px;color:#6b6e73'>compared with {_wrap(ref, 90)}</span>"
-    _style(fig, title=title, height=sum(_row_heights(labels)) + (130 if title else 100) + 16 * bool(reference),
+    _style(fig, title=title, height=heights.sum() + _margins(title) + 16 * bool(reference),
            x_title=x_title)
-    fig.update_yaxes(tickmode="array", tickvals=pos, ticktext=labels, range=[-0.6, len(d) - 0.4],
-                     showgrid=False, ticks="", showline=False)
+    fig.update_xaxes(range=_padded_range(d["lower"], d["upper"]))
+    _row_axis(fig, pos, heights, labels)
     return fig
 
 
 def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tailed", intercept: bool = False,
-                      title: str | None = None) -> go.Figure:
+                      per=None, title: str | None = None) -> go.Figure:
     """Linear-summary coefficients with credible intervals.
 
     Parameters
@@ -658,6 +737,10 @@ def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tai
     interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
     intercept : bool, default False
         Also draw the intercept (usually on another scale than the slopes).
+    per : mapping of term -> float, optional
+        Draw these coefficients per that many units of their covariate, e.g.
+        ``{"baseline_bill": 100, "head_age": 10}``; a slope per unit of a covariate with a
+        large range is otherwise too small to read next to the category contrasts.
     title : str, optional
 
     Returns
@@ -667,7 +750,8 @@ def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tai
     from .linear import LinearSummary
 
     _check_type(linear, LinearSummary, "linear")
-    return _coefficients_figure(linear.table(level=level, interval=interval), intercept=intercept, title=title)
+    return _coefficients_figure(linear.table(level=level, interval=interval), intercept=intercept, per=per,
+                                title=title)
 
 
 # -- contrasts -------------------------------------------------------------------------------
@@ -705,7 +789,7 @@ def _contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) -
     # "P(A > B) = 1 - P(B > A)" ignores ties, which have probability zero for continuous draws.
     rule_a = d["rule_a"].iloc[0]
     labels = [_wrap(r, 42) for r in d["rule_b"]]
-    pos = np.arange(len(d), dtype=float)
+    pos, heights = _rows(labels)
     level = _level_text(df.attrs)
     fig = go.Figure()
     _zero_line(fig, "x")
@@ -719,11 +803,11 @@ def _contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) -
                           "<extra></extra>"))
     head = f"A: <span style='color:{ACCENT}'><b>{_wrap(rule_a, 70)}</b></span>"
     _style(fig, title=title, title_markup=None if title else f"{head}<br>minus each other subgroup B",
-           height=sum(_row_heights(labels)) + 150 + 16 * head.count("<br>"),
+           height=heights.sum() + _margins(True) + 20 + 16 * head.count("<br>"),
            x_title=f"Difference in effect, A minus B (mean and {level})")
     fig.update_layout(margin=dict(t=90 + 16 * head.count("<br>")))
-    fig.update_yaxes(tickmode="array", tickvals=pos, ticktext=labels, range=[-0.6, len(d) - 0.4],
-                     showgrid=False, ticks="", showline=False)
+    fig.update_xaxes(range=_padded_range(d["lower"], d["upper"]))
+    _row_axis(fig, pos, heights, labels)
     return fig
 
 

@@ -193,7 +193,7 @@ def test_subgroups_ordered_by_mean_with_exact_intervals():
     tr = _trace(fig, "subgroups")
     order = df.sort_values("mean")  # bottom (y = 0) to top
     np.testing.assert_allclose(tr.x, order["mean"])
-    np.testing.assert_allclose(tr.y, np.arange(len(df)))
+    assert np.all(np.diff(tr.y) > 0)  # largest mean on top
     np.testing.assert_allclose(np.array(tr.x) + tr.error_x.array, order["upper"])
     np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, order["lower"])
     np.testing.assert_allclose(tr.customdata[:, 5].astype(float), order["prob_positive"])
@@ -201,7 +201,10 @@ def test_subgroups_ordered_by_mean_with_exact_intervals():
     ticks = fig.layout.yaxis.ticktext
     assert "age &gt; 64" in ticks[list(order["subgroup"]).index(7)]
     assert "income ≤ 32000" in ticks[list(order["subgroup"]).index(3)]
-    assert [tuple(fig.layout.yaxis.tickvals)] == [tuple(range(4))]
+    np.testing.assert_allclose(fig.layout.yaxis.tickvals, tr.y)
+    # rows are as tall as their labels: a two-line rule gets a taller row than a one-line one
+    lines = [t.count("<br>") + 1 for t in ticks]
+    assert fig.layout.yaxis.range[1] == pytest.approx(sum(max(30, 16 * k + 14) for k in lines))
     # marker fill on the shared effect scale, zero line drawn
     vmax = np.abs(df["mean"]).max()
     assert list(tr.marker.color) == F.effect_color(order["mean"].to_numpy(), vmax)
@@ -243,17 +246,18 @@ def test_subgroups_show_draws_as_kde_violins():
     for k, p in enumerate(pieces):
         d = draws[order[k]]
         assert x[p].min() == pytest.approx(d.min()) and x[p].max() == pytest.approx(d.max())
-        assert (y[p] - k).max() == pytest.approx(0.38)
+        centre = fig.layout.yaxis.tickvals[k]
+        assert (y[p] - centre).max() == pytest.approx(0.4 * 46)  # 0.4 of the smallest row (two label lines)
         grid = np.linspace(d.min(), d.max(), 400)
         peak = grid[np.argmax(gaussian_kde(d)(grid))]
-        assert x[p][np.argmax(y[p] - k)] == pytest.approx(peak, abs=(d.max() - d.min()) / 90)
+        assert x[p][np.argmax(y[p] - centre)] == pytest.approx(peak, abs=(d.max() - d.min()) / 90)
 
 
 def test_subgroups_pinned_row_on_top():
     df, _ = _subgroup_table()
     fig = F._subgroups_figure(df, pinned=[8])
     pin = _trace(fig, "pinned")
-    assert list(pin.y) == [3.0] and pin.marker.symbol == "diamond"
+    assert list(pin.y) == [max(fig.layout.yaxis.tickvals)] and pin.marker.symbol == "diamond"
 
 
 @pytest.mark.parametrize("kwargs, match", [
@@ -298,7 +302,7 @@ def test_plot_subgroups_on_groups_pins_all_units(draws):
     fig = F.plot_subgroups(groups, show_draws=True, highlight="older")
     pin = _trace(fig, "pinned")
     tab = groups.table()
-    assert list(pin.y) == [len(tab) - 1.0]
+    assert list(pin.y) == [max(fig.layout.yaxis.tickvals)]
     assert pin.x[0] == pytest.approx(tab.loc[tab.subgroup == "All units", "mean"].item())
     assert all("<b>" not in t.replace("<b>%{customdata[0]}</b>", "") for t in _strings(fig.to_plotly_json())
                if "oil" in t)
@@ -657,3 +661,47 @@ def test_browser_path_setting_is_honoured(tmp_path, monkeypatch):
     fake.chmod(0o755)
     monkeypatch.setenv("BROWSER_PATH", str(fake))
     assert F.find_browser() == str(fake)
+
+
+# -- labels and axes -------------------------------------------------------------------------
+def test_wrap_breaks_between_conditions_and_escapes():
+    text = "tenure = owner & 52.2 < dwelling_age <= 89.8 & baseline_bill > 166 & x < 3"
+    assert F._wrap(text, 40).split("<br>") == ["tenure = owner &amp;", "52.2 &lt; dwelling_age ≤ 89.8 &amp;",
+                                               "baseline_bill &gt; 166 &amp; x &lt; 3"]
+    assert F._wrap("region in {north, south, west, east, central}", 20).split("<br>") == [
+        "region in {north,", "south, west, east,", "central}"]
+
+
+def test_effect_axes_always_show_zero():
+    df, _ = _subgroup_table()
+    df[["mean", "lower", "upper"]] += 50  # every interval far above zero
+    lo, hi = F._subgroups_figure(df).layout.xaxis.range
+    assert lo < 0 < hi and hi > df["upper"].max()
+
+
+def test_group_rows_show_name_then_query(draws):
+    groups = summarize_groups(draws, {"older owners": "age >= 60"})
+    fig = F.plot_subgroups(groups)
+    tick = [t for t in fig.layout.yaxis.ticktext if t.startswith("older owners")][0]
+    assert "age ≥ 60" in tick and "n = " in tick
+    assert [t for t in fig.layout.yaxis.ticktext if t.startswith("All units")]
+
+
+def test_coefficients_per_amount_rescales_exactly():
+    df = _coefs()
+    fig = F._coefficients_figure(df, per={"age": 10})
+    tr = _trace(fig, "coefficients")
+    np.testing.assert_allclose(tr.x, [1.5, 0.4, -0.5])
+    np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, [0.9, 0.3, -0.7])
+    assert fig.layout.yaxis.ticktext[-1] == "age (per 10)"  # first slope, on top
+    np.testing.assert_allclose(tr.customdata[:, 3].astype(float), [1.0, 1.0, 0.0])  # probabilities unchanged
+
+
+@pytest.mark.parametrize("per, match", [
+    ({"height": 2}, r"`per` names term\(s\) 'height' that are not in the table; terms: '\(intercept\)', 'age'"),
+    ({"age": 0}, r"`per\['age'\]` must be a positive number; got 0"),
+    ([("age", 10)], r"`per` must be a mapping of term -> amount, like \{'age': 10\}; got list"),
+])
+def test_coefficients_per_errors(per, match):
+    with pytest.raises(SummaryError, match=match):
+        F._coefficients_figure(_coefs(), per=per)
