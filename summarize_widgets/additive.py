@@ -259,6 +259,35 @@ def _pygam_model(X, info, n_splines, lam):
     return LinearGAM(functools.reduce(operator.add, terms))
 
 
+#: pygam's default smoothing grid and its GCV inflation factor (pygam.GAM.gridsearch and
+#: GAM._estimate_GCV_UBRE: GCV = n * deviance / (n - gamma * edof)^2 with gamma = 1.4).
+_LAM_GRID = np.logspace(-3, 3, 11)
+_GCV_GAMMA = 1.4
+
+
+def _gcv_search(R, z, yy, P1, n):
+    """The grid value minimizing pygam's GCV for a Gaussian additive model with penalty ``lam * P1``.
+
+    With ``sqrt(W) B = Q R`` and ``z = Q' sqrt(W) y``, each candidate needs only p x p work, done as
+    pygam's PIRLS does it: ``E'E = lam P1 + ridge``, SVD ``[R; E] = U D V'``, ``U1`` the top p rows of
+    ``U``; fitted values ``Q U1 U1' z``, ``edof = |U1|_F^2``, weighted deviance
+    ``|sqrt(W) y|^2 - 2 |U1' z|^2 + |U1 U1' z|^2``.
+    """
+    p = R.shape[0]
+    best, best_score = None, np.inf
+    for lam in _LAM_GRID:
+        E = np.linalg.cholesky(lam * P1 + _PYGAM_RIDGE * np.eye(p)).T
+        U, _, _ = np.linalg.svd(np.vstack([R, E]), full_matrices=False)
+        U1 = U[:p, :p]
+        u = U1.T @ z
+        dev = yy - 2.0 * (u @ u) + np.sum((U1 @ u) ** 2)
+        edof = float(np.sum(U1 * U1))
+        score = n * dev / (n - _GCV_GAMMA * edof) ** 2
+        if score < best_score:
+            best, best_score = float(lam), score
+    return best
+
+
 def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_size: int = 50,
                        progress=None) -> AdditiveSummary:
     """Fit an additive model to the posterior mean and apply its frozen smoother to every draw.
@@ -305,22 +334,30 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
     wk = draws.mean_weights[keep]
     target = draws.posterior_mean[keep]
 
-    gam = _pygam_model(X, info, n_splines, lam)
+    # The terms are compiled (knots from the data) once; the model matrix and penalties come from pygam.
+    gam = _pygam_model(X, info, n_splines, {c: 1.0 for c in cols} if lam is None else lam)
     # pygam prints "did not converge" and divides by zero on a constant target (no heterogeneity);
     # that case is reported by fit_r2, and the frozen smoother below never relies on pygam's iterations.
     with warnings.catch_warnings(), contextlib.redirect_stdout(io.StringIO()):
         warnings.simplefilter("ignore", RuntimeWarning)
-        if lam is None:
-            gam.gridsearch(X, target, weights=wk, progress=False)
-            source = "GCV grid search (pygam default grid, one lam for all terms)"
-        else:
-            gam.fit(X, target, weights=wk)  # compiles the terms (knots) for the given lam
-            source = "given"
-    lam_used = {it["spec"].name: float(gam.lam[j][0]) for j, it in enumerate(info)}
+        gam.fit(X, target, weights=wk)  # one fit: compiles the terms and sets pygam's fitted state
     design = gam._modelmat(X).tocsr()
     p = design.shape[1]
-    penalty = gam._P().toarray() + _PYGAM_RIDGE * np.eye(p)
-    proj = FrozenProjection(draws, design.toarray(), keep, penalty=penalty, intercept=p - 1)
+    sw = np.sqrt(wk)
+    Q, R = np.linalg.qr(sw[:, None] * design.toarray())
+    if lam is None:
+        # pygam's gridsearch criterion, computed from one QR instead of one pygam fit per candidate.
+        best = _gcv_search(R, Q.T @ (sw * target), float(wk @ (target * target)), gam._P().toarray(), target.size)
+        lam_used = {c: best for c in cols}
+        penalty = best * gam._P().toarray()
+        source = "GCV grid search (pygam's default grid and criterion, one lam for all terms)"
+    else:
+        lam_used = {it["spec"].name: float(gam.lam[j][0]) for j, it in enumerate(info)}
+        penalty = gam._P().toarray()
+        source = "given"
+    penalty = penalty + _PYGAM_RIDGE * np.eye(p)
+    proj = FrozenProjection(draws, None, keep, penalty=penalty, intercept=p - 1, qr=(Q, R))
+    del Q
     coef, r2 = proj.run(draws, progress=progress)
 
     bbar = np.asarray(design.T @ wk).ravel() / wk.sum()

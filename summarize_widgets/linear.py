@@ -98,6 +98,8 @@ class FrozenProjection:
         Index of the column of ones.
     terms : list of str
         Column names, for the rank-deficiency message.
+    qr : tuple (Q, R), optional
+        The thin QR of ``sqrt(wbar) B`` when the caller already has it.
 
     Notes
     -----
@@ -113,8 +115,9 @@ class FrozenProjection:
     where ``q1 = Q' sqrt(wbar)`` and ``Q'_s = sum_i wbar_i (Y_si - c_s)^2``.
     """
 
-    def __init__(self, draws, design: np.ndarray, keep: np.ndarray, *, penalty=None, intercept: int = 0, terms=None):
-        n_kept, p = design.shape
+    def __init__(self, draws, design: np.ndarray, keep: np.ndarray, *, penalty=None, intercept: int = 0, terms=None,
+                 qr=None):
+        n_kept, p = design.shape if design is not None else qr[0].shape
         if n_kept <= p:
             raise SummaryError(
                 f"The summary has {p} coefficients but only {n_kept} units with positive weight; "
@@ -123,7 +126,7 @@ class FrozenProjection:
         wbar = draws.mean_weights
         w = wbar[keep]
         sw = np.sqrt(w)
-        Q, R = np.linalg.qr(sw[:, None] * design)
+        Q, R = np.linalg.qr(sw[:, None] * design) if qr is None else qr
         if penalty is None:
             _rank_check(R, list(terms) if terms is not None else [str(k) for k in range(p)])
             self.coef_map = solve_triangular(R, np.eye(p))
