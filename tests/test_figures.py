@@ -339,7 +339,7 @@ def test_fit_by_depth_on_a_real_tree(tree):
     assert list(tr.marker.line.color) == [F.INK, F.ACCENT, F.INK]
     assert "80% credible interval" in fig.layout.yaxis.title.text
     violins = _trace(fig, "posterior density")
-    assert sum(v is None for v in violins.x) == 3
+    assert int(np.isnan(np.asarray(violins.x, dtype=float)).sum()) == 3  # one NaN gap after each violin
     assert "subgroups" in fig.layout.xaxis.ticktext[0]
     no_violins = F.plot_fit_by_depth(t2, show_draws=False, current_depth=3)
     assert [t.name for t in no_violins.data] == ["summary R²"]
@@ -349,7 +349,7 @@ def test_fit_by_depth_skips_violin_of_constant_draws():
     summary = pd.DataFrame({"depth": [1, 2], "n_subgroups": [2, 4], "mean": [0.4, 1.0],
                             "lower": [0.3, 1.0], "upper": [0.5, 1.0]})
     fig = F._fit_by_depth_figure(summary, {1: np.random.default_rng(0).normal(0.4, 0.05, 200), 2: np.ones(200)})
-    assert sum(v is None for v in _trace(fig, "posterior density").x) == 1
+    assert int(np.isnan(np.asarray(_trace(fig, "posterior density").x, dtype=float)).sum()) == 1
 
 
 def test_fit_by_depth_errors():
@@ -705,3 +705,34 @@ def test_coefficients_per_amount_rescales_exactly():
 def test_coefficients_per_errors(per, match):
     with pytest.raises(SummaryError, match=match):
         F._coefficients_figure(_coefs(), per=per)
+
+
+def test_complier_weighted_tree_flags_weak_uptake_and_shows_complier_share():
+    # Encouragement design: a subgroup where almost nobody takes up the offer has an unstable ratio.
+    rng = np.random.default_rng(8)
+    n, S = 600, 200
+    X = pd.DataFrame({"age": rng.uniform(20, 80, n)})
+    uptake = np.where(X["age"].to_numpy() > 50, 0.6, 0.004) + rng.normal(0, 0.002, (S, n))
+    itt = -2.0 * uptake + rng.normal(0, 0.05, (S, n))
+    d = sw.EffectDraws.from_itt(itt, np.clip(uptake, 1e-4, None), X)
+    t = summarize_tree(d, max_depth=1, min_size=50)
+    tab = t.table()
+    assert tab["weak_uptake"].any() and not tab["weak_uptake"].all()
+    fig = F.plot_subgroups(t)
+    flagged = [lab for lab in fig.layout.yaxis.ticktext if "weak uptake" in lab]
+    assert len(flagged) == int(tab["weak_uptake"].sum())
+    tr = _trace(fig, "subgroups")
+    assert "complier share" in tr.hovertemplate
+    order = tab.sort_values("mean")
+    np.testing.assert_allclose(tr.customdata[:, 6].astype(float), order["uptake_share"])
+
+
+@pytest.mark.parametrize("n", [50, 4000])
+def test_binned_kde_matches_scipy_gaussian_kde(n):
+    # Reference: scipy.stats.gaussian_kde (exact sum over draws, Scott's bandwidth by default).
+    from scipy.stats import gaussian_kde
+
+    v = np.random.default_rng(n).gamma(3.0, 2.0, n)
+    grid = np.linspace(v.min(), v.max(), 97)
+    ours, ref = F._kde(v, grid), gaussian_kde(v)(grid)
+    assert np.abs(ours - ref).max() <= 2e-3 * ref.max()
