@@ -438,8 +438,8 @@ def plot_subgroups(result, *, level: float = 0.95, interval: str = "equal-tailed
 def _check_type(obj, types, name: str) -> None:
     if not isinstance(obj, types):
         types = types if isinstance(types, tuple) else (types,)
-        want = " or ".join(t.__name__ for t in types)
-        raise SummaryError(f"`{name}` must be a {want}; got {type(obj).__name__}.")
+        want = " or ".join(("an " if t.__name__[0] in "AEIOU" else "a ") + t.__name__ for t in types)
+        raise SummaryError(f"`{name}` must be {want}; got {type(obj).__name__}.")
 
 
 def _as_ids(ids) -> list:

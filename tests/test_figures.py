@@ -309,15 +309,15 @@ def test_plot_subgroups_on_groups_pins_all_units(draws):
 
 
 def test_plot_functions_reject_wrong_result_types(tree):
-    with pytest.raises(SummaryError, match="`result` must be a TreeSummary or GroupSummary; got DataFrame"):
+    with pytest.raises(SummaryError, match="`result` must be a TreeSummary or a GroupSummary; got DataFrame"):
         F.plot_subgroups(pd.DataFrame())
     with pytest.raises(SummaryError, match="`tree` must be a TreeSummary; got str"):
         F.plot_fit_by_depth("tree")
-    with pytest.raises(SummaryError, match="`additive` must be a AdditiveSummary; got TreeSummary"):
+    with pytest.raises(SummaryError, match="`additive` must be an AdditiveSummary; got TreeSummary"):
         F.plot_trends(tree)
     with pytest.raises(SummaryError, match="`linear` must be a LinearSummary; got TreeSummary"):
         F.plot_coefficients(tree)
-    with pytest.raises(SummaryError, match="`result` must be a TreeSummary or GroupSummary; got int"):
+    with pytest.raises(SummaryError, match="`result` must be a TreeSummary or a GroupSummary; got int"):
         F.plot_contrasts(3, 1)
 
 
