@@ -15,7 +15,9 @@ import plotly.graph_objects as go
 import pytest
 
 import summarize_widgets as sw
+import summarize_widgets._static_export as SE
 import summarize_widgets.figures as F
+from summarize_widgets._files import _umask, write_atomic
 from summarize_widgets import SummaryError
 from summarize_widgets.groups import summarize_groups
 from summarize_widgets.tree import summarize_tree
@@ -571,7 +573,7 @@ def test_save_figures_writes_valid_svg_pdf_png(tmp_path, small_fig):
     for data in (svg, pdf, png):
         assert len(data) > 5_000
     assert sorted(p.name for p in tmp_path.iterdir()) == ["fig.pdf", "fig.png", "fig.svg"]  # no temp files left
-    assert (os.stat(tmp_path / "fig.png").st_mode & 0o777) == 0o666 & ~F._umask()
+    assert (os.stat(tmp_path / "fig.png").st_mode & 0o777) == 0o666 & ~_umask()
 
 
 @needs_browser
@@ -598,9 +600,9 @@ def test_write_atomic_never_clobbers_a_file_created_meanwhile(tmp_path):
     target = tmp_path / "a.svg"
     target.write_bytes(b"first")
     with pytest.raises(FileExistsError, match=r"a\.svg' already exists"):
-        F._write_atomic(target, b"second", overwrite=False)
+        write_atomic(target, b"second", overwrite=False)
     assert target.read_bytes() == b"first" and [p.name for p in tmp_path.iterdir()] == ["a.svg"]
-    F._write_atomic(target, b"second", overwrite=True)
+    write_atomic(target, b"second", overwrite=True)
     assert target.read_bytes() == b"second"
 
 
@@ -627,7 +629,7 @@ def test_save_figure_rejects_non_figures(tmp_path, small_fig):
 
 
 def test_save_figures_checks_every_target_before_rendering(tmp_path, small_fig, monkeypatch):
-    monkeypatch.setattr(F, "_render", lambda jobs: pytest.fail("rendered although a target was refused"))
+    monkeypatch.setattr(SE, "_render", lambda jobs: pytest.fail("rendered although a target was refused"))
     (tmp_path / "b.pdf").write_bytes(b"old")
     with pytest.raises(FileExistsError, match=r"b\.pdf' already exists"):
         F.save_figures([(small_fig, tmp_path / "a.svg"), (small_fig, tmp_path / "b.pdf")])
@@ -640,8 +642,8 @@ def test_save_figures_checks_every_target_before_rendering(tmp_path, small_fig, 
 
 def test_missing_browser_gives_install_hint(tmp_path, small_fig, monkeypatch):
     monkeypatch.delenv("BROWSER_PATH", raising=False)
-    monkeypatch.setattr(F.shutil, "which", lambda name: None)
-    monkeypatch.setattr(F, "_TYPICAL_PATHS", ())
+    monkeypatch.setattr(SE.shutil, "which", lambda name: None)
+    monkeypatch.setattr(SE, "_TYPICAL_PATHS", ())
     with pytest.raises(F.BrowserNotFoundError, match=r"No Chromium-family browser found\..*apt-get install chromium"):
         F.find_browser()
     with pytest.raises(F.BrowserNotFoundError, match="apt-get install chromium"):
