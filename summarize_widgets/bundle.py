@@ -25,6 +25,7 @@ class SummaryBundle:
     linear: object = None
     groups: object = None
     files: list = field(default_factory=list)
+    notes: list = field(default_factory=list)
 
     @property
     def results(self) -> dict:
@@ -76,10 +77,17 @@ def _folder_ready(out_dir: Path, overwrite: bool) -> None:
 
 
 def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95, interval: str = "equal-tailed",
-                         inputs=None, figures: bool = True, figure_formats=FIGURE_FORMATS, digits: int = 2,
+                         inputs=None, figures="auto", figure_formats=FIGURE_FORMATS, digits: int = 2,
                          title: str | None = None, overwrite: bool = False) -> list[Path]:
     """Write tables (LaTeX, Markdown, CSV, HTML), figures (SVG, PDF, PNG), ``report.html`` and
     ``provenance.json`` into ``out_dir``.
+
+    Parameters
+    ----------
+    figures : {"auto", True, False}, default "auto"
+        Static figure files need a Chromium-family browser (kaleido drives it). "auto" writes
+        them when one is found and otherwise skips them (``bundle.notes`` says so; the report's
+        interactive figures need no browser); True requires them; False skips them.
 
     An existing non-empty folder is refused unless ``overwrite=True``; every file is written
     atomically. Returns the written paths.
@@ -100,6 +108,13 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
                                 linear=bundle.linear, provenance=prov, level=level, interval=interval,
                                 digits=digits, title=title or f"Posterior summary: {bundle.draws.label}",
                                 overwrite=overwrite))
+    if figures == "auto":
+        from ._static_export import BrowserNotFoundError, find_browser
+        try:
+            find_browser()
+        except BrowserNotFoundError as exc:
+            figures = False
+            bundle.notes.append(f"Static figure files skipped: {exc}")
     if figures:
         written.extend(_write_figures(bundle, out_dir / "figures", level, interval, figure_formats, overwrite))
     bundle.files = written

@@ -177,6 +177,12 @@ def _print_headline(bundle, level, interval) -> None:
         print(f"\nSummary R^2: {exc}")
 
 
+def _finish(bundle, files, out) -> None:
+    for note in bundle.notes:
+        print(f"\nNote: {note}")
+    print(f"\nWrote {len(files)} files into {out} (open {out / 'report.html'} in a browser).")
+
+
 def _cmd_demo(args) -> int:
     from .bundle import write_summary_folder
     from .demo import simulate_retrofit_study
@@ -189,10 +195,11 @@ def _cmd_demo(args) -> int:
     print(f"Simulated retrofit study: {draws}")
     bundle = _summaries(draws, args)
     _print_headline(bundle, args.level, args.interval)
-    files = write_summary_folder(bundle, out, level=args.level, interval=args.interval, figures=not args.no_figures,
+    files = write_summary_folder(bundle, out, level=args.level, interval=args.interval,
+                                 figures=False if args.no_figures else "auto",
                                  inputs={"simulated study (seed {})".format(args.seed): draws.values},
                                  overwrite=args.overwrite)
-    print(f"\nWrote {len(files)} files into {out} (open {out / 'report.html'} in a browser).")
+    _finish(bundle, files, out)
     return 0
 
 
@@ -215,8 +222,8 @@ def _cmd_report(args) -> int:
     _print_headline(bundle, args.level, args.interval)
     inputs = [args.draws, args.covariates] + ([args.uptake] if args.uptake else [])
     files = write_summary_folder(bundle, out, level=args.level, interval=args.interval, inputs=inputs,
-                                 figures=not args.no_figures, overwrite=args.overwrite)
-    print(f"\nWrote {len(files)} files into {out} (open {out / 'report.html'} in a browser).")
+                                 figures=False if args.no_figures else "auto", overwrite=args.overwrite)
+    _finish(bundle, files, out)
     return 0
 
 

@@ -118,3 +118,17 @@ def test_report_for_own_draws_with_groups(own_files, tmp_path):
     prov = json.loads((out / "provenance.json").read_text())
     names = [i.get("name") for i in prov["inputs"]]
     assert "draws.npy" in names and "cov.csv" in names
+
+
+def test_without_a_browser_the_folder_is_written_and_figures_are_skipped_with_a_note(own_files, tmp_path, monkeypatch, capsys):
+    import summarize_widgets._static_export as SE
+
+    monkeypatch.delenv("BROWSER_PATH", raising=False)
+    monkeypatch.setattr(SE.shutil, "which", lambda name: None)
+    monkeypatch.setattr(SE, "_TYPICAL_PATHS", ())
+    out = tmp_path / "nob"
+    code = main(["report", str(own_files / "draws.npy"), "--covariates", str(own_files / "cov.csv"), "--out", str(out)])
+    text = capsys.readouterr().out
+    assert code == 0
+    assert "Static figure files skipped" in text and "apt-get install chromium" in text
+    assert (out / "report.html").exists() and not (out / "figures").exists()
