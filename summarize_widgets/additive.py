@@ -25,7 +25,8 @@ from ._design import ColumnSpec, category_codes, classify_columns, numeric_value
 from ._validate import SummaryError, check_columns, check_int
 from .intervals import interval as credible_interval
 from .intervals import simultaneous_band, summarize_draws
-from .linear import FrozenProjection, check_draws, checked_r2, r2_note
+from ._fit import ProjectedFit
+from .linear import FrozenProjection, check_draws
 
 __all__ = ["summarize_additive", "AdditiveSummary"]
 
@@ -111,7 +112,7 @@ def _grid(obs: np.ndarray, grid_size: int) -> np.ndarray:
     return np.linspace(lo, hi, grid_size)
 
 
-class AdditiveSummary:
+class AdditiveSummary(ProjectedFit):
     """Posterior of an additive summary ``f_0 + sum_j f_j(x_j)`` of the effect.
 
     Build it with :func:`summarize_additive`.
@@ -148,20 +149,6 @@ class AdditiveSummary:
         self.lam = lam
         self.label = label
         self.settings = settings
-
-    @property
-    def fit_r2(self) -> np.ndarray:
-        """Summary R^2 per draw, shape (n_draws,) (METHOD.md section 3 with the pseudo-values).
-
-        NaN for draws with no heterogeneity (``fit_r2_note`` says how many); raises
-        :class:`SummaryError` when no draw has any.
-        """
-        return checked_r2(self._r2, self._r2.size)
-
-    @property
-    def fit_r2_note(self) -> str:
-        """How many draws had no heterogeneity (their R^2 is undefined), or ""."""
-        return r2_note(self._r2)
 
     @property
     def overall_draws(self) -> np.ndarray:
@@ -224,19 +211,6 @@ class AdditiveSummary:
             return pd.DataFrame(columns=["covariate", "mean", "sd", "lower", "upper", "prob_positive"])
         draws = self.coef_draws @ np.column_stack([self._C_missing[k] for k in names])
         return pd.DataFrame({"covariate": names, **summarize_draws(draws, level, interval)})
-
-    def fitted_values(self, rows=None) -> np.ndarray:
-        """Smoothed draws ``B gamma_s``, shape (n_rows, n_units); NaN for units with zero weight.
-
-        Parameters
-        ----------
-        rows : None, int, slice or array of int
-            Which draws (default: all; mind the memory, n_draws x n_units).
-        """
-        coef = self.coef_draws if rows is None else np.atleast_2d(self.coef_draws[rows])
-        out = np.full((coef.shape[0], self._keep.size), np.nan)
-        out[:, self._keep] = (self._design @ coef.T).T
-        return out
 
     def __repr__(self) -> str:
         return f"AdditiveSummary('{self.label}': {len(self.columns)} covariates, {self.coef_draws.shape[0]} draws)"

@@ -24,6 +24,7 @@ from scipy.linalg import solve_triangular
 
 from ._design import classify_columns, linear_design
 from ._passes import LinearMap, run_pass
+from ._fit import ProjectedFit
 from ._validate import SummaryError, check_columns
 from .intervals import summarize_draws
 
@@ -170,22 +171,6 @@ class FrozenProjection:
         return coef, np.clip(r2, 0.0, 1.0)
 
 
-def checked_r2(r2: np.ndarray, n_draws: int) -> np.ndarray:
-    """Return ``r2``; raise when no draw has heterogeneity (NaN marks single draws without any)."""
-    if int(np.isnan(r2).sum()) == n_draws:
-        raise SummaryError(
-            "Summary R^2 is undefined: every posterior draw has the same effect for all units "
-            "(no heterogeneity to explain), so there is nothing for a summary to capture."
-        )
-    return r2
-
-
-def r2_note(r2: np.ndarray) -> str:
-    """How many draws had no heterogeneity (their R^2 is NaN), or ""."""
-    k = int(np.isnan(r2).sum())
-    return "" if k == 0 else f"{k} of {r2.size} draws have no heterogeneity; their summary R^2 is undefined (NaN)."
-
-
 def check_draws(draws):
     from .draws import EffectDraws
 
@@ -195,7 +180,7 @@ def check_draws(draws):
     return keep
 
 
-class LinearSummary:
+class LinearSummary(ProjectedFit):
     """Posterior of the best linear approximation ``B gamma`` of the effect, ``B = [1, X]``.
 
     Build it with :func:`summarize_linear`. The coefficients' posterior is the posterior
@@ -228,19 +213,6 @@ class LinearSummary:
         self.label = label
         self.settings = settings
 
-    @property
-    def fit_r2(self) -> np.ndarray:
-        """Summary R^2 per draw, shape (n_draws,), with the pseudo-values' definitions of METHOD.md section 3.
-
-        NaN for draws with no heterogeneity (``fit_r2_note`` says how many); raises :class:`SummaryError` when no draw has any.
-        """
-        return checked_r2(self._r2, self._r2.size)
-
-    @property
-    def fit_r2_note(self) -> str:
-        """How many draws had no heterogeneity (their R^2 is undefined), or ""."""
-        return r2_note(self._r2)
-
     def table(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """One row per coefficient.
 
@@ -252,19 +224,6 @@ class LinearSummary:
         out = pd.DataFrame({"term": self.terms, **stats})
         out.attrs.update({"level": float(level), "interval": interval, "label": self.label,
                           "reference": dict(self.reference), "kind": "linear"})
-        return out
-
-    def fitted_values(self, rows=None) -> np.ndarray:
-        """Projected draws ``B gamma_s``, shape (n_rows, n_units); NaN for units with zero weight.
-
-        Parameters
-        ----------
-        rows : None, int, slice or array of int
-            Which draws (default: all; mind the memory, n_draws x n_units).
-        """
-        coef = self.coef_draws if rows is None else np.atleast_2d(self.coef_draws[rows])
-        out = np.full((coef.shape[0], self._keep.size), np.nan)
-        out[:, self._keep] = coef @ self._design.T
         return out
 
     def __repr__(self) -> str:

@@ -25,6 +25,7 @@ import pandas as pd
 from sklearn.tree import DecisionTreeRegressor
 
 from ._design import ColumnSpec, category_codes, classify_columns, numeric_values
+from ._fit import checked_r2, r2_note
 from ._passes import LeafSums, run_pass
 from ._rules import Condition, combine, nice_threshold
 from ._subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
@@ -342,31 +343,22 @@ class TreeSummary:
             r2 = np.where(none, np.nan, 1.0 - np.clip(sse, 0.0, None) / np.where(none, 1.0, sst))
         return np.clip(r2, 0.0, 1.0)
 
-    def _checked_r2(self, r2: np.ndarray) -> np.ndarray:
-        if np.isnan(r2).all():
-            raise SummaryError(
-                "Summary R^2 is undefined: every posterior draw has the same effect for all units "
-                "(no heterogeneity to explain), so there is nothing for a summary to capture."
-            )
-        return r2
-
     @property
     def fit_r2(self) -> np.ndarray:
         """Summary R^2 per draw at the current depth, shape (n_draws,).
 
         NaN for draws with no heterogeneity (see ``fit_r2_note``); raises when every draw has none.
         """
-        return self._checked_r2(self._r2_at(self.current_depth))
+        return checked_r2(self._r2_at(self.current_depth))
 
     @property
     def fit_r2_note(self) -> str:
         """How many draws had no heterogeneity (their R^2 is undefined), or ""."""
-        k = int(np.isnan(self._r2_at(self.current_depth)).sum())
-        return "" if k == 0 else f"{k} of {self._f.draws.n_draws} draws have no heterogeneity; their summary R^2 is undefined (NaN)."
+        return r2_note(self._r2_at(self.current_depth))
 
     def fit_r2_draws_by_depth(self) -> dict[int, np.ndarray]:
         """Depth -> per-draw summary R^2 (n_draws,), for every depth 1..max_depth."""
-        return {d: self._checked_r2(self._r2_at(d)) for d in range(1, self.max_depth + 1)}
+        return {d: checked_r2(self._r2_at(d)) for d in range(1, self.max_depth + 1)}
 
     def fit_r2_by_depth(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """Posterior of summary R^2 at every depth: ``depth``, ``n_subgroups``, ``mean``, ``lower``, ``upper``."""
