@@ -13,6 +13,9 @@
  *   palette       Palette       diverging colours shared with figures.py
  *   colour_limit  number        |mean| that gets the full colour (<= 0: from the leaves)
  *   caption       string        one line above the tree
+ * and writes:
+ *   selected      on a click (or Enter / Space on a focused box)
+ *   client_width  the px width of the view, when it changes
  *
  * The pure functions (layout, colour scale, formatting) are exported so that
  * tests/js/ can check them with `node --test`.
@@ -65,6 +68,8 @@ export const DEFAULT_PALETTE = Object.freeze({
 });
 
 const MINUS = "\u2212";
+// Width changes smaller than this (px) are not reported back to Python.
+const WIDTH_STEP = 8;
 const DARK_TEXT = "#222222";
 
 /**
@@ -343,12 +348,21 @@ export function truncate(text, max) {
 }
 
 /**
+ * A condition as printed: "<=" and ">=" typeset as the figures print them.
+ * @param {string} text
+ * @returns {string}
+ */
+export function typeset(text) {
+  return String(text ?? "").replaceAll("<=", "\u2264").replaceAll(">=", "\u2265");
+}
+
+/**
  * The three text lines of a box.
  * @param {NodeRecord} rec
  * @returns {[string, string, string]}
  */
 export function boxLines(rec) {
-  const head = rec.parent === -1 || !rec.split ? "All units" : rec.split;
+  const head = rec.parent === -1 || !rec.split ? "All units" : typeset(rec.split);
   return [
     head,
     `${formatCount(rec.n_units)} units \u00b7 ${formatShare(rec.share)}`,
@@ -413,7 +427,7 @@ function drawTree(nodes, selected, palette, limit, onPick) {
       "aria-selected": rec.node === selected ? "true" : "false",
     });
     const title = svgEl("title", {});
-    title.textContent = `${rec.rule || "All units"}\n${formatCount(rec.n_units)} units (${formatShare(rec.share)})\n` +
+    title.textContent = `${typeset(rec.rule) || "All units"}\n${formatCount(rec.n_units)} units (${formatShare(rec.share)})\n` +
       `mean ${formatNumber(rec.mean, 4)}, interval ${formatInterval(rec.lower, rec.upper)}`;
     group.appendChild(title);
     group.appendChild(svgEl("rect", { class: "swtv-box", width: g.width, height: g.height, rx: 5, fill }));
@@ -540,8 +554,27 @@ function render({ model, el }) {
   const events = ["change:nodes", "change:selected", "change:palette", "change:colour_limit", "change:caption"];
   for (const name of events) model.on(name, draw);
   draw();
+
+  // Report the width available to the explorer, so the Python side can size its figures
+  // (plotly's widget keeps the width it had when first drawn).
+  /** @type {ReturnType<typeof setTimeout> | undefined} */
+  let timer;
+  const report = () => {
+    const width = Math.round(root.clientWidth);
+    if (width > 0 && Math.abs(width - Number(model.get("client_width") ?? 0)) >= WIDTH_STEP) {
+      model.set("client_width", width);
+      model.save_changes();
+    }
+  };
+  const observer = typeof ResizeObserver === "undefined" ? null : new ResizeObserver(() => {
+    clearTimeout(timer);
+    timer = setTimeout(report, 150);
+  });
+  observer?.observe(root);
   return () => {
     for (const name of events) model.off(name, draw);
+    observer?.disconnect();
+    clearTimeout(timer);
     root.remove();
   };
 }

@@ -157,6 +157,21 @@ def test_table_html_escapes_and_marks_the_selected_row():
     assert "nth-child" not in P.table_html(tab, selected_row=None, css_scope="scope-x")
 
 
+def test_estimate_text_matches_the_tree_view(tmp_path):
+    """The status line prints numbers as the ES module does (formatEstimate), checked by running it."""
+    node = _node_or_skip()
+    cases = [(-10.0, -14.0, -6.0), (-4.0, -8.0, 0.5), (1500.4, 1200.0, 1800.6), (9.996, 9.0, 9.5),
+             (0.01234, -0.0001, 0.02), (0.0, 0.0, 0.0), (float("nan"), 1.0, 2.0)]
+    script = tmp_path / "numbers.mjs"
+    script.write_text(
+        f"import {{ formatEstimate }} from {json.dumps((REPO / 'js' / 'tree_view.js').as_uri())};\n"
+        f"const cases = {json.dumps([[None if np.isnan(v) else v for v in c] for c in cases])};\n"
+        "console.log(JSON.stringify(cases.map((c) => formatEstimate(...c))));\n")
+    out = json.loads(subprocess.run([node, str(script)], capture_output=True, text=True, check=True).stdout)
+    assert out == [P.estimate_text(*c) for c in cases]
+    assert P.estimate_text(-10.0, -14.0, -6.0) == "\u221210.0 [\u221214.0, \u22126.0]"
+
+
 def test_status_html_escapes_and_checks_kind():
     assert "&lt;script&gt;" in P.status_html("<script>", kind="error")
     with pytest.raises(ValueError, match=r"`kind` must be one of \['busy', 'error', 'info'\]; got 'loud'"):
@@ -216,7 +231,7 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     explorer.apply(selected=leaf, level=0.9)
     rule = leaves3.table().set_index("subgroup").loc[leaf, "rule"]
     assert _highlighted_rule(effects) == _plain(rule)
-    assert explorer.status.value.count(html.escape(rule)) == 1
+    assert explorer.status.value.count(html.escape(_plain(rule))) == 1
 
     # Intervals at the new level equal numpy quantiles (type 7) of per-draw means from a pandas groupby.
     ref = _leaf_draws_by_groupby(study.itt_outcome_draws, study.covariates, leaves3)
@@ -237,10 +252,17 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     assert html.escape(_plain(rule), quote=False)[:30] in contrasts.layout.title.text.replace("<br>", " ")
     assert len(contrasts.data[-1].y) == len(leaves3.leaf_ids) - 1
 
-    # Back to depth 2: the selection moves to the ancestor that is a subgroup there.
+    # Back to depth 2: the selection moves to the ancestor that is a subgroup there...
+    explorer._tabs.selected_index = 0
     explorer.apply(depth=2)
     parent = {r["node"]: r["parent"] for r in node_records(leaves3.nodes())}
     assert explorer.tree_view.selected == parent[leaf]
+    assert _highlighted_rule(effects) == _plain(leaves3.depth(2).table().set_index("subgroup").loc[parent[leaf], "rule"])
+    # ...and comes back to the picked subgroup when the tree is deep enough again.
+    explorer.apply(depth=1)
+    explorer.apply(depth=3)
+    assert explorer.tree_view.selected == leaf
+    assert _highlighted_rule(effects) == _plain(rule)
 
 
 def test_selecting_an_inner_node_clears_the_highlight(explorer):
@@ -258,6 +280,17 @@ def test_clicks_from_the_front_end_go_through_the_same_path(explorer):
     explorer.tree_view.selected = leaf  # what the ES module does on a click
     assert explorer.settings["selected"] == leaf
     assert _highlighted_rule(explorer._panels["effects"].figure) is not None
+
+
+def test_figures_follow_the_width_the_browser_reports(explorer):
+    explorer.tree_view.client_width = 1000  # what the ES module's ResizeObserver does
+    figures = [p.figure for p in explorer._panels.values() if p.figure is not None]
+    assert len(figures) == 5
+    assert all(f.layout.width == 960 and f._widget_layout["width"] == 960 for f in figures)
+    explorer.apply(depth=3)  # redrawn panels keep the width
+    assert explorer._panels["effects"].figure.layout.width == 960
+    explorer.tree_view.client_width = 200
+    assert all(f.layout.width == explorer_module.MIN_FIGURE_WIDTH for f in figures)
 
 
 def test_apply_rejects_impossible_values(explorer):

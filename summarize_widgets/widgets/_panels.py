@@ -20,6 +20,7 @@ from ..export import to_html
 
 __all__ = [
     "show_figure",
+    "set_width",
     "message_figure",
     "subgroups_figure",
     "fit_figure",
@@ -28,7 +29,12 @@ __all__ = [
     "contrasts_figure",
     "table_html",
     "status_html",
+    "header_html",
+    "estimate_text",
+    "typeset",
 ]
+
+MINUS = "\u2212"
 
 
 def show_figure(widget: go.FigureWidget, fig: go.Figure) -> None:
@@ -61,6 +67,12 @@ def show_figure(widget: go.FigureWidget, fig: go.Figure) -> None:
     widget.add_traces(list(fig.data))
     widget._widget_layout = deepcopy(widget._layout_obj._props)
     widget._widget_data = deepcopy(widget._data)
+
+
+def set_width(widget: go.FigureWidget, width: int | None) -> None:
+    """Give ``widget`` a fixed width in px (None: plotly's default), in the view and in the saved state."""
+    widget.layout.width = width
+    widget._widget_layout = deepcopy(widget._layout_obj._props)
 
 
 def message_figure(text: str, *, height: int = 240) -> go.Figure:
@@ -143,6 +155,47 @@ def status_html(text: str, *, kind: str = "info") -> str:
     role = ' role="alert"' if kind == "error" else ""
     return (f'<div class="swx-status swx-status-{kind}"{role} style="color:{colours[kind]};font-weight:{weight};'
             f'font-size:13px;line-height:1.4">{html.escape(text)}</div>')
+
+
+def header_html(title: str, detail: str) -> str:
+    """The explorer's heading: what the values are (escaped), then a smaller detail line."""
+    return (f'<div class="swx-header" style="line-height:1.35;margin-bottom:4px">'
+            f'<span style="font-size:15px;font-weight:600;color:{_fig.INK}">{html.escape(title)}</span> '
+            f'<span style="font-size:13px;color:#555">{html.escape(detail)}</span></div>')
+
+
+def typeset(rule: str) -> str:
+    """``<=`` and ``>=`` as the figures and the tree view print them."""
+    return str(rule).replace("<=", "\u2264").replace(">=", "\u2265")
+
+
+def _decimals(max_abs: float, digits: int = 3) -> int:
+    """Decimals giving the largest magnitude ``digits`` significant digits (js/tree_view.js decimalsFor)."""
+    if not np.isfinite(max_abs) or max_abs == 0:
+        return digits - 1
+    mag = int(np.floor(np.log10(abs(max_abs))))
+    decimals = max(0, digits - 1 - mag)
+    rounded = abs(float(f"{abs(max_abs):.{decimals}f}"))
+    # Rounding can carry into a new digit (9.996 -> 10.0).
+    if rounded > 0 and decimals > 0 and int(np.floor(np.log10(rounded))) > mag:
+        decimals -= 1
+    return min(decimals, 20)
+
+
+def _fixed(x: float, decimals: int) -> str:
+    if x is None or not np.isfinite(x):
+        return "n/a"
+    text = f"{abs(x):,.{decimals}f}"
+    if float(text.replace(",", "")) == 0:
+        return text
+    return (MINUS if x < 0 else "") + text
+
+
+def estimate_text(mean: float, lower: float, upper: float, digits: int = 3) -> str:
+    """``"mean [lower, upper]"`` with shared decimals and true minus signs, as the tree view prints it."""
+    finite = [abs(v) for v in (mean, lower, upper) if v is not None and np.isfinite(v)]
+    d = _decimals(max(finite) if finite else 0.0, digits)
+    return f"{_fixed(mean, d)} [{_fixed(lower, d)}, {_fixed(upper, d)}]"
 
 
 def vmax_of(values) -> float:

@@ -37,6 +37,7 @@ INTERVALS = (("Equal-tailed", "equal-tailed"), ("Highest density", "highest-dens
 # A recompute that has run this long shows its progress bar (shorter ones would only flicker).
 PROGRESS_AFTER_S = 0.3
 _WIDE = {"description_width": "initial"}
+MIN_FIGURE_WIDTH = 420
 
 
 class _Panel:
@@ -107,12 +108,15 @@ class Explorer(widgets.VBox):
         self._pending = None
         self._worker: threading.Thread | None = None
         self._quiet = False  # set while the code itself moves a control
+        self._figure_width = None  # px, once the browser has reported the explorer's width
 
         summaries = self._compute(max_depth, min_size, columns, progress=None)
         self._install(summaries)
-        self._state = {"depth": depth, "level": level, "interval": interval,
-                       "selected": self._default_selection(self._full.depth(depth)),
-                       "densities": False, "covariate": None}
+        first = self._default_selection(self._full.depth(depth))
+        # "anchor" is the node last picked; "selected" is what is shown: the anchor, or its
+        # ancestor while the tree is shallower than the anchor (so depth 3 -> 1 -> 3 comes back).
+        self._state = {"depth": depth, "level": level, "interval": interval, "anchor": first,
+                       "selected": first, "densities": False, "covariate": None}
         self._build_controls(max_depth, level, interval, columns)
         self._build_panels()
         super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs])
@@ -169,8 +173,8 @@ class Explorer(widgets.VBox):
     def _build_controls(self, max_depth, level, interval, columns):
         d = self._draws
         kind = "complier-weighted (LATE) draws" if d.is_complier_weighted else "draws"
-        self._header = widgets.HTML(P.status_html(
-            f"{d.label}: {d.n_draws:,} {kind} \u00d7 {d.n_units:,} units; {d.covariates.shape[1]} covariates"))
+        self._header = widgets.HTML(P.header_html(
+            d.label, f"{d.n_draws:,} {kind} \u00d7 {d.n_units:,} units, {d.covariates.shape[1]} covariates"))
         self.depth_control = widgets.IntSlider(value=self._state["depth"], min=1, max=max_depth, step=1,
                                                description="Tree depth", continuous_update=False, style=_WIDE,
                                                layout=widgets.Layout(width="300px"))
@@ -179,7 +183,7 @@ class Explorer(widgets.VBox):
                                               description="Interval level", style=_WIDE,
                                               layout=widgets.Layout(width="190px"))
         self.interval_control = widgets.ToggleButtons(options=INTERVALS, value=interval, description="Interval type",
-                                                      style={**_WIDE, "button_width": "120px"})
+                                                      style={**_WIDE, "button_width": "136px"})
         self.min_size_control = widgets.IntText(value=self._full.min_size, description="Smallest subgroup (units)",
                                                 continuous_update=False, style=_WIDE,
                                                 layout=widgets.Layout(width="270px"))
@@ -204,6 +208,7 @@ class Explorer(widgets.VBox):
         for control in (self.depth_control, self.level_control, self.interval_control):
             control.observe(self._guard(self._on_view_control), names="value")
         self.tree_view.observe(self._guard(self._on_pick), names="selected")
+        self.tree_view.observe(self._guard(self._on_width), names="client_width")
         self.min_size_control.observe(self._guard(self._on_regroup_control), names="value")
         self.columns_control.observe(self._guard(self._on_regroup_control), names="value")
 
@@ -264,6 +269,21 @@ class Explorer(widgets.VBox):
                 self._state["covariate"] = self.covariate_control.value
             self._refresh()
 
+    def _on_width(self, change):
+        width = self._figure_width_for(int(change["new"]))
+        with self._lock:
+            if width == self._figure_width:
+                return
+            self._figure_width = width
+            for panel in self._panels.values():
+                if panel.figure is not None:
+                    P.set_width(panel.figure, width)
+
+    @staticmethod
+    def _figure_width_for(view_width: int):
+        # The tab panel's border and padding take about 40 px of the explorer's width.
+        return None if view_width <= 0 else max(MIN_FIGURE_WIDTH, view_width - 40)
+
     def _on_tab(self, change):
         with self._lock:
             self._refresh()
@@ -296,7 +316,8 @@ class Explorer(widgets.VBox):
         interval : {"equal-tailed", "highest-density"}, optional
         selected : int, optional
             Node id of the selected subgroup (any node of the tree at the current depth;
-            -1 for none).
+            -1 for none). A later depth change shows its ancestor while the tree is
+            shallower, and the node itself again when the tree is deep enough.
 
         Notes
         -----
@@ -317,9 +338,9 @@ class Explorer(widgets.VBox):
                 if sel not in known:
                     raise SummaryError(f"`selected` must be a node of the tree at depth {s['depth']} "
                                        f"(one of {sorted(known)}) or -1; got {selected!r}.")
-                s["selected"] = sel
+                s["selected"] = s["anchor"] = sel
             elif s["depth"] != self._state["depth"]:
-                s["selected"] = self._follow(s["selected"], s["depth"])
+                s["selected"] = self._follow(s["anchor"], s["depth"])
             self._state = s
             self._sync_controls()
             self._refresh()
@@ -385,7 +406,7 @@ class Explorer(widgets.VBox):
                 self._refresh_status()
                 raise
             self._revert_controls(before)
-            self._show_error(f"{exc} The previous summaries are still shown "
+            self._show_error(f"Could not recompute: {exc} The previous summaries are still shown "
                              f"(smallest subgroup {before['min_size']:,} units).")
             return
         finally:
@@ -396,7 +417,7 @@ class Explorer(widgets.VBox):
         with self._lock:
             self._install(summaries)
             s = self._state
-            s["selected"] = self._default_selection(self._full.depth(s["depth"]))
+            s["selected"] = s["anchor"] = self._default_selection(self._full.depth(s["depth"]))
             if self._want["trends"]:
                 names = self.additive.columns if self.additive is not None else []
                 self._quietly(lambda: setattr(self.covariate_control, "options", names))
@@ -408,7 +429,7 @@ class Explorer(widgets.VBox):
 
     # -- drawing -------------------------------------------------------------------------------
     def _follow(self, node: int, depth: int) -> int:
-        """The selected node at a new depth: itself if still shown, else its ancestor at ``depth``."""
+        """The node to show for ``node`` at ``depth``: itself if shown, else its ancestor at ``depth``."""
         if node < 0:
             return node
         nodes = self._cached(("nodes-all",), lambda: self._full.depth(self._full.max_depth).nodes())
@@ -419,11 +440,11 @@ class Explorer(widgets.VBox):
         return node
 
     def _quietly(self, action):
-        self._quiet = True
+        before, self._quiet = self._quiet, True
         try:
             action()
         finally:
-            self._quiet = False
+            self._quiet = before
 
     def _sync_controls(self):
         s = self._state
@@ -455,13 +476,13 @@ class Explorer(widgets.VBox):
         if s["selected"] < 0 or row.empty:
             return P.status_html("Click a box in the tree to select a subgroup.")
         r = row.iloc[0]
-        rule = r["rule"] or "All units"
+        rule = P.typeset(r["rule"]) or "All units"
         pct = f"{100 * s['level']:g}%"
         if not bool(r["is_leaf"]):
             return P.status_html(f"Selected: {rule} (split further at this depth; click one of its coloured "
                                  "subgroups to compare it with the others).")
-        return P.status_html(f"Selected: {rule}. Posterior mean {r['mean']:.3g}, {pct} interval "
-                             f"[{r['lower']:.3g}, {r['upper']:.3g}], {int(r['n_units']):,} units.")
+        return P.status_html(f"Selected: {rule} ({int(r['n_units']):,} units): posterior mean and {pct} interval "
+                             f"{P.estimate_text(r['mean'], r['lower'], r['upper'])}.")
 
     def _refresh_status(self):
         self.status.value = self._selection_text()
@@ -483,12 +504,15 @@ class Explorer(widgets.VBox):
         leaves = nodes[nodes["is_leaf"]]
         pct = f"{100 * s['level']:g}%"
         kind = "highest-density" if s["interval"] == "highest-density" else "equal-tailed"
-        with self.tree_view.hold_sync():
-            self.tree_view.nodes = node_records(nodes)
-            self.tree_view.selected = s["selected"]
-            self.tree_view.colour_limit = P.vmax_of(leaves["mean"])
-            self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show units, posterior mean "
-                                      f"and {pct} {kind} interval. Click a subgroup to select it.")
+        def update_view():
+            # Quietly: the view's "selected" observer is for clicks, not for the code's own moves.
+            with self.tree_view.hold_sync():
+                self.tree_view.nodes = node_records(nodes)
+                self.tree_view.selected = s["selected"]
+                self.tree_view.colour_limit = P.vmax_of(leaves["mean"])
+                self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show units, "
+                                          f"posterior mean and {pct} {kind} interval. Click a subgroup to select it.")
+        self._quietly(update_view)
         self._refresh_status()
         visible = self._tabs.selected_index or 0
         for i, panel in enumerate(self._panels.values()):
@@ -514,6 +538,11 @@ class Explorer(widgets.VBox):
         getattr(self, f"_draw_{panel.name}")(panel)
         panel.key = key
 
+    def _show(self, panel, fig):
+        if self._figure_width is not None:
+            fig.layout.width = self._figure_width
+        P.show_figure(panel.figure, fig)
+
     def _highlight(self):
         """The selected node if it is a subgroup at the current depth, else None."""
         sel = self._state["selected"]
@@ -521,35 +550,35 @@ class Explorer(widgets.VBox):
 
     def _draw_effects(self, panel):
         tab = self._tree_table()
-        P.show_figure(panel.figure, P.subgroups_figure(self.tree, tab, highlight=self._highlight(),
+        self._show(panel, P.subgroups_figure(self.tree, tab, highlight=self._highlight(),
                                                        densities=self._state["densities"]))
 
     def _draw_fit(self, panel):
         s = self._state
         table = self._cached(("fit", s["level"], s["interval"]),
                              lambda: self._full.fit_r2_by_depth(level=s["level"], interval=s["interval"]))
-        P.show_figure(panel.figure, P.fit_figure(table, self._fit_draws, current_depth=s["depth"]))
+        self._show(panel, P.fit_figure(table, self._fit_draws, current_depth=s["depth"]))
 
     def _draw_trends(self, panel):
         s = self._state
         if self.additive is None:
             why = self._errors.get("trends", "The additive summary was not computed.")
-            P.show_figure(panel.figure, P.message_figure(f"No trends: {why}"))
+            self._show(panel, P.message_figure(f"No trends: {why}"))
             return
         curves = self._cached(("curves", s["level"], s["interval"]),
                               lambda: self.additive.curves(level=s["level"], interval=s["interval"]))
         covariate = s["covariate"] or self.covariate_control.value
-        P.show_figure(panel.figure, P.trends_figure(curves, covariate, label=self.additive.label))
+        self._show(panel, P.trends_figure(curves, covariate, label=self.additive.label))
 
     def _draw_linear(self, panel):
         s = self._state
         if self.linear is None:
             why = self._errors.get("linear", "The linear summary was not computed.")
-            P.show_figure(panel.figure, P.message_figure(f"No linear fit: {why}"))
+            self._show(panel, P.message_figure(f"No linear fit: {why}"))
             return
         table = self._cached(("linear", s["level"], s["interval"]),
                              lambda: self.linear.table(level=s["level"], interval=s["interval"]))
-        P.show_figure(panel.figure, P.coefficients_figure(table))
+        self._show(panel, P.coefficients_figure(table))
 
     def _draw_table(self, panel):
         tab = self._tree_table()
@@ -568,4 +597,4 @@ class Explorer(widgets.VBox):
             table = self._cached(("contrasts", s["depth"], s["level"], s["interval"], sel),
                                  lambda: self.tree.contrasts(level=s["level"], interval=s["interval"], subgroup=sel))
             fig = P.contrasts_figure(table, sel)
-        P.show_figure(panel.figure, fig)
+        self._show(panel, fig)

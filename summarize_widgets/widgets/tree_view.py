@@ -118,6 +118,11 @@ class TreeView(anywidget.AnyWidget):
         largest |mean| among the leaves shown.
     caption : str, default ""
         One line above the tree.
+
+    Attributes
+    ----------
+    client_width : int
+        Width of the drawn view in px, written by the browser (0 before it is drawn).
     """
 
     _esm = asset_path("tree_view.js")
@@ -128,6 +133,8 @@ class TreeView(anywidget.AnyWidget):
     palette = traitlets.Dict(DEFAULT_PALETTE).tag(sync=True)
     colour_limit = traitlets.Float(0.0).tag(sync=True)
     caption = traitlets.Unicode("").tag(sync=True)
+    #: Width of the view in px as the browser reports it (0 until drawn); the Explorer sizes its figures by it.
+    client_width = traitlets.Int(0).tag(sync=True)
 
     @traitlets.validate("palette")
     def _check_palette(self, proposal):

@@ -191,11 +191,15 @@ def artifact_dir(tmp_path_factory) -> Path:
     return tmp_path_factory.getbasetemp() / "artifacts"
 
 
-def _save_screenshot(page, artifact_dir: Path, name: str) -> Path:
-    """Full-page screenshot into ``artifact_dir``, copied into the repository's test-artifacts/."""
+def _save_screenshot(target, artifact_dir: Path, name: str) -> Path:
+    """Screenshot of a page (full page) or of one element (a Playwright locator) into ``artifact_dir``,
+    copied into the repository's test-artifacts/."""
     artifact_dir.mkdir(parents=True, exist_ok=True)
     path = artifact_dir / name
-    page.screenshot(path=str(path), full_page=True)
+    if hasattr(target, "goto"):
+        target.screenshot(path=str(path), full_page=True)
+    else:
+        target.screenshot(path=str(path))
     ARTIFACTS.mkdir(exist_ok=True)
     shutil.copy2(path, ARTIFACTS / name)
     return path
@@ -215,8 +219,8 @@ def _open_and_run_all(page, server: LabServer, notebook: str) -> None:
 
 @pytest.fixture(scope="session")
 def screenshot(artifact_dir):
-    """``screenshot(page, name)`` saves a full-page PNG and returns its path."""
-    return lambda page, name: _save_screenshot(page, artifact_dir, name)
+    """``screenshot(page_or_locator, name)`` saves a PNG and returns its path."""
+    return lambda target, name: _save_screenshot(target, artifact_dir, name)
 
 
 @pytest.fixture(scope="session")

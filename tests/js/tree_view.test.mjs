@@ -18,6 +18,7 @@ import {
   formatShare,
   formatCount,
   truncate,
+  typeset,
   boxLines,
 } from "../../js/tree_view.js";
 import view from "../../js/tree_view.js";
@@ -163,6 +164,8 @@ test("intervals, shares, counts, truncation, box lines", () => {
   assert.equal(truncate("abcdef", 4), "abc\u2026");
   assert.equal(truncate("abc", 4), "abc");
   const lines = boxLines(rec(3, 1, 2, { split: "age < 45.5", n_units: 1520, share: 0.152, mean: -12.3, lower: -20, upper: -4.56 }));
+  assert.equal(typeset("age <= 4 & b >= 2"), "age \u2264 4 & b \u2265 2");
+  assert.equal(boxLines(rec(2, 0, 1, { split: "x <= 1" }))[0], "x \u2264 1");
   assert.deepEqual(lines, ["age < 45.5", "1,520 units \u00b7 15%", "\u221212.3 [\u221220.0, \u22124.6]"]);
   assert.equal(boxLines(rec(0, -1, 0))[0], "All units");
 });
