@@ -26,8 +26,8 @@ import plotly.graph_objects as go
 
 from .._validate import SummaryError, check_columns, check_int, check_interval, check_level
 from ..draws import EffectDraws
-from ..tree import summarize_tree
 from . import _panels as P
+from ._results import Results
 from .tree_view import TreeView, node_records
 
 __all__ = ["Explorer"]
@@ -36,8 +36,9 @@ LEVELS = (0.5, 0.8, 0.9, 0.95, 0.99)
 INTERVALS = (("Equal-tailed", "equal-tailed"), ("Highest density", "highest-density"))
 # A recompute that has run this long shows its progress bar (shorter ones would only flicker).
 PROGRESS_AFTER_S = 0.3
-_WIDE = {"description_width": "initial"}
 MIN_FIGURE_WIDTH = 420
+_WIDE = {"description_width": "initial"}
+_STAGES = {"tree": "Regrouping", "linear": "Linear fit", "trends": "Trends"}
 
 
 class _Panel:
@@ -74,7 +75,7 @@ class Explorer(widgets.VBox):
     linear : bool, default True
         Compute the linear summary for the "Linear fit" tab.
     additive_options : dict, optional
-        Extra keyword arguments for :func:`summarize_widgets.additive.summarize_additive`
+        Extra keyword arguments for :func:`summarize_widgets.summarize_additive`
         (for example ``{"lam": 1.0}`` to skip the smoothing search).
     background : bool, default True
         Run recomputations triggered from the controls on a worker thread.
@@ -93,26 +94,27 @@ class Explorer(widgets.VBox):
         if not isinstance(draws, EffectDraws):
             raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); "
                                f"got {type(draws).__name__}.")
-        self._draws = draws
         max_depth = check_int(max_depth, "max_depth", low=1, high=8)
         depth = min(2, max_depth) if depth is None else check_int(depth, "depth", low=1, high=max_depth)
         level = check_level(level)
         interval = check_interval(interval)
         columns = check_columns(columns, list(draws.covariates.columns))
         if additive_options is not None and not isinstance(additive_options, Mapping):
-            raise SummaryError(f"`additive_options` must be a dict of keyword arguments; got {type(additive_options).__name__}.")
-        self._want = {"trends": bool(trends), "linear": bool(linear)}
-        self._additive_options = dict(additive_options or {})
+            raise SummaryError(f"`additive_options` must be a dict of keyword arguments; "
+                               f"got {type(additive_options).__name__}.")
+        self._draws = draws
+        self._options = {"trends": bool(trends), "linear": bool(linear), "additive_options": dict(additive_options or {})}
         self._background = bool(background)
         self._lock = threading.RLock()  # one view update at a time (main thread or worker)
         self._pending = None
         self._worker: threading.Thread | None = None
-        self._quiet = False  # set while the code itself moves a control
+        # Set while the code itself moves a control. Per thread: observers run in the thread that
+        # sets a trait, so the worker's own moves must not swallow a click handled meanwhile.
+        self._local = threading.local()
         self._figure_width = None  # px, once the browser has reported the explorer's width
 
-        summaries = self._compute(max_depth, min_size, columns, progress=None)
-        self._install(summaries)
-        first = self._default_selection(self._full.depth(depth))
+        self._res = Results.compute(draws, max_depth=max_depth, min_size=min_size, columns=columns, **self._options)
+        first = self._res.standout(depth)
         # "anchor" is the node last picked; "selected" is what is shown: the anchor, or its
         # ancestor while the tree is shallower than the anchor (so depth 3 -> 1 -> 3 comes back).
         self._state = {"depth": depth, "level": level, "interval": interval, "anchor": first,
@@ -123,51 +125,85 @@ class Explorer(widgets.VBox):
         self.add_class("swx-explorer")
         self._refresh(all_panels=True)
 
-    # -- computation ---------------------------------------------------------------------
-    def _compute(self, max_depth, min_size, columns, progress):
-        """Every summary for these settings (one pass over the draws per summary)."""
-        stages = ["tree"] + (["linear"] if self._want["linear"] else []) + (["trends"] if self._want["trends"] else [])
+    # -- public API --------------------------------------------------------------------------
+    def apply(self, *, depth: int | None = None, level: float | None = None, interval: str | None = None,
+              selected: int | None = None) -> None:
+        """Change what is shown without a pass over the draws; returns when the view is updated.
 
-        def tick(k):
-            return None if progress is None else (lambda done, total: progress(stages[k], k, len(stages), done, total))
+        Parameters
+        ----------
+        depth : int, optional
+            Tree depth, 1 to the largest offered.
+        level : float, optional
+            Credible level, strictly between 0 and 1.
+        interval : {"equal-tailed", "highest-density"}, optional
+        selected : int, optional
+            Node id of the selected subgroup (any node of the tree at the current depth;
+            -1 for none). A later depth change shows its ancestor while the tree is
+            shallower, and the node itself again when the tree is deep enough.
 
-        out = {"tree": summarize_tree(self._draws, max_depth=max_depth, min_size=min_size, columns=columns,
-                                      progress=tick(0)),
-               "linear": None, "additive": None, "errors": {}}
-        # Trends and the linear fit are extras: if one cannot be computed, its tab says why.
-        if self._want["linear"]:
-            from ..linear import summarize_linear
-            try:
-                out["linear"] = summarize_linear(self._draws, columns=columns, progress=tick(stages.index("linear")))
-            except SummaryError as exc:
-                out["errors"]["linear"] = str(exc)
-        if self._want["trends"]:
-            from ..additive import summarize_additive
-            try:
-                out["additive"] = summarize_additive(self._draws, columns=columns, progress=tick(stages.index("trends")),
-                                                     **self._additive_options)
-            except SummaryError as exc:
-                out["errors"]["trends"] = str(exc)
-        return out
+        Notes
+        -----
+        This is the hook the benchmark times: it updates the tree view and the visible
+        panel; panels in other tabs are redrawn when their tab is opened.
+        """
+        with self._lock:
+            s = dict(self._state)
+            if depth is not None:
+                s["depth"] = check_int(depth, "depth", low=1, high=self._res.tree.max_depth)
+            if level is not None:
+                s["level"] = check_level(level)
+            if interval is not None:
+                s["interval"] = check_interval(interval)
+            if selected is not None:
+                sel = check_int(selected, "selected", low=-1)
+                known = set(self._res.nodes(s["depth"], s["level"], s["interval"])["node"].tolist()) | {-1}
+                if sel not in known:
+                    raise SummaryError(f"`selected` must be a node of the tree at depth {s['depth']} "
+                                       f"(one of {sorted(known)}) or -1; got {selected!r}.")
+                s["selected"] = s["anchor"] = sel
+            elif s["depth"] != self._state["depth"]:
+                s["selected"] = self._res.follow(s["anchor"], s["depth"])
+            self._state = s
+            self._sync_controls()
+            self._refresh()
 
-    def _install(self, summaries):
-        self._full = summaries["tree"]
-        self.additive = summaries["additive"]
-        self.linear = summaries["linear"]
-        self._errors = summaries["errors"]
-        self._cache = {}
-        self._fit_draws = self._full.fit_r2_draws_by_depth()
+    def recompute(self, *, min_size: int | None = None, columns=None) -> None:
+        """Recompute the summaries for a new smallest subgroup size or covariate set (one pass each).
 
-    def _cached(self, key, make):
-        if key not in self._cache:
-            self._cache[key] = make()
-        return self._cache[key]
+        Raises :class:`SummaryError` for an impossible setting; the view is unchanged then.
+        """
+        min_size = self._res.tree.min_size if min_size is None else min_size
+        columns = self._res.tree.columns if columns is None else columns
+        self._regroup(min_size, columns, progress=None, raise_errors=True)
 
-    @staticmethod
-    def _default_selection(tree) -> int:
-        """The subgroup whose posterior mean is farthest from zero: the one that stands out."""
-        tab = tree.table()
-        return int(tab["subgroup"].iloc[int(np.argmax(np.abs(tab["mean"].to_numpy(float))))])
+    def wait(self, timeout: float | None = None) -> bool:
+        """Wait for a background recomputation to finish; True if none is running."""
+        worker = self._worker
+        if worker is not None:
+            worker.join(timeout)
+        return self._worker is None or not self._worker.is_alive()
+
+    @property
+    def tree(self):
+        """The summary tree at the depth shown (a :class:`TreeSummary`)."""
+        return self._res.at(self._state["depth"])
+
+    @property
+    def additive(self):
+        """The additive summary (None if not computed)."""
+        return self._res.additive
+
+    @property
+    def linear(self):
+        """The linear summary (None if not computed)."""
+        return self._res.linear
+
+    @property
+    def settings(self) -> dict:
+        """What the view shows: depth, level, interval kind, selection and the tree's settings."""
+        s = self._state
+        return {**self.tree.settings, "level": s["level"], "interval": s["interval"], "selected": s["selected"]}
 
     # -- controls and panels -----------------------------------------------------------
     def _build_controls(self, max_depth, level, interval, columns):
@@ -178,13 +214,12 @@ class Explorer(widgets.VBox):
         self.depth_control = widgets.IntSlider(value=self._state["depth"], min=1, max=max_depth, step=1,
                                                description="Tree depth", continuous_update=False, style=_WIDE,
                                                layout=widgets.Layout(width="300px"))
-        levels = sorted(set(LEVELS) | {level})
-        self.level_control = widgets.Dropdown(options=[(f"{100 * v:g}%", v) for v in levels], value=level,
-                                              description="Interval level", style=_WIDE,
+        self.level_control = widgets.Dropdown(options=[(f"{100 * v:g}%", v) for v in sorted(set(LEVELS) | {level})],
+                                              value=level, description="Interval level", style=_WIDE,
                                               layout=widgets.Layout(width="190px"))
         self.interval_control = widgets.ToggleButtons(options=INTERVALS, value=interval, description="Interval type",
                                                       style={**_WIDE, "button_width": "136px"})
-        self.min_size_control = widgets.IntText(value=self._full.min_size, description="Smallest subgroup (units)",
+        self.min_size_control = widgets.IntText(value=self._res.tree.min_size, description="Smallest subgroup (units)",
                                                 continuous_update=False, style=_WIDE,
                                                 layout=widgets.Layout(width="270px"))
         self.columns_control = widgets.SelectMultiple(options=list(d.covariates.columns), value=tuple(columns),
@@ -223,14 +258,14 @@ class Explorer(widgets.VBox):
         panels.append(_Panel("effects", "Subgroup effects", widgets.VBox([self.densities_control, effects]), effects))
         fit = fig_widget()
         panels.append(_Panel("fit", "Fit by depth", widgets.VBox([fit]), fit))
-        if self._want["trends"]:
+        if self._options["trends"]:
             trend = fig_widget()
-            names = self.additive.columns if self.additive is not None else []
+            names = self._res.additive.columns if self._res.additive is not None else []
             self.covariate_control = widgets.Dropdown(options=names, value=names[0] if names else None,
                                                       description="Covariate", style=_WIDE)
             self.covariate_control.observe(self._guard(self._on_panel_control), names="value")
             panels.append(_Panel("trends", "Trends", widgets.VBox([self.covariate_control, trend]), trend))
-        if self._want["linear"]:
+        if self._options["linear"]:
             lin = fig_widget()
             panels.append(_Panel("linear", "Linear fit", widgets.VBox([lin]), lin))
         self._table_html = widgets.HTML()
@@ -255,6 +290,18 @@ class Explorer(widgets.VBox):
                 self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
         return run
 
+    @property
+    def _quiet(self) -> bool:
+        return getattr(self._local, "quiet", False)
+
+    def _quietly(self, action):
+        before = self._quiet
+        self._local.quiet = True
+        try:
+            action()
+        finally:
+            self._local.quiet = before
+
     def _on_view_control(self, change):
         self.apply(depth=self.depth_control.value, level=self.level_control.value,
                    interval=self.interval_control.value)
@@ -265,12 +312,18 @@ class Explorer(widgets.VBox):
     def _on_panel_control(self, change):
         with self._lock:
             self._state["densities"] = bool(self.densities_control.value)
-            if self._want["trends"]:
+            if self._options["trends"]:
                 self._state["covariate"] = self.covariate_control.value
             self._refresh()
 
+    def _on_tab(self, change):
+        with self._lock:
+            self._refresh()
+
     def _on_width(self, change):
-        width = self._figure_width_for(int(change["new"]))
+        view = int(change["new"])
+        # The tab panel's border and padding take about 40 px of the explorer's width.
+        width = None if view <= 0 else max(MIN_FIGURE_WIDTH, view - 40)
         with self._lock:
             if width == self._figure_width:
                 return
@@ -279,20 +332,11 @@ class Explorer(widgets.VBox):
                 if panel.figure is not None:
                     P.set_width(panel.figure, width)
 
-    @staticmethod
-    def _figure_width_for(view_width: int):
-        # The tab panel's border and padding take about 40 px of the explorer's width.
-        return None if view_width <= 0 else max(MIN_FIGURE_WIDTH, view_width - 40)
-
-    def _on_tab(self, change):
-        with self._lock:
-            self._refresh()
-
     def _on_regroup_control(self, change):
         columns = list(self.columns_control.value)
         if not columns:
             raise SummaryError("Choose at least one covariate under \u201cCovariates used\u201d.")
-        request = (self.depth_control.max, int(self.min_size_control.value), columns)
+        request = (int(self.min_size_control.value), columns)
         if not self._background:
             self._regroup(*request, progress=self._progress_callback(time.monotonic()))
             return
@@ -301,76 +345,6 @@ class Explorer(widgets.VBox):
             if self._worker is None:
                 self._worker = threading.Thread(target=self._work, name="summarize-widgets-regroup", daemon=True)
                 self._worker.start()
-
-    # -- public API --------------------------------------------------------------------------
-    def apply(self, *, depth: int | None = None, level: float | None = None, interval: str | None = None,
-              selected: int | None = None) -> None:
-        """Change what is shown without a pass over the draws; returns when the view is updated.
-
-        Parameters
-        ----------
-        depth : int, optional
-            Tree depth, 1 to the largest offered.
-        level : float, optional
-            Credible level, strictly between 0 and 1.
-        interval : {"equal-tailed", "highest-density"}, optional
-        selected : int, optional
-            Node id of the selected subgroup (any node of the tree at the current depth;
-            -1 for none). A later depth change shows its ancestor while the tree is
-            shallower, and the node itself again when the tree is deep enough.
-
-        Notes
-        -----
-        This is the hook the benchmark times: it updates the tree view and the visible
-        panel; panels in other tabs are redrawn when their tab is opened.
-        """
-        with self._lock:
-            s = dict(self._state)
-            if depth is not None:
-                s["depth"] = check_int(depth, "depth", low=1, high=self._full.max_depth)
-            if level is not None:
-                s["level"] = check_level(level)
-            if interval is not None:
-                s["interval"] = check_interval(interval)
-            if selected is not None:
-                sel = check_int(selected, "selected", low=-1)
-                known = set(self._tree_nodes(s)["node"].tolist()) | {-1}
-                if sel not in known:
-                    raise SummaryError(f"`selected` must be a node of the tree at depth {s['depth']} "
-                                       f"(one of {sorted(known)}) or -1; got {selected!r}.")
-                s["selected"] = s["anchor"] = sel
-            elif s["depth"] != self._state["depth"]:
-                s["selected"] = self._follow(s["anchor"], s["depth"])
-            self._state = s
-            self._sync_controls()
-            self._refresh()
-
-    def recompute(self, *, min_size: int | None = None, columns=None) -> None:
-        """Recompute the summaries for a new smallest subgroup size or covariate set (one pass each).
-
-        Raises :class:`SummaryError` for an impossible setting; the view is unchanged then.
-        """
-        min_size = self._full.min_size if min_size is None else min_size
-        columns = self._full.columns if columns is None else columns
-        self._regroup(self._full.max_depth, min_size, columns, progress=None, raise_errors=True)
-
-    def wait(self, timeout: float | None = None) -> bool:
-        """Wait for a background recomputation to finish; True if none is running."""
-        worker = self._worker
-        if worker is not None:
-            worker.join(timeout)
-        return self._worker is None or not self._worker.is_alive()
-
-    @property
-    def tree(self):
-        """The summary tree at the depth shown (a :class:`TreeSummary`)."""
-        return self._full.depth(self._state["depth"])
-
-    @property
-    def settings(self) -> dict:
-        """What the view shows: depth, level, interval kind, selection and the tree's settings."""
-        return {**self.tree.settings, "level": self._state["level"], "interval": self._state["interval"],
-                "selected": self._state["selected"]}
 
     # -- recomputation -----------------------------------------------------------------------
     def _work(self):
@@ -382,7 +356,8 @@ class Explorer(widgets.VBox):
                     self._worker = None
                     return
             try:
-                self._regroup(*request, progress=self._progress_callback(time.monotonic()), stale=lambda: self._pending is not None)
+                self._regroup(*request, progress=self._progress_callback(time.monotonic()),
+                              stale=lambda: self._pending is not None)
             except Exception as exc:  # noqa: BLE001 - a worker thread has no output area to report to
                 self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
 
@@ -391,21 +366,23 @@ class Explorer(widgets.VBox):
             if time.monotonic() - started < PROGRESS_AFTER_S:
                 return
             self.progress.layout.display = None
-            self.progress.description = {"tree": "Regrouping", "linear": "Linear fit", "trends": "Trends"}[stage]
+            self.progress.description = _STAGES[stage]
             self.progress.value = (k + done / max(total, 1)) / n_stages
         return progress
 
-    def _regroup(self, max_depth, min_size, columns, *, progress, stale=lambda: False, raise_errors=False):
-        before = {"min_size": self._full.min_size, "columns": self._full.columns}
+    def _regroup(self, min_size, columns, *, progress, stale=lambda: False, raise_errors=False):
+        before = {"min_size": self._res.tree.min_size, "columns": self._res.tree.columns}
         self.status.value = P.status_html("Recomputing the summaries (one pass over the draws each)\u2026", kind="busy")
         try:
             min_size = check_int(min_size, "min_size", low=1, high=self._draws.n_units)
-            summaries = self._compute(max_depth, min_size, columns, progress)
+            res = Results.compute(self._draws, max_depth=self._res.tree.max_depth, min_size=min_size,
+                                  columns=columns, progress=progress, **self._options)
         except SummaryError as exc:
             if raise_errors:
                 self._refresh_status()
                 raise
-            self._revert_controls(before)
+            self._quietly(lambda: (setattr(self.min_size_control, "value", before["min_size"]),
+                                   setattr(self.columns_control, "value", tuple(before["columns"]))))
             self._show_error(f"Could not recompute: {exc} The previous summaries are still shown "
                              f"(smallest subgroup {before['min_size']:,} units).")
             return
@@ -415,11 +392,11 @@ class Explorer(widgets.VBox):
         if stale():
             return
         with self._lock:
-            self._install(summaries)
+            self._res = res
             s = self._state
-            s["selected"] = s["anchor"] = self._default_selection(self._full.depth(s["depth"]))
-            if self._want["trends"]:
-                names = self.additive.columns if self.additive is not None else []
+            s["selected"] = s["anchor"] = res.standout(s["depth"])
+            if self._options["trends"]:
+                names = res.additive.columns if res.additive is not None else []
                 self._quietly(lambda: setattr(self.covariate_control, "options", names))
                 s["covariate"] = self.covariate_control.value
             self._sync_controls()
@@ -428,24 +405,6 @@ class Explorer(widgets.VBox):
             self._refresh()
 
     # -- drawing -------------------------------------------------------------------------------
-    def _follow(self, node: int, depth: int) -> int:
-        """The node to show for ``node`` at ``depth``: itself if shown, else its ancestor at ``depth``."""
-        if node < 0:
-            return node
-        nodes = self._cached(("nodes-all",), lambda: self._full.depth(self._full.max_depth).nodes())
-        parent = dict(zip(nodes["node"].tolist(), nodes["parent"].tolist()))
-        depth_of = dict(zip(nodes["node"].tolist(), nodes["depth"].tolist()))
-        while node in depth_of and depth_of[node] > depth:
-            node = parent[node]
-        return node
-
-    def _quietly(self, action):
-        before, self._quiet = self._quiet, True
-        try:
-            action()
-        finally:
-            self._quiet = before
-
     def _sync_controls(self):
         s = self._state
 
@@ -456,62 +415,46 @@ class Explorer(widgets.VBox):
                 self.level_control.options = [(f"{100 * v:g}%", v) for v in sorted(set(values) | {s["level"]})]
             self.level_control.value = s["level"]
             self.interval_control.value = s["interval"]
-            self.min_size_control.value = self._full.min_size
-            self.columns_control.value = tuple(self._full.columns)
+            self.min_size_control.value = self._res.tree.min_size
+            self.columns_control.value = tuple(self._res.tree.columns)
         self._quietly(move)
-
-    def _revert_controls(self, before):
-        self._quietly(lambda: (setattr(self.min_size_control, "value", before["min_size"]),
-                               setattr(self.columns_control, "value", tuple(before["columns"]))))
 
     def _show_error(self, text: str) -> None:
         self.status.value = P.status_html(text, kind="error")
 
     def _selection_text(self) -> str:
-        s = getattr(self, "_state", None)
-        if s is None:
-            return P.status_html("")
-        nodes = self._tree_nodes()
+        s = self._state
+        nodes = self._res.nodes(s["depth"], s["level"], s["interval"])
         row = nodes[nodes["node"] == s["selected"]]
         if s["selected"] < 0 or row.empty:
             return P.status_html("Click a box in the tree to select a subgroup.")
         r = row.iloc[0]
         rule = P.typeset(r["rule"]) or "All units"
-        pct = f"{100 * s['level']:g}%"
         if not bool(r["is_leaf"]):
             return P.status_html(f"Selected: {rule} (split further at this depth; click one of its coloured "
                                  "subgroups to compare it with the others).")
-        return P.status_html(f"Selected: {rule} ({int(r['n_units']):,} units): posterior mean and {pct} interval "
-                             f"{P.estimate_text(r['mean'], r['lower'], r['upper'])}.")
+        return P.status_html(f"Selected: {rule} ({int(r['n_units']):,} units): posterior mean and "
+                             f"{100 * s['level']:g}% interval {P.estimate_text(r['mean'], r['lower'], r['upper'])}.")
 
     def _refresh_status(self):
         self.status.value = self._selection_text()
 
-    def _tree_nodes(self, state=None):
-        s = self._state if state is None else state
-        return self._cached(("nodes", s["depth"], s["level"], s["interval"]),
-                            lambda: self._full.depth(s["depth"]).nodes(level=s["level"], interval=s["interval"]))
-
-    def _tree_table(self):
-        s = self._state
-        return self._cached(("table", s["depth"], s["level"], s["interval"]),
-                            lambda: self._full.depth(s["depth"]).table(level=s["level"], interval=s["interval"]))
-
     def _refresh(self, all_panels: bool = False):
         """Redraw the tree view, the status line and the panels whose inputs changed."""
         s = self._state
-        nodes = self._tree_nodes()
+        nodes = self._res.nodes(s["depth"], s["level"], s["interval"])
         leaves = nodes[nodes["is_leaf"]]
-        pct = f"{100 * s['level']:g}%"
         kind = "highest-density" if s["interval"] == "highest-density" else "equal-tailed"
+
         def update_view():
             # Quietly: the view's "selected" observer is for clicks, not for the code's own moves.
             with self.tree_view.hold_sync():
                 self.tree_view.nodes = node_records(nodes)
                 self.tree_view.selected = s["selected"]
                 self.tree_view.colour_limit = P.vmax_of(leaves["mean"])
-                self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show units, "
-                                          f"posterior mean and {pct} {kind} interval. Click a subgroup to select it.")
+                self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show units, posterior "
+                                          f"mean and {100 * s['level']:g}% {kind} interval. "
+                                          "Click a subgroup to select it.")
         self._quietly(update_view)
         self._refresh_status()
         visible = self._tabs.selected_index or 0
@@ -521,15 +464,15 @@ class Explorer(widgets.VBox):
 
     def _panel_key(self, name):
         s = self._state
-        keys = {
-            "effects": (s["depth"], s["level"], s["interval"], s["selected"], s["densities"]),
-            "fit": (s["depth"], s["level"], s["interval"]),
+        view = (s["depth"], s["level"], s["interval"])
+        return {
+            "effects": (*view, s["selected"], s["densities"]),
+            "fit": view,
             "trends": (s["level"], s["interval"], s["covariate"]),
             "linear": (s["level"], s["interval"]),
-            "table": (s["depth"], s["level"], s["interval"], s["selected"]),
-            "contrasts": (s["depth"], s["level"], s["interval"], s["selected"]),
-        }
-        return keys[name]
+            "table": (*view, s["selected"]),
+            "contrasts": (*view, s["selected"]),
+        }[name]
 
     def _draw_panel(self, panel: _Panel) -> None:
         key = self._panel_key(panel.name)
@@ -546,44 +489,41 @@ class Explorer(widgets.VBox):
     def _highlight(self):
         """The selected node if it is a subgroup at the current depth, else None."""
         sel = self._state["selected"]
-        return sel if sel in set(self.tree.leaf_ids.tolist()) else None
+        return sel if sel in self._res.leaf_ids(self._state["depth"]) else None
 
     def _draw_effects(self, panel):
-        tab = self._tree_table()
-        self._show(panel, P.subgroups_figure(self.tree, tab, highlight=self._highlight(),
-                                                       densities=self._state["densities"]))
+        s = self._state
+        table = self._res.table(s["depth"], s["level"], s["interval"])
+        self._show(panel, P.subgroups_figure(self.tree, table, highlight=self._highlight(), densities=s["densities"]))
 
     def _draw_fit(self, panel):
         s = self._state
-        table = self._cached(("fit", s["level"], s["interval"]),
-                             lambda: self._full.fit_r2_by_depth(level=s["level"], interval=s["interval"]))
-        self._show(panel, P.fit_figure(table, self._fit_draws, current_depth=s["depth"]))
+        self._show(panel, P.fit_figure(self._res.fit_table(s["level"], s["interval"]), self._res.fit_draws,
+                                       current_depth=s["depth"]))
 
     def _draw_trends(self, panel):
         s = self._state
-        if self.additive is None:
-            why = self._errors.get("trends", "The additive summary was not computed.")
+        if self._res.additive is None:
+            why = self._res.errors.get("trends", "The additive summary was not computed.")
             self._show(panel, P.message_figure(f"No trends: {why}"))
             return
-        curves = self._cached(("curves", s["level"], s["interval"]),
-                              lambda: self.additive.curves(level=s["level"], interval=s["interval"]))
         covariate = s["covariate"] or self.covariate_control.value
-        self._show(panel, P.trends_figure(curves, covariate, label=self.additive.label))
+        self._show(panel, P.trends_figure(self._res.curves(s["level"], s["interval"]), covariate,
+                                          label=self._res.additive.label))
 
     def _draw_linear(self, panel):
         s = self._state
-        if self.linear is None:
-            why = self._errors.get("linear", "The linear summary was not computed.")
+        if self._res.linear is None:
+            why = self._res.errors.get("linear", "The linear summary was not computed.")
             self._show(panel, P.message_figure(f"No linear fit: {why}"))
             return
-        table = self._cached(("linear", s["level"], s["interval"]),
-                             lambda: self.linear.table(level=s["level"], interval=s["interval"]))
-        self._show(panel, P.coefficients_figure(table))
+        self._show(panel, P.coefficients_figure(self._res.linear_table(s["level"], s["interval"])))
 
     def _draw_table(self, panel):
-        tab = self._tree_table()
-        hit = np.flatnonzero(tab["subgroup"].to_numpy() == self._state["selected"])
-        self._table_html.value = P.table_html(tab, selected_row=int(hit[0]) if hit.size else None,
+        s = self._state
+        table = self._res.table(s["depth"], s["level"], s["interval"])
+        hit = np.flatnonzero(table["subgroup"].to_numpy() == s["selected"])
+        self._table_html.value = P.table_html(table, selected_row=int(hit[0]) if hit.size else None,
                                               css_scope=f"swx-table-{self.model_id[:8]}")
 
     def _draw_contrasts(self, panel):
@@ -591,10 +531,8 @@ class Explorer(widgets.VBox):
         sel = self._highlight()
         if sel is None:
             fig = P.message_figure("Select a subgroup (a coloured box in the tree) to compare it with the others.")
-        elif len(self.tree.leaf_ids) < 2:
+        elif len(self._res.leaf_ids(s["depth"])) < 2:
             fig = P.message_figure("Only one subgroup at this depth: nothing to compare.")
         else:
-            table = self._cached(("contrasts", s["depth"], s["level"], s["interval"], sel),
-                                 lambda: self.tree.contrasts(level=s["level"], interval=s["interval"], subgroup=sel))
-            fig = P.contrasts_figure(table, sel)
+            fig = P.contrasts_figure(self._res.contrasts(s["depth"], s["level"], s["interval"], sel), sel)
         self._show(panel, fig)

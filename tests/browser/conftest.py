@@ -60,7 +60,7 @@ def _require_browser():
     except ImportError:
         problems.append("the Python package playwright is not installed (pip install -e '.[test]')")
     if problems:
-        msg = "browser tests need " + "; ".join(problems)
+        msg = "browser tests cannot run: " + "; ".join(problems)
         if in_ci:
             pytest.fail(msg + " -- CI=true, so this is a failure, not a skip.", pytrace=False)
         pytest.skip(msg)

@@ -1,0 +1,127 @@
+"""The Explorer's results: the summaries for one setting, and the tables read from them.
+
+:meth:`Results.compute` is the only place that reads the draws (one pass per
+summary). Everything else reads stored per-draw results and is cached per
+(depth, level, interval kind), so going back to a view costs a dictionary lookup.
+"""
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+
+import numpy as np
+import pandas as pd
+
+from .._validate import SummaryError
+from ..tree import TreeSummary, summarize_tree
+
+__all__ = ["Results"]
+
+#: progress(stage, stage_index, n_stages, done_blocks, total_blocks)
+Progress = Callable[[str, int, int, int, int], None]
+
+
+class Results:
+    """Summaries for one smallest-subgroup size and covariate set.
+
+    Attributes
+    ----------
+    tree : TreeSummary
+        At its largest depth.
+    additive, linear : AdditiveSummary or LinearSummary or None
+        None when not asked for or when it could not be computed (``errors`` says why).
+    errors : dict
+        "trends" / "linear" -> message.
+    """
+
+    def __init__(self, tree: TreeSummary, additive=None, linear=None, errors: Mapping | None = None):
+        self.tree = tree
+        self.additive = additive
+        self.linear = linear
+        self.errors = dict(errors or {})
+        self.fit_draws = tree.fit_r2_draws_by_depth()
+        self._cache: dict = {}
+
+    @classmethod
+    def compute(cls, draws, *, max_depth: int, min_size, columns, trends: bool, linear: bool,
+                additive_options: Mapping | None = None, progress: Progress | None = None) -> "Results":
+        """Every summary for these settings (one pass over the draws each).
+
+        Raises :class:`SummaryError` when the tree cannot be built (for example a
+        ``min_size`` larger than the data); trends and the linear fit are extras whose
+        failure is recorded in ``errors`` instead.
+        """
+        stages = ["tree"] + (["linear"] if linear else []) + (["trends"] if trends else [])
+
+        def tick(stage):
+            if progress is None:
+                return None
+            k = stages.index(stage)
+            return lambda done, total: progress(stage, k, len(stages), done, total)
+
+        tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=tick("tree"))
+        out, errors = {}, {}
+        if linear:
+            from ..linear import summarize_linear
+            try:
+                out["linear"] = summarize_linear(draws, columns=columns, progress=tick("linear"))
+            except SummaryError as exc:
+                errors["linear"] = str(exc)
+        if trends:
+            from ..additive import summarize_additive
+            try:
+                out["additive"] = summarize_additive(draws, columns=columns, progress=tick("trends"),
+                                                     **dict(additive_options or {}))
+            except SummaryError as exc:
+                errors["trends"] = str(exc)
+        return cls(tree, additive=out.get("additive"), linear=out.get("linear"), errors=errors)
+
+    # -- cached reads --------------------------------------------------------------------------
+    def _cached(self, key, make):
+        if key not in self._cache:
+            self._cache[key] = make()
+        return self._cache[key]
+
+    def at(self, depth: int) -> TreeSummary:
+        """The tree truncated at ``depth`` (no pass over the draws)."""
+        return self._cached(("tree", depth), lambda: self.tree.depth(depth))
+
+    def nodes(self, depth: int, level: float, interval: str) -> pd.DataFrame:
+        return self._cached(("nodes", depth, level, interval),
+                            lambda: self.at(depth).nodes(level=level, interval=interval))
+
+    def table(self, depth: int, level: float, interval: str) -> pd.DataFrame:
+        return self._cached(("table", depth, level, interval),
+                            lambda: self.at(depth).table(level=level, interval=interval))
+
+    def fit_table(self, level: float, interval: str) -> pd.DataFrame:
+        return self._cached(("fit", level, interval), lambda: self.tree.fit_r2_by_depth(level=level, interval=interval))
+
+    def curves(self, level: float, interval: str) -> pd.DataFrame:
+        return self._cached(("curves", level, interval), lambda: self.additive.curves(level=level, interval=interval))
+
+    def linear_table(self, level: float, interval: str) -> pd.DataFrame:
+        return self._cached(("linear", level, interval), lambda: self.linear.table(level=level, interval=interval))
+
+    def contrasts(self, depth: int, level: float, interval: str, subgroup: int) -> pd.DataFrame:
+        return self._cached(("contrasts", depth, level, interval, subgroup),
+                            lambda: self.at(depth).contrasts(level=level, interval=interval, subgroup=subgroup))
+
+    # -- selection -----------------------------------------------------------------------------
+    def leaf_ids(self, depth: int) -> list[int]:
+        return [int(i) for i in self.at(depth).leaf_ids]
+
+    def standout(self, depth: int) -> int:
+        """The subgroup at ``depth`` whose posterior mean is farthest from zero."""
+        tab = self.table(depth, 0.95, "equal-tailed")
+        return int(tab["subgroup"].iloc[int(np.argmax(np.abs(tab["mean"].to_numpy(float))))])
+
+    def follow(self, node: int, depth: int) -> int:
+        """The node to show for ``node`` at ``depth``: itself if shown, else its ancestor at ``depth``."""
+        if node < 0:
+            return node
+        full = self.nodes(self.tree.max_depth, 0.95, "equal-tailed")
+        parent = dict(zip(full["node"].tolist(), full["parent"].tolist()))
+        depth_of = dict(zip(full["node"].tolist(), full["depth"].tolist()))
+        while node in depth_of and depth_of[node] > depth:
+            node = parent[node]
+        return node
