@@ -197,8 +197,8 @@ def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
     assert explorer.tree_view.leaf_ids == [int(i) for i in reference.leaf_ids]
     assert explorer.tree_view.nodes == node_records(reference.nodes())
     tab = reference.table()
-    expected = int(tab["subgroup"].iloc[np.argmax(np.abs(tab["mean"].to_numpy()))])
-    assert explorer.tree_view.selected == expected
+    z = np.abs(tab["mean"].to_numpy()) / tab["sd"].to_numpy()
+    assert explorer.tree_view.selected == int(tab["subgroup"].iloc[np.argmax(z)])
     assert explorer.tree_view.palette["stops"] == list(DIVERGING)
     assert explorer.tree_view.colour_limit == pytest.approx(np.abs(tab["mean"]).max())
     # Every panel was drawn at start, so a saved notebook shows them all.
@@ -373,6 +373,9 @@ def test_recompute_api_raises_and_keeps_the_view(explorer, draws):
 def test_complier_weighted_draws(study):
     ex = Explorer(study.complier_draws(), max_depth=2, trends=False, background=False)
     assert "complier-weighted" in ex._header.value
+    # The first selection is the clearest subgroup, not one whose ratio is unstable.
+    table = ex.tree.table()
+    assert not table.set_index("subgroup").loc[ex.settings["selected"], "weak_uptake"]
     ex._tabs.selected_index = list(ex._panels).index("table")
     assert "sw-table" in ex._table_html.value
 

@@ -111,9 +111,15 @@ class Results:
         return [int(i) for i in self.at(depth).leaf_ids]
 
     def standout(self, depth: int) -> int:
-        """The subgroup at ``depth`` whose posterior mean is farthest from zero."""
+        """The subgroup at ``depth`` whose posterior mean is farthest from zero in posterior sds.
+
+        Measured in sds, not in effect units, so an unstable subgroup (a weak complier share,
+        a handful of units) with a huge but uncertain mean is not the first one shown.
+        """
         tab = self.table(depth, 0.95, "equal-tailed")
-        return int(tab["subgroup"].iloc[int(np.argmax(np.abs(tab["mean"].to_numpy(float))))])
+        sd = tab["sd"].to_numpy(float)
+        score = np.abs(tab["mean"].to_numpy(float)) / np.where(sd > 0, sd, np.inf)
+        return int(tab["subgroup"].iloc[int(np.argmax(np.nan_to_num(score, nan=-1.0)))])
 
     def follow(self, node: int, depth: int) -> int:
         """The node to show for ``node`` at ``depth``: itself if shown, else its ancestor at ``depth``."""
