@@ -101,6 +101,15 @@ def test_quickstart_saves_the_state_of_the_tree_view_and_every_figure(executed):
     highlighted = [t for f in figures for t in f["_widget_data"] if t.get("name") == "highlight"]
     assert len(highlighted) == 1
 
+    # Every binary buffer the state lists has a place to go: the static renderer puts each one
+    # back at its path and stops at the first path that runs into a missing or null field.
+    for model_id, model in state.items():
+        for buf in model.get("buffers", []):
+            node = model["state"]
+            for key in buf["path"][:-1]:
+                node = node[key] if isinstance(node, dict) else node[int(key)]
+                assert node is not None, (model_id, buf["path"])
+
     # The displayed explorer refers to a saved model, so a renderer can draw it without a kernel.
     view_ids = [o["data"]["application/vnd.jupyter.widget-view+json"]["model_id"]
                 for c in nb.cells if c.cell_type == "code" for o in c.outputs

@@ -1,6 +1,7 @@
 """Kernel-side tests of the notebook widgets (no browser: see tests/browser/ for that)."""
 from __future__ import annotations
 
+import base64
 import html
 import json
 import os
@@ -146,6 +147,22 @@ def test_show_figure_replaces_content_and_state():
     assert widget._widget_layout["height"] == 333 and "shapes" not in widget._widget_layout
 
 
+def test_show_figure_sends_no_numpy_arrays():
+    """Object arrays (text customdata) become lists, so no edit message carries a binary buffer."""
+    widget = go.FigureWidget()
+    custom = np.array([["a", 1], ["b", 2]], dtype=object)
+    P.show_figure(widget, go.Figure(go.Scatter(x=[1, 2], y=[3, 4], customdata=custom)))
+
+    def arrays(obj):
+        if isinstance(obj, dict):
+            return sum((arrays(v) for v in obj.values()), [])
+        if isinstance(obj, (list, tuple)):
+            return sum((arrays(v) for v in obj), [])
+        return [obj] if isinstance(obj, (np.ndarray, np.generic)) else []
+    assert arrays(widget._data) == [] and arrays(widget._widget_data) == []
+    assert list(map(list, widget.data[0].customdata)) == [["a", 1], ["b", 2]]
+
+
 def test_table_html_escapes_and_marks_the_selected_row():
     tab = pd.DataFrame({"subgroup": [1, 2], "rule": ["x < 1 & <b>bold</b>", "x >= 1"], "n_units": [5, 6],
                         "share": [0.4, 0.6], "mean": [1.0, 2.0], "sd": [0.1, 0.1], "lower": [0.8, 1.8],
@@ -207,6 +224,13 @@ def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
     assert titles == ["Subgroup effects", "Fit by depth", "Trends", "Linear fit", "Table", "Contrasts"]
 
 
+def _values(array_like):
+    """A trace's numbers: plotly 7 keeps numpy input in its typed-array form {"dtype", "bdata"}."""
+    if isinstance(array_like, dict) and "bdata" in array_like:
+        return np.frombuffer(base64.b64decode(array_like["bdata"]), dtype=array_like["dtype"])
+    return np.asarray(array_like)
+
+
 def _highlighted_rule(fig_widget):
     traces = [t for t in fig_widget.data if t.name == "highlight"]
     if not traces or traces[0].customdata is None or len(traces[0].customdata) == 0:
@@ -250,7 +274,7 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     explorer._tabs.selected_index = list(explorer._panels).index("contrasts")
     contrasts = explorer._panels["contrasts"].figure
     assert html.escape(_plain(rule), quote=False)[:30] in contrasts.layout.title.text.replace("<br>", " ")
-    assert len(contrasts.data[-1].y) == len(leaves3.leaf_ids) - 1
+    assert len(_values(contrasts.data[-1].y)) == len(leaves3.leaf_ids) - 1
 
     # Back to depth 2: the selection moves to the ancestor that is a subgroup there...
     explorer._tabs.selected_index = 0

@@ -57,16 +57,34 @@ def show_figure(widget: go.FigureWidget, fig: go.Figure) -> None:
     nbclient ``store_widget_state=True``) then shows the current figure, not the
     first one.
     """
-    new_layout = fig.layout.to_plotly_json()
+    # JSON-ready values only (plotly's base64 form for numbers, lists for text): a numpy array
+    # left in an edit message travels as a binary buffer, and nbclient's saved widget state keeps
+    # that buffer's path after the message field is reset to null, which stops the static HTML
+    # widget renderer (it cannot put the buffer back) -- seen with object-dtype customdata.
+    plain = _plain(fig.to_dict())
+    new_layout = plain.get("layout", {})
     stale = set(widget.layout.to_plotly_json()) - set(new_layout) - {"template"}
     with widget.batch_update():
         widget.data = ()
     if stale:
         widget.plotly_relayout({key: None for key in stale})
-    widget.layout = fig.layout
-    widget.add_traces(list(fig.data))
+    widget.layout = new_layout
+    widget.add_traces(plain.get("data", []))
     widget._widget_layout = deepcopy(widget._layout_obj._props)
     widget._widget_data = deepcopy(widget._data)
+
+
+def _plain(obj):
+    """``obj`` with numpy arrays and scalars turned into lists and Python numbers."""
+    if isinstance(obj, dict):
+        return {k: _plain(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_plain(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return _plain(obj.tolist())
+    if isinstance(obj, np.generic):
+        return obj.item()
+    return obj
 
 
 def set_width(widget: go.FigureWidget, width: int | None) -> None:
