@@ -384,6 +384,33 @@ def test_min_size_and_covariates_recompute_on_a_worker_thread(draws, monkeypatch
     assert "swx-status-error" not in ex.status.value
 
 
+def test_the_widget_stays_usable_while_a_recompute_runs(draws, monkeypatch):
+    import threading
+
+    from summarize_widgets.widgets import _results
+
+    ex = Explorer(draws, max_depth=3, trends=False, linear=False)
+    gate, started = threading.Event(), threading.Event()
+    real = _results.Results.compute.__func__
+
+    def slow(cls, *args, **kwargs):
+        started.set()
+        assert gate.wait(30)
+        return real(cls, *args, **kwargs)
+    monkeypatch.setattr(_results.Results, "compute", classmethod(slow))
+    ex.min_size_control.value = 90
+    assert started.wait(30)
+    assert "swx-status-busy" in ex.status.value
+    ex.apply(depth=3)  # served from the previous results while the worker waits
+    assert len(ex.tree_view.leaf_ids) == len(summarize_tree(draws, max_depth=3).depth(3).leaf_ids)
+    ex.min_size_control.value = 120  # overtakes the first request: only its result is shown
+    gate.set()
+    assert ex.wait(timeout=60)
+    assert ex.tree.min_size == 120 and ex.min_size_control.value == 120
+    assert ex.settings["depth"] == 3
+    assert ex.tree_view.leaf_ids == [int(i) for i in summarize_tree(draws, max_depth=3, min_size=120).depth(3).leaf_ids]
+
+
 def test_recompute_api_raises_and_keeps_the_view(explorer, draws):
     before = list(explorer.tree_view.nodes)
     with pytest.raises(SummaryError, match=r"`min_size` must be between 1 and 400; got 401"):
