@@ -7,6 +7,11 @@ on average over replications, even for a functional chosen after seeing the data
 "Selection paradoxes of Bayesian inference"). Subgroups chosen by the tree from the posterior mean
 are such functionals, so their coverage checks the whole route: exact draws -> tree on the
 posterior mean -> one-pass projection -> quantile intervals.
+
+At one fixed truth (the demo scenario, 30 replications of 2,000 households) tree-chosen subgroups
+covered 87-90% (selection on the posterior mean's noise) while a pre-specified subgroup covered 93%
+(28 of 30); the README's Cautions say so. That check is not a test: it measures a property of
+selecting subgroups, not of this code.
 """
 import numpy as np
 import pandas as pd
