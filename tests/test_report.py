@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import os
+from concurrent.futures import ThreadPoolExecutor
 import re
 from html.parser import HTMLParser
 from pathlib import Path
@@ -187,10 +188,19 @@ def test_report_renders_offline_in_chromium(tmp_path, full_page):
         if os.environ.get("CI", "").lower() == "true":
             pytest.fail(f"no chromium at {CHROMIUM} (apt-get install -y chromium)")
         pytest.skip(f"no chromium at {CHROMIUM}")
-    from playwright.sync_api import sync_playwright
-
     path = tmp_path / "report.html"
     path.write_text(full_page, encoding="utf-8")
+    # Playwright's sync API refuses to start in a thread where an earlier test (kaleido, nbclient)
+    # left an asyncio loop marked as running; a fresh thread has none.
+    with ThreadPoolExecutor(1) as pool:
+        per_div, errors, outside, dialogs = pool.submit(_render_offline, path).result()
+    assert len(per_div) == 6 and min(per_div) >= 1
+    assert errors == [] and outside == [] and dialogs == []
+
+
+def _render_offline(path):
+    from playwright.sync_api import sync_playwright
+
     errors, outside, dialogs = [], [], []
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=CHROMIUM, args=["--no-sandbox", "--disable-gpu"])
@@ -210,5 +220,4 @@ def test_report_renders_offline_in_chromium(tmp_path, full_page):
             per_div = page.evaluate("[...document.querySelectorAll('.plotly-graph-div')].map(d => d.querySelectorAll('.main-svg').length)")
         finally:
             browser.close()
-    assert len(per_div) == 6 and min(per_div) >= 1
-    assert errors == [] and outside == [] and dialogs == []
+    return per_div, errors, outside, dialogs
