@@ -124,7 +124,6 @@ class _Fitted:
     def _conditions(self) -> dict:
         """Condition on the edge into each non-root node."""
         t = self.t
-        leaf_of_node = {}
         # units in each node, for readable thresholds and category sets
         node_units = self.est.decision_path(self.X).tocsc()
         conds = {}
@@ -156,7 +155,6 @@ class _Fitted:
                 lab_r = tuple(sorted((names[r] for r in present if r > thr), key=spec.categories.index))
                 conds[left] = Condition(spec.name, labels=lab_l)
                 conds[right] = Condition(spec.name, labels=lab_r)
-        del leaf_of_node
         return conds
 
     def _rules(self) -> list[str]:
