@@ -372,17 +372,19 @@ class EffectDraws:
 
     def _block(self, r: slice) -> DrawBlock:
         vals = self._values[r]
-        if self._den is not None:
-            den = np.asarray(self._den[r], dtype=np.float64)
-            if self._weights is None:
-                return DrawBlock(r, vals, den)
-            return DrawBlock(r, vals * self._weights, den * self._weights)
-        w = self._weights
-        if w is None:
-            return DrawBlock(r, vals, None)
-        if w.ndim == 2:
-            w = w[r]
-        return DrawBlock(r, vals * w, w)
+        # Products that overflow float64 are caught by the validation scan and reported as an error.
+        with np.errstate(over="ignore", invalid="ignore"):
+            if self._den is not None:
+                den = np.asarray(self._den[r], dtype=np.float64)
+                if self._weights is None:
+                    return DrawBlock(r, vals, den)
+                return DrawBlock(r, vals * self._weights, den * self._weights)
+            w = self._weights
+            if w is None:
+                return DrawBlock(r, vals, None)
+            if w.ndim == 2:
+                w = w[r]
+            return DrawBlock(r, vals * w, w)
 
     # -- public description ------------------------------------------------------------
     @property
