@@ -65,7 +65,7 @@ def _encode(covariates: pd.DataFrame, specs: list[ColumnSpec], rank: dict, edges
 def _bin_edges(x: np.ndarray, n_bins: int) -> np.ndarray | None:
     """Quantile bin edges when a column has more than ``n_bins`` distinct values, else None."""
     obs = x[~np.isnan(x)]
-    if np.unique(obs).size <= n_bins:
+    if pd.Series(obs).nunique() <= n_bins:  # hash-based count: no sort
         return None
     return np.unique(np.quantile(obs, np.linspace(0, 1, n_bins + 1)[1:-1], method="lower"))
 
@@ -122,10 +122,39 @@ class _Fitted:
 
     # -- rules -----------------------------------------------------------------------
     def _conditions(self) -> dict:
-        """Condition on the edge into each non-root node."""
+        """Condition on the edge into each non-root node.
+
+        Thresholds are written with the fewest digits that keep the fitted partition, which
+        needs each child's largest (left) and smallest (right) value; category sets list the
+        categories present in each child. Both come from per-leaf summaries (a node is a union
+        of deepest leaves), so no per-node pass over the units is made.
+        """
         t = self.t
-        # units in each node, for readable thresholds and category sets
-        node_units = self.est.decision_path(self.X).tocsc()
+        L = len(self.sk_leaves)
+        order = np.argsort(self.unit_leaf, kind="stable")
+        starts = np.searchsorted(self.unit_leaf[order], np.arange(L))
+        raw = self.X_raw[order]
+        with np.errstate(invalid="ignore"):
+            leaf_max = np.fmax.reduceat(raw, starts, axis=0)  # NaN only where a leaf has no observed value
+            leaf_min = np.fmin.reduceat(raw, starts, axis=0)
+        present = {}
+        for f, spec in enumerate(self.specs):
+            if spec.kind == "categorical":
+                k = len(spec.categories)
+                codes = self.X[:, f].astype(np.int64)
+                present[f] = np.bincount(self.unit_leaf * k + codes, minlength=L * k).reshape(L, k) > 0
+        member = self.M > 0  # (leaves, nodes)
+
+        def child_max(c, f):
+            v = leaf_max[member[:, c], f]
+            v = v[~np.isnan(v)]
+            return v.max() if v.size else -np.inf
+
+        def child_min(c, f):
+            v = leaf_min[member[:, c], f]
+            v = v[~np.isnan(v)]
+            return v.min() if v.size else np.inf
+
         conds = {}
         for node in range(t.node_count):
             left, right = t.children_left[node], t.children_right[node]
@@ -133,28 +162,19 @@ class _Fitted:
                 continue
             f = t.feature[node]
             spec = self.specs[f]
-            thr = t.threshold[node]
-            units = node_units[:, node].nonzero()[0]
-            x = self.X[units, f]
-            miss = np.isnan(x)
-            go_left = np.where(miss, bool(t.missing_go_to_left[node]), x <= thr)
             if spec.kind == "numeric":
-                raw = self.X_raw[units, f]
-                lx = raw[go_left & ~miss]
-                rx = raw[~go_left & ~miss]
-                value = nice_threshold(thr, lx.max() if lx.size else -np.inf, rx.min() if rx.size else np.inf)
+                value = nice_threshold(t.threshold[node], child_max(left, f), child_min(right, f))
                 has_missing = spec.n_missing > 0
                 ml = has_missing and bool(t.missing_go_to_left[node])
                 conds[left] = Condition(spec.name, op="<=", value=value, numeric_value=float(value), with_missing=ml)
                 conds[right] = Condition(spec.name, op=">", value=value, numeric_value=float(value),
                                          with_missing=has_missing and not ml)
             else:
-                present = np.unique(x[~miss]).astype(int)
                 names = self.names_by_rank[spec.name]
-                lab_l = tuple(sorted((names[r] for r in present if r <= thr), key=spec.categories.index))
-                lab_r = tuple(sorted((names[r] for r in present if r > thr), key=spec.categories.index))
-                conds[left] = Condition(spec.name, labels=lab_l)
-                conds[right] = Condition(spec.name, labels=lab_r)
+                for child in (left, right):
+                    ranks = np.flatnonzero(present[f][member[:, child]].any(axis=0))
+                    labels = tuple(sorted((names[r] for r in ranks), key=spec.categories.index))
+                    conds[child] = Condition(spec.name, labels=labels)
         return conds
 
     def _rules(self) -> list[str]:
