@@ -241,6 +241,7 @@ class EffectDraws:
         self._wsum = np.empty(S)  # sum_i w_si
         self._wtsum = np.empty(S)  # sum_i w_si T_si
         self._bad_rows = []
+        self._uptake_min, self._uptake_neg = np.inf, 0
         self._lock = threading.Lock()
         blocks = list(self.blocks())
         # Overflow (finite values whose weighted sums exceed float64) is detected below and reported, not warned.
@@ -269,12 +270,19 @@ class EffectDraws:
         with np.errstate(over="ignore", invalid="ignore"):
             wt = np.asarray(block.wt, dtype=np.float64)
             rowsum = wt.sum(axis=1)
-            if not np.isfinite(rowsum).all() or (self._den is not None and not np.isfinite(self._den[r].sum(axis=1)).all()):
+            w = block.w
+            wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
+            if not (np.isfinite(rowsum).all() and np.isfinite(wsum).all()):
                 with self._lock:
                     self._bad_rows.append(r)
                 return
-            w = block.w
-            wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
+            if self._den is not None:  # monotonicity check while the block is in cache
+                den = np.asarray(self._den[r])
+                low = float(den.min())
+                neg = int((den < 0).sum()) if low < 0 else 0
+                with self._lock:
+                    self._uptake_min = min(self._uptake_min, low)
+                    self._uptake_neg += neg
             colsum = wt.sum(axis=0)
             self._wsum[r] = wsum
             self._wtsum[r] = rowsum
@@ -349,11 +357,11 @@ class EffectDraws:
         )
 
     def _check_uptake(self):
-        mins = [float(np.min(self._den[b.rows])) for b in self.blocks()]
-        if min(mins) < 0:
-            neg = sum(int((np.asarray(self._den[b.rows]) < 0).sum()) for b in self.blocks())
+        """Refuse negative uptake effects (counted during the scan)."""
+        if self._uptake_neg:
             raise SummaryError(
-                f"`uptake_itt` has {neg} negative values (smallest {min(mins):.4g}). Complier weighting assumes "
+                f"`uptake_itt` has {self._uptake_neg} negative values (smallest {self._uptake_min:.4g}). "
+                "Complier weighting assumes "
                 "monotonicity (the offer never lowers uptake), so the uptake effect must be >= 0; if the negative "
                 "values are sampling noise you accept, clip them yourself, e.g. np.clip(uptake_itt, 0, None)."
             )

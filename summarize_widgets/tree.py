@@ -29,8 +29,8 @@ from ._fit import checked_r2, r2_note
 from ._passes import LeafSums, run_pass
 from ._rules import Condition, combine, nice_threshold
 from ._subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
-from ._validate import SummaryError, check_columns, check_int, check_interval, check_level
-from .intervals import interval
+from ._validate import SummaryError, check_columns, check_int, check_level
+from . import intervals
 
 __all__ = ["summarize_tree", "TreeSummary", "default_min_size"]
 
@@ -47,8 +47,12 @@ def _no_heterogeneity(sst, wsum, centre):
     return sst <= 1e-20 * wsum * np.maximum(centre * centre, 1e-300) + 0.0
 
 
-def _encode(covariates: pd.DataFrame, specs: list[ColumnSpec], rank: dict, edges: dict) -> np.ndarray:
-    """The matrix the tree sees: numeric values (or their bin numbers), categories as Fisher ranks."""
+def _encode(covariates: pd.DataFrame, specs: list[ColumnSpec], rank: dict, edges: dict, codes=None) -> np.ndarray:
+    """The matrix the tree sees: numeric values (or their bin numbers), categories as Fisher ranks.
+
+    ``codes`` (column -> category codes) reuses codes the caller already has.
+    """
+    codes = codes or {}
     cols = []
     for spec in specs:
         s = covariates[spec.name]
@@ -58,7 +62,8 @@ def _encode(covariates: pd.DataFrame, specs: list[ColumnSpec], rank: dict, edges
                 x = np.where(np.isnan(x), np.nan, np.searchsorted(edges[spec.name], x, side="right").astype(np.float64))
             cols.append(x)
         else:
-            cols.append(rank[spec.name][category_codes(s, spec)].astype(np.float64))
+            c = codes[spec.name] if spec.name in codes else category_codes(s, spec)
+            cols.append(rank[spec.name][c].astype(np.float64))
     return np.column_stack(cols)
 
 
@@ -318,7 +323,7 @@ class TreeSummary:
         f = self._f
         ids = np.flatnonzero(f.node_depth <= self.current_depth)
         theta = ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
-        lo, hi = _interval(theta, level, interval)
+        lo, hi = intervals.interval(theta, level, interval)  # the module: `interval` is the argument
         leaves = set(self.leaf_ids.tolist())
         out = pd.DataFrame({
             "node": ids.astype(int),
@@ -383,7 +388,7 @@ class TreeSummary:
         rows = []
         for d, r2 in self.fit_r2_draws_by_depth().items():
             ok = r2[~np.isnan(r2)]
-            lo, hi = _interval(ok[:, None], level, interval)
+            lo, hi = intervals.interval(ok[:, None], level, interval)
             rows.append({"depth": d, "n_subgroups": len(self._f.nodes_at(d)), "mean": ok.mean(),
                          "lower": float(lo[0]), "upper": float(hi[0])})
         out = pd.DataFrame(rows)
@@ -422,11 +427,6 @@ class TreeSummary:
         for r in tab.itertuples():
             lines.append(f"  [{r.subgroup}] {r.rule}: n={r.n_units}, mean {r.mean:.4g} [{r.lower:.4g}, {r.upper:.4g}]")
         return "\n".join(lines)
-
-
-def _interval(theta, level, kind):
-    check_interval(kind)
-    return interval(theta, check_level(level), kind)
 
 
 def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns=None,
@@ -471,11 +471,11 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     wbar = draws.mean_weights
     fit_rows = wbar > 0
     # Fisher ordering of categories by the weighted mean of the target within each category.
-    rank, names_by_rank = {}, {}
+    rank, names_by_rank, all_codes = {}, {}, {}
     for spec in specs:
         if spec.kind != "categorical":
             continue
-        codes = category_codes(draws.covariates[spec.name], spec)
+        codes = all_codes[spec.name] = category_codes(draws.covariates[spec.name], spec)
         k = len(spec.categories)
         wsum = np.bincount(codes[fit_rows], weights=wbar[fit_rows], minlength=k)
         tsum = np.bincount(codes[fit_rows], weights=(wbar * np.nan_to_num(target))[fit_rows], minlength=k)
@@ -493,7 +493,7 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
             e = _bin_edges(numeric_values(draws.covariates[spec.name]), n_bins)
             if e is not None:
                 edges[spec.name] = e
-    X = _encode(draws.covariates, specs, rank, edges)
+    X = _encode(draws.covariates, specs, rank, edges, codes=all_codes)
     X_raw = np.column_stack([numeric_values(draws.covariates[sp.name]) if sp.kind == "numeric" else X[:, j]
                              for j, sp in enumerate(specs)])
 

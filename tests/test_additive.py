@@ -5,6 +5,7 @@ import pytest
 from pygam import LinearGAM, f, l, s
 
 import summarize_widgets as sw
+from helpers import household_covariates
 from summarize_widgets import SummaryError
 from summarize_widgets.additive import summarize_additive
 
@@ -14,12 +15,7 @@ LAM = {"age": 0.5, "fuel": 2.0, "rooms": 0.1}
 def _data(n=500, S=200, seed=11, dtype=np.float64):
     """Simulated bill changes after a home energy retrofit: a smooth age trend, fuel and size shifts."""
     rng = np.random.default_rng(seed)
-    X = pd.DataFrame({
-        "age": rng.uniform(20, 85, n).round(1),
-        "fuel": rng.choice(["gas", "oil", "heat pump"], n),
-        "rooms": rng.integers(2, 9, n).astype(float),
-    })
-    X.loc[rng.choice(n, 40, replace=False), "rooms"] = np.nan
+    X = household_covariates(n, rng)
     age = X["age"].to_numpy()
     f_ = -0.8 * np.sin(age / 12) - 0.6 * (X["fuel"] == "oil").to_numpy() - 0.05 * np.nan_to_num(X["rooms"].to_numpy(), nan=7)
     T = f_ + rng.normal(0, 0.5, (S, n)) + rng.normal(0, 0.3, (S, 1))

@@ -1,10 +1,10 @@
 """Linear summary: projections, R^2, intervals and errors checked against outside references."""
 import numpy as np
-import pandas as pd
 import pytest
 import statsmodels.api as sm
 
 import summarize_widgets as sw
+from helpers import household_covariates
 from summarize_widgets import SummaryError
 from summarize_widgets._design import classify_columns, linear_design
 from summarize_widgets.linear import summarize_linear
@@ -13,12 +13,7 @@ from summarize_widgets.linear import summarize_linear
 def _data(n=500, S=200, seed=3, dtype=np.float64, offset=0.0):
     """Simulated bill changes after a home energy retrofit: effect drifts with age, fuel and size."""
     rng = np.random.default_rng(seed)
-    X = pd.DataFrame({
-        "age": rng.uniform(20, 85, n).round(1),
-        "fuel": rng.choice(["gas", "oil", "heat pump"], n),
-        "rooms": rng.integers(2, 9, n).astype(float),
-    })
-    X.loc[rng.choice(n, 40, replace=False), "rooms"] = np.nan
+    X = household_covariates(n, rng)
     f = -0.02 * X["age"].to_numpy() - 0.6 * (X["fuel"] == "oil").to_numpy() - 0.1 * np.nan_to_num(X["rooms"].to_numpy(), nan=4)
     T = offset + f + rng.normal(0, 0.5, (S, n)) + rng.normal(0, 0.3, (S, 1))
     return T.astype(dtype), X
