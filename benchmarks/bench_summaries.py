@@ -92,7 +92,7 @@ def main(argv=None):
     t_tree, tree = timed(lambda: sw.summarize_tree(draws, max_depth=6))
     print(f"tree summary, every depth up to 6                  {t_tree:8.3f} s   = {t_tree / ref:5.2f} passes   (target <= 3)")
 
-    from summarize_widgets._passes import LeafSums, run_pass
+    from summarize_widgets.core.passes import LeafSums, run_pass
 
     leaf_of_unit = tree._f.unit_leaf
     t_leafpass, _ = timed(lambda: run_pass(draws, [LeafSums(leaf_of_unit, int(leaf_of_unit.max()) + 1)]))
@@ -133,8 +133,8 @@ def main(argv=None):
     if additive is not None:
         import statsmodels.api as sm
 
-        from summarize_widgets._design import classify_columns, linear_design
-        from summarize_widgets.additive import _features, _pygam_model
+        from summarize_widgets.core.design import classify_columns, linear_design
+        from summarize_widgets.summaries.additive import _features, _pygam_model
 
         specs = classify_columns(X, list(X.columns))
         Xg, info = _features(X, specs, np.ones(n, bool))

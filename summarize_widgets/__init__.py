@@ -8,13 +8,13 @@ summarize_widgets`` stays light.
 from importlib import import_module
 
 from ._version import __version__
-from ._validate import SummaryError
-from .additive import AdditiveSummary, summarize_additive
-from .draws import EffectDraws
-from .groups import GroupSummary, summarize_groups
-from .io import load_draws
-from .linear import LinearSummary, summarize_linear
-from .tree import TreeSummary, summarize_tree
+from .core.validate import SummaryError
+from .summaries.additive import AdditiveSummary, summarize_additive
+from .core.draws import EffectDraws
+from .summaries.groups import GroupSummary, summarize_groups
+from .io.load import load_draws
+from .summaries.linear import LinearSummary, summarize_linear
+from .summaries.tree import TreeSummary, summarize_tree
 
 __all__ = [
     "__version__",
@@ -38,9 +38,9 @@ __all__ = [
 ]
 
 _LAZY = {
-    "simulate_retrofit_study": ("demo", "simulate_retrofit_study"),
-    "summarize_all": ("bundle", "summarize_all"),
-    "write_summary_folder": ("bundle", "write_summary_folder"),
+    "simulate_retrofit_study": ("datasets", "simulate_retrofit_study"),
+    "summarize_all": ("summaries.bundle", "summarize_all"),
+    "write_summary_folder": ("export.folder", "write_summary_folder"),
     "Explorer": ("widgets", "Explorer"),
     "figures": ("figures", None),
     "export": ("export", None),

@@ -100,8 +100,8 @@ def _groups(items):
 
 
 def _load(args):
-    from .draws import EffectDraws
-    from .io import load_draws
+    from .core.draws import EffectDraws
+    from .io.load import load_draws
 
     kw = dict(format=args.draws_format, variable=args.variable, chains=args.chains)
     if args.uptake is None:
@@ -158,7 +158,7 @@ def _pick_table(bundle, name, level, interval):
 
 
 def _summaries(draws, args, groups=None, need=("additive", "linear")):
-    from .bundle import summarize_all
+    from .summaries.bundle import summarize_all
 
     return summarize_all(draws, depth=args.depth, max_depth=args.max_depth, min_size=args.min_size,
                          columns=_columns(args.columns), groups=groups,
@@ -184,12 +184,12 @@ def _finish(bundle, files, out) -> None:
 
 
 def _cmd_demo(args) -> int:
-    from .bundle import write_summary_folder
-    from .demo import simulate_retrofit_study
+    from .export.folder import write_summary_folder
+    from .datasets.retrofit import simulate_retrofit_study
 
     out = Path(args.out) if args.out else Path.cwd() / f"summary_output_{datetime.now():%Y%m%d-%H%M%S}"
-    from .bundle import _folder_ready
-    _folder_ready(out, args.overwrite)  # refuse before the work, not after
+    from .export.folder import check_output_folder
+    check_output_folder(out, args.overwrite)  # refuse before the work, not after
     study = simulate_retrofit_study(n_households=args.households, n_draws=args.n_draws, seed=args.seed)
     draws = study.complier_draws() if args.compliers else study.effect_draws()
     print(f"Simulated retrofit study: {draws}")
@@ -212,10 +212,10 @@ def _cmd_summarize(args) -> int:
 
 
 def _cmd_report(args) -> int:
-    from .bundle import _folder_ready, write_summary_folder
+    from .export.folder import check_output_folder, write_summary_folder
 
     out = Path(args.out)
-    _folder_ready(out, args.overwrite)
+    check_output_folder(out, args.overwrite)
     groups = _groups(args.group)
     draws = _load(args)
     bundle = _summaries(draws, args, groups=groups or None)

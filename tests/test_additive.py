@@ -7,7 +7,7 @@ from pygam import LinearGAM, f, l, s
 import summarize_widgets as sw
 from helpers import household_covariates
 from summarize_widgets import SummaryError
-from summarize_widgets.additive import summarize_additive
+from summarize_widgets.summaries.additive import summarize_additive
 
 LAM = {"age": 0.5, "fuel": 2.0, "rooms": 0.1}
 

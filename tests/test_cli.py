@@ -121,7 +121,7 @@ def test_report_for_own_draws_with_groups(own_files, tmp_path):
 
 
 def test_without_a_browser_the_folder_is_written_and_figures_are_skipped_with_a_note(own_files, tmp_path, monkeypatch, capsys):
-    import summarize_widgets._static_export as SE
+    import summarize_widgets.figures.static as SE
 
     monkeypatch.delenv("BROWSER_PATH", raising=False)
     monkeypatch.setattr(SE.shutil, "which", lambda name: None)

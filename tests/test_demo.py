@@ -9,8 +9,8 @@ from scipy import integrate, stats
 from scipy.interpolate import CubicSpline
 
 from summarize_widgets import EffectDraws, SummaryError
-from summarize_widgets import demo
-from summarize_widgets.demo import (
+from summarize_widgets.datasets import retrofit as demo
+from summarize_widgets.datasets.retrofit import (
     BILL_KNOTS,
     draw_uptake_shares,
     natural_spline_columns,

@@ -6,9 +6,9 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-import summarize_widgets.draws as draws_module
+import summarize_widgets.core.draws as draws_module
 from summarize_widgets import EffectDraws
-from summarize_widgets._validate import SummaryError
+from summarize_widgets.core.validate import SummaryError
 
 S, N = 6, 5  # draws, households
 

@@ -19,10 +19,10 @@ import pytest
 import summarize_widgets
 from summarize_widgets import EffectDraws, SummaryError
 from summarize_widgets import export as ex
-from summarize_widgets.additive import summarize_additive
-from summarize_widgets.groups import summarize_groups
-from summarize_widgets.linear import summarize_linear
-from summarize_widgets.tree import summarize_tree
+from summarize_widgets.summaries.additive import summarize_additive
+from summarize_widgets.summaries.groups import summarize_groups
+from summarize_widgets.summaries.linear import summarize_linear
+from summarize_widgets.summaries.tree import summarize_tree
 
 NASTY = "a&b%c$d#e_f{g}h~i^j\\k"  # every LaTeX special in one name
 

@@ -15,12 +15,12 @@ import plotly.graph_objects as go
 import pytest
 
 import summarize_widgets as sw
-import summarize_widgets._static_export as SE
-import summarize_widgets.figures as F
-from summarize_widgets._files import _umask, write_atomic
+import summarize_widgets.figures.static as SE
+import summarize_widgets.figures.plots as F
+from summarize_widgets.core.files import _umask, write_atomic
 from summarize_widgets import SummaryError
-from summarize_widgets.groups import summarize_groups
-from summarize_widgets.tree import summarize_tree
+from summarize_widgets.summaries.groups import summarize_groups
+from summarize_widgets.summaries.tree import summarize_tree
 
 INJECT = "<script>alert(1)</script>"
 REPO = Path(__file__).resolve().parents[1]
@@ -190,7 +190,7 @@ def test_effect_color_agrees_with_the_js_tree_view():
 # -- subgroup effects ------------------------------------------------------------------------
 def test_subgroups_ordered_by_mean_with_exact_intervals():
     df, _ = _subgroup_table()
-    fig = F._subgroups_figure(df)
+    fig = F.subgroups_figure(df)
     assert isinstance(fig, go.Figure)
     tr = _trace(fig, "subgroups")
     order = df.sort_values("mean")  # bottom (y = 0) to top
@@ -217,12 +217,12 @@ def test_subgroups_ordered_by_mean_with_exact_intervals():
 
 def test_subgroups_escape_injected_rule():
     df, _ = _subgroup_table()
-    _assert_no_markup_injected(F._subgroups_figure(df, title=INJECT))
+    _assert_no_markup_injected(F.subgroups_figure(df, title=INJECT))
 
 
 def test_subgroups_highlight_in_accent():
     df, _ = _subgroup_table()
-    fig = F._subgroups_figure(df, highlight=7)
+    fig = F.subgroups_figure(df, highlight=7)
     hi = _trace(fig, "highlight")
     assert hi.error_x.color == F.ACCENT and hi.marker.line.color == F.ACCENT
     assert list(hi.x) == pytest.approx([df.loc[df.subgroup == 7, "mean"].item()])
@@ -236,7 +236,7 @@ def test_subgroups_show_draws_as_kde_violins():
     from scipy.stats import gaussian_kde
 
     df, draws = _subgroup_table()
-    fig = F._subgroups_figure(df, draws=draws)
+    fig = F.subgroups_figure(df, draws=draws)
     v = _trace(fig, "posterior density")
     assert v.fill == "toself"
     x = np.array([np.nan if a is None else a for a in v.x], dtype=float)
@@ -257,7 +257,7 @@ def test_subgroups_show_draws_as_kde_violins():
 
 def test_subgroups_pinned_row_on_top():
     df, _ = _subgroup_table()
-    fig = F._subgroups_figure(df, pinned=[8])
+    fig = F.subgroups_figure(df, pinned=[8])
     pin = _trace(fig, "pinned")
     assert list(pin.y) == [max(fig.layout.yaxis.tickvals)] and pin.marker.symbol == "diamond"
 
@@ -270,17 +270,17 @@ def test_subgroups_pinned_row_on_top():
 def test_subgroups_errors(kwargs, match):
     df, _ = _subgroup_table()
     with pytest.raises(SummaryError, match=match):
-        F._subgroups_figure(df, **kwargs)
+        F.subgroups_figure(df, **kwargs)
 
 
 def test_builders_name_missing_columns_and_empty_tables():
     df, _ = _subgroup_table()
     with pytest.raises(SummaryError, match=r"`table` lacks the column\(s\) 'lower', 'upper'"):
-        F._subgroups_figure(df.drop(columns=["lower", "upper"]))
+        F.subgroups_figure(df.drop(columns=["lower", "upper"]))
     with pytest.raises(SummaryError, match="`table` has no rows"):
-        F._subgroups_figure(df.iloc[:0])
+        F.subgroups_figure(df.iloc[:0])
     with pytest.raises(SummaryError, match="`table` must be a pandas DataFrame; got dict"):
-        F._subgroups_figure({"mean": [1]})
+        F.subgroups_figure({"mean": [1]})
 
 
 def test_plot_subgroups_on_a_real_tree(tree):
@@ -316,7 +316,7 @@ def test_plot_functions_reject_wrong_result_types(tree):
     with pytest.raises(SummaryError, match="`tree` must be a TreeSummary; got str"):
         F.plot_fit_by_depth("tree")
     with pytest.raises(SummaryError, match="`additive` must be an AdditiveSummary; got TreeSummary"):
-        F.plot_trends(tree)
+        F.plot_curves(tree)
     with pytest.raises(SummaryError, match="`linear` must be a LinearSummary; got TreeSummary"):
         F.plot_coefficients(tree)
     with pytest.raises(SummaryError, match="`result` must be a TreeSummary or a GroupSummary; got int"):
@@ -350,7 +350,7 @@ def test_fit_by_depth_on_a_real_tree(tree):
 def test_fit_by_depth_skips_violin_of_constant_draws():
     summary = pd.DataFrame({"depth": [1, 2], "n_subgroups": [2, 4], "mean": [0.4, 1.0],
                             "lower": [0.3, 1.0], "upper": [0.5, 1.0]})
-    fig = F._fit_by_depth_figure(summary, {1: np.random.default_rng(0).normal(0.4, 0.05, 200), 2: np.ones(200)})
+    fig = F.fit_by_depth_figure(summary, {1: np.random.default_rng(0).normal(0.4, 0.05, 200), 2: np.ones(200)})
     assert int(np.isnan(np.asarray(_trace(fig, "posterior density").x, dtype=float)).sum()) == 1
 
 
@@ -358,11 +358,11 @@ def test_fit_by_depth_errors():
     summary = pd.DataFrame({"depth": [1, 2], "n_subgroups": [2, 4], "mean": [0.4, 0.6],
                             "lower": [0.3, 0.5], "upper": [0.5, 0.7]})
     with pytest.raises(SummaryError, match=r"`current_depth` 5 is not one of the depths \[1, 2\]"):
-        F._fit_by_depth_figure(summary, current_depth=5)
+        F.fit_by_depth_figure(summary, current_depth=5)
     with pytest.raises(SummaryError, match=r"`draws_by_depth` has no draws for depth\(s\) \[2\]"):
-        F._fit_by_depth_figure(summary, {1: np.zeros(3)})
+        F.fit_by_depth_figure(summary, {1: np.zeros(3)})
     with pytest.raises(SummaryError, match=r"`summary` lacks the column\(s\) 'n_subgroups'"):
-        F._fit_by_depth_figure(summary.drop(columns="n_subgroups"))
+        F.fit_by_depth_figure(summary.drop(columns="n_subgroups"))
 
 
 # -- additive curves -------------------------------------------------------------------------
@@ -379,7 +379,7 @@ def _curves():
 
 def test_trends_numeric_bands_and_categorical_points():
     df = _curves()
-    fig = F._trends_figure(df)
+    fig = F.curves_figure(df)
     num = df[df.covariate == "age"].sort_values("x")
     fills = [t for t in fig.data if t.fill == "tonexty"]
     assert [t.fillcolor for t in fills] == [F._JOINT_FILL, F._POINTWISE_FILL]  # lighter band drawn first
@@ -403,10 +403,10 @@ def test_trends_numeric_bands_and_categorical_points():
 def test_trends_one_covariate_and_escaping():
     df = _curves()
     df.loc[df.covariate == "age", "covariate"] = INJECT
-    fig = F._trends_figure(df, covariate=INJECT)
+    fig = F.curves_figure(df, covariate=INJECT)
     assert fig.layout.xaxis.title.text == "&lt;script&gt;alert(1)&lt;/script&gt;"
     _assert_no_markup_injected(fig)
-    _assert_no_markup_injected(F._trends_figure(df, n_cols=1))
+    _assert_no_markup_injected(F.curves_figure(df, n_cols=1))
 
 
 @pytest.mark.parametrize("kwargs, match", [
@@ -416,27 +416,27 @@ def test_trends_one_covariate_and_escaping():
 ])
 def test_trends_errors(kwargs, match):
     with pytest.raises(SummaryError, match=match):
-        F._trends_figure(_curves(), **kwargs)
+        F.curves_figure(_curves(), **kwargs)
 
 
 def test_trends_rejects_unknown_kind():
     df = _curves()
     df.loc[df.covariate == "heating", "kind"] = "ordinal"
     with pytest.raises(SummaryError, match=r"column 'kind' for covariate 'heating' must be one of"):
-        F._trends_figure(df)
+        F.curves_figure(df)
 
 
 def test_plot_trends_on_a_real_additive_summary(draws):
-    from summarize_widgets.additive import summarize_additive
+    from summarize_widgets.summaries.additive import summarize_additive
 
     add = summarize_additive(draws, columns=["age", "heating"])
     curves = add.curves(level=0.9)
-    fig = F.plot_trends(add, level=0.9)
+    fig = F.plot_curves(add, level=0.9)
     num = curves[curves.covariate == "age"].assign(x=lambda d: d.x.astype(float)).sort_values("x")
     line = [t for t in fig.data if t.name == "posterior mean" and t.mode == "lines" and t.x[0] is not None][0]
     np.testing.assert_allclose(line.y, num["mean"])
     assert [a.text for a in fig.layout.annotations] == ["age", "heating"]
-    _assert_no_markup_injected(F.plot_trends(add, covariate="heating"), raw="heat <pump>")
+    _assert_no_markup_injected(F.plot_curves(add, covariate="heating"), raw="heat <pump>")
 
 
 # -- linear coefficients ---------------------------------------------------------------------
@@ -450,20 +450,20 @@ def _coefs():
 
 def test_coefficients_order_intercept_and_reference():
     df = _coefs()
-    fig = F._coefficients_figure(df)
+    fig = F.coefficients_figure(df)
     tr = _trace(fig, "coefficients")
     np.testing.assert_allclose(tr.x, [1.5, 0.4, -0.05])  # first slope on top (largest y)
     np.testing.assert_allclose(np.array(tr.x) + tr.error_x.array, [2.1, 0.5, -0.03])
     assert "compared with heating = gas" in fig.layout.xaxis.title.text
     _assert_no_markup_injected(fig)
-    with_icpt = _trace(F._coefficients_figure(df, intercept=True), "coefficients")
+    with_icpt = _trace(F.coefficients_figure(df, intercept=True), "coefficients")
     np.testing.assert_allclose(with_icpt.x, [1.5, 0.4, -0.05, 3.0])
     with pytest.raises(SummaryError, match="`table` holds only the intercept; pass `intercept=True`"):
-        F._coefficients_figure(df.iloc[:1])
+        F.coefficients_figure(df.iloc[:1])
 
 
 def test_plot_coefficients_on_a_real_linear_summary(draws):
-    from summarize_widgets.linear import summarize_linear
+    from summarize_widgets.summaries.linear import summarize_linear
 
     lin = summarize_linear(draws, columns=["age", INJECT])
     tab = lin.table(level=0.9)
@@ -482,7 +482,7 @@ def test_contrasts_orient_subgroup_as_a_whichever_column_it_is_in():
                        "rule_b": ["r2", "r3 " + INJECT, "r3 " + INJECT], "difference": [0.5, -1.0, 2.0],
                        "lower": [0.1, -1.5, 1.0], "upper": [0.9, -0.4, 3.0], "prob_a_greater": [0.99, 0.01, 1.0]})
     df.attrs.update(level=0.95, interval="equal-tailed")
-    fig = F._contrasts_figure(df, 2)
+    fig = F.contrasts_figure(df, 2)
     tr = _trace(fig, "contrasts")
     # 2 vs 1 is the flip of (1, 2): -0.5 in [-0.9, -0.1], P = 0.01; 2 vs 3 as stored; sorted by difference
     np.testing.assert_allclose(tr.x, [-0.5, 2.0])
@@ -493,7 +493,7 @@ def test_contrasts_orient_subgroup_as_a_whichever_column_it_is_in():
     assert fig.layout.yaxis.ticktext[0] == "r1" and "r2" in fig.layout.title.text
     _assert_no_markup_injected(fig)
     with pytest.raises(SummaryError, match=r"`subgroup` 9 is not one of the subgroups in the contrasts: \[1, 2, 3\]"):
-        F._contrasts_figure(df, 9)
+        F.contrasts_figure(df, 9)
 
 
 def test_plot_contrasts_on_a_real_tree_against_numpy(tree):
@@ -545,7 +545,7 @@ needs_browser = pytest.mark.skipif(not _have_browser() and os.environ.get("CI") 
 @pytest.fixture(scope="module")
 def small_fig():
     df, draws_ = _subgroup_table()
-    return F._subgroups_figure(df, highlight=7, draws=draws_, title="Subgroups")
+    return F.subgroups_figure(df, highlight=7, draws=draws_, title="Subgroups")
 
 
 def _png_size(data: bytes):
@@ -677,7 +677,7 @@ def test_wrap_breaks_between_conditions_and_escapes():
 def test_effect_axes_always_show_zero():
     df, _ = _subgroup_table()
     df[["mean", "lower", "upper"]] += 50  # every interval far above zero
-    lo, hi = F._subgroups_figure(df).layout.xaxis.range
+    lo, hi = F.subgroups_figure(df).layout.xaxis.range
     assert lo < 0 < hi and hi > df["upper"].max()
 
 
@@ -691,7 +691,7 @@ def test_group_rows_show_name_then_query(draws):
 
 def test_coefficients_per_amount_rescales_exactly():
     df = _coefs()
-    fig = F._coefficients_figure(df, per={"age": 10})
+    fig = F.coefficients_figure(df, per={"age": 10})
     tr = _trace(fig, "coefficients")
     np.testing.assert_allclose(tr.x, [1.5, 0.4, -0.5])
     np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, [0.9, 0.3, -0.7])
@@ -706,7 +706,7 @@ def test_coefficients_per_amount_rescales_exactly():
 ])
 def test_coefficients_per_errors(per, match):
     with pytest.raises(SummaryError, match=match):
-        F._coefficients_figure(_coefs(), per=per)
+        F.coefficients_figure(_coefs(), per=per)
 
 
 def test_complier_weighted_tree_flags_weak_uptake_and_shows_complier_share():

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-from summarize_widgets._validate import SummaryError
+from summarize_widgets.core.validate import SummaryError
 from summarize_widgets.io import load_draws
 
 N_DRAWS, N_UNITS = 6, 5

@@ -18,7 +18,7 @@ import pandas as pd
 import pytest
 
 import summarize_widgets as sw
-from summarize_widgets.demo import simulate_retrofit_study
+from summarize_widgets.datasets import simulate_retrofit_study
 
 
 def test_depth_two_tree_splits_on_the_simulated_drivers():

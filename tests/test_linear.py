@@ -6,8 +6,8 @@ import statsmodels.api as sm
 import summarize_widgets as sw
 from helpers import household_covariates
 from summarize_widgets import SummaryError
-from summarize_widgets._design import classify_columns, linear_design
-from summarize_widgets.linear import summarize_linear
+from summarize_widgets.core.design import classify_columns, linear_design
+from summarize_widgets.summaries.linear import summarize_linear
 
 
 def _data(n=500, S=200, seed=3, dtype=np.float64, offset=0.0):

@@ -15,11 +15,11 @@ import pytest
 import summarize_widgets
 from summarize_widgets import EffectDraws, SummaryError
 from summarize_widgets import export as ex
-from summarize_widgets import report as rp
-from summarize_widgets.additive import summarize_additive
-from summarize_widgets.groups import summarize_groups
-from summarize_widgets.linear import summarize_linear
-from summarize_widgets.tree import summarize_tree
+from summarize_widgets.export import report as rp
+from summarize_widgets.summaries.additive import summarize_additive
+from summarize_widgets.summaries.groups import summarize_groups
+from summarize_widgets.summaries.linear import summarize_linear
+from summarize_widgets.summaries.tree import summarize_tree
 
 EVIL_NAME = "<script>alert(1)</script>"
 EVIL_CATEGORY = 'a&b "q"'

@@ -15,10 +15,10 @@ import plotly.graph_objects as go
 import pytest
 
 from summarize_widgets import EffectDraws, SummaryError, summarize_tree
-from summarize_widgets.demo import simulate_retrofit_study
+from summarize_widgets.datasets import simulate_retrofit_study
 from summarize_widgets.figures import DIVERGING, MUTED, effect_color
 from summarize_widgets.widgets import Explorer, TreeView
-from summarize_widgets.widgets import _panels as P
+from summarize_widgets.widgets import panels as P
 from summarize_widgets.widgets import explorer as explorer_module
 from summarize_widgets.widgets.tree_view import NODE_FIELDS, asset_path, node_records
 
@@ -387,7 +387,7 @@ def test_min_size_and_covariates_recompute_on_a_worker_thread(draws, monkeypatch
 def test_the_widget_stays_usable_while_a_recompute_runs(draws, monkeypatch):
     import threading
 
-    from summarize_widgets.widgets import _results
+    from summarize_widgets.widgets import results as _results
 
     ex = Explorer(draws, max_depth=3, trends=False, linear=False)
     gate, started = threading.Event(), threading.Event()

@@ -24,10 +24,10 @@ import ipywidgets as widgets
 import numpy as np
 import plotly.graph_objects as go
 
-from .._validate import SummaryError, check_columns, check_int, check_interval, check_level
-from ..draws import EffectDraws
-from . import _panels as P
-from ._results import Results
+from ..core.validate import SummaryError, check_columns, check_int, check_interval, check_level
+from ..core.draws import EffectDraws
+from . import panels as P
+from .results import Results
 from .tree_view import TreeView, node_records
 
 __all__ = ["Explorer"]
@@ -229,7 +229,7 @@ class Explorer(widgets.VBox):
                                               style=_WIDE, layout=widgets.Layout(width="320px", display="none"))
         self.status = widgets.HTML(self._selection_text())
         self.status.add_class("swx-status-line")
-        self.tree_view = TreeView(palette={"stops": list(P._fig.DIVERGING), "missing": P._fig.MUTED})
+        self.tree_view = TreeView()
         for control in (self.depth_control, self.level_control, self.interval_control, self.min_size_control,
                         self.columns_control, self.progress):
             control.layout.margin = "2px 18px 2px 0"

@@ -15,8 +15,8 @@ from pathlib import Path
 import anywidget
 import traitlets
 
-from .._validate import SummaryError
-from ..figures import DIVERGING, MUTED
+from ..core.validate import SummaryError
+from ..figures.palette import EFFECT_PALETTE
 
 __all__ = ["TreeView", "NODE_FIELDS", "node_records", "asset_path", "DEFAULT_PALETTE"]
 
@@ -26,7 +26,7 @@ _INT_FIELDS = ("node", "parent", "depth", "n_units")
 _FLOAT_FIELDS = ("share", "mean", "lower", "upper")
 
 # The figures' diverging scale, so a leaf's fill matches its marker in every figure.
-DEFAULT_PALETTE = {"stops": list(DIVERGING), "missing": MUTED}
+DEFAULT_PALETTE = EFFECT_PALETTE
 
 
 def asset_path(name: str) -> Path:
@@ -130,7 +130,7 @@ class TreeView(anywidget.AnyWidget):
 
     nodes = traitlets.List(traitlets.Dict()).tag(sync=True)
     selected = traitlets.Int(-1).tag(sync=True)
-    palette = traitlets.Dict(DEFAULT_PALETTE).tag(sync=True)
+    palette = traitlets.Dict(dict(DEFAULT_PALETTE)).tag(sync=True)
     colour_limit = traitlets.Float(0.0).tag(sync=True)
     caption = traitlets.Unicode("").tag(sync=True)
     #: Width of the view in px as the browser reports it (0 until drawn); the Explorer sizes its figures by it.
@@ -143,11 +143,11 @@ class TreeView(anywidget.AnyWidget):
         if not isinstance(stops, (list, tuple)) or len(stops) < 2:
             raise SummaryError(f"`palette['stops']` must list at least two colours; got {stops!r}.")
         named = [(f"palette['stops'][{i}]", c) for i, c in enumerate(stops)]
-        for name, colour in named + [("palette['missing']", value.get("missing", MUTED))]:
+        for name, colour in named + [("palette['missing']", value.get("missing", EFFECT_PALETTE["missing"]))]:
             text = str(colour)
             if not (len(text) == 7 and text.startswith("#") and all(c in "0123456789abcdefABCDEF" for c in text[1:])):
                 raise SummaryError(f"`{name}` must be a colour like '#1f77b4'; got {colour!r}.")
-        return {"stops": [str(c) for c in stops], "missing": str(value.get("missing", MUTED))}
+        return {"stops": [str(c) for c in stops], "missing": str(value.get("missing", EFFECT_PALETTE["missing"]))}
 
     @property
     def leaf_ids(self) -> list[int]:

@@ -12,7 +12,7 @@ import math
 import numpy as np
 import pandas as pd
 
-from ._validate import SummaryError, check_int
+from ..core.validate import SummaryError, check_int
 
 __all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_kind", "format_cell"]
 

@@ -21,11 +21,11 @@ from numbers import Real
 import numpy as np
 import pandas as pd
 
-from ._design import ColumnSpec, category_codes, classify_columns, numeric_values
-from ._validate import SummaryError, check_columns, check_int
-from .intervals import interval as credible_interval
-from .intervals import simultaneous_band, summarize_draws
-from ._fit import ProjectedFit
+from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
+from ..core.validate import SummaryError, check_columns, check_int
+from ..core.intervals import interval as credible_interval
+from ..core.intervals import simultaneous_band, summarize_draws
+from .projection import ProjectedFit
 from .linear import FrozenProjection, check_draws
 
 __all__ = ["summarize_additive", "AdditiveSummary"]

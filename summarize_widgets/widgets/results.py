@@ -11,8 +11,8 @@ from collections.abc import Callable, Mapping
 import numpy as np
 import pandas as pd
 
-from .._validate import SummaryError
-from ..tree import TreeSummary, summarize_tree
+from ..core.validate import SummaryError
+from ..summaries.tree import TreeSummary, summarize_tree
 
 __all__ = ["Results"]
 
@@ -61,13 +61,13 @@ class Results:
         tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=tick("tree"))
         out, errors = {}, {}
         if linear:
-            from ..linear import summarize_linear
+            from ..summaries.linear import summarize_linear
             try:
                 out["linear"] = summarize_linear(draws, columns=columns, progress=tick("linear"))
             except SummaryError as exc:
                 errors["linear"] = str(exc)
         if trends:
-            from ..additive import summarize_additive
+            from ..summaries.additive import summarize_additive
             try:
                 out["additive"] = summarize_additive(draws, columns=columns, progress=tick("trends"),
                                                      **dict(additive_options or {}))

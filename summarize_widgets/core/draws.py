@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._validate import SummaryError, check_covariates, check_int, describe_nonfinite
+from .validate import SummaryError, check_covariates, check_int, describe_nonfinite
 
 __all__ = ["EffectDraws"]
 

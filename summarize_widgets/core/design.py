@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ._validate import SummaryError
+from .validate import SummaryError
 
 __all__ = ["ColumnSpec", "MISSING", "classify_columns", "category_codes", "linear_design"]
 

@@ -25,12 +25,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ._files import refuse_existing, write_atomic
-from ._provenance import hash_array, hash_file, jsonable, provenance, provenance_lines
-from ._provenance import provenance as _make_provenance  # export_tables' `provenance` argument shadows the name
-from ._table_layout import (WEAK_MARK, escape_latex, format_cell, rule_to_latex, rule_to_text, table_kind,
+from ..core.files import refuse_existing, write_atomic
+from .provenance import hash_array, hash_file, jsonable, provenance, provenance_lines
+from .provenance import provenance as _make_provenance  # export_tables' `provenance` argument shadows the name
+from .layout import (WEAK_MARK, escape_latex, format_cell, rule_to_latex, rule_to_text, table_kind,
                             table_layout)
-from ._validate import SummaryError, check_int
+from ..core.validate import SummaryError, check_int
 
 __all__ = [
     "write_atomic",

@@ -24,13 +24,13 @@ import numpy as np
 import pandas as pd
 from sklearn.tree import DecisionTreeRegressor
 
-from ._design import ColumnSpec, category_codes, classify_columns, numeric_values
-from ._fit import checked_r2, r2_note
-from ._passes import LeafSums, run_pass
-from ._rules import Condition, combine, nice_threshold
-from ._subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
-from ._validate import SummaryError, check_columns, check_int, check_level
-from . import intervals
+from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
+from .projection import checked_r2, r2_note
+from ..core.passes import LeafSums, run_pass
+from ..core.rules import Condition, combine, nice_threshold
+from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from ..core.validate import SummaryError, check_columns, check_int, check_level
+from ..core import intervals
 
 __all__ = ["summarize_tree", "TreeSummary", "default_min_size"]
 
@@ -457,7 +457,7 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     TreeSummary
         At depth ``max_depth``.
     """
-    from .draws import EffectDraws
+    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")

@@ -6,9 +6,9 @@ from collections.abc import Mapping
 import numpy as np
 import pandas as pd
 
-from ._passes import LinearMap, run_pass
-from ._subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
-from ._validate import SummaryError
+from ..core.passes import LinearMap, run_pass
+from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from ..core.validate import SummaryError
 
 __all__ = ["summarize_groups", "GroupSummary", "ALL_UNITS"]
 
@@ -92,8 +92,8 @@ def summarize_groups(draws, groups: Mapping[str, str], level: float = 0.95, *, p
     GroupSummary
         Its table has a first row for all units.
     """
-    from .draws import EffectDraws
-    from ._validate import check_level
+    from ..core.draws import EffectDraws
+    from ..core.validate import check_level
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")

@@ -1,72 +1,17 @@
-"""The main job in one call: summarize draws and write a folder of tables, figures and a report.
-
-Used by the command line (``summarize-widgets demo`` / ``report``) and usable from a notebook.
-"""
+"""Write a folder of tables, figures, ``report.html`` and ``provenance.json`` from a :class:`SummaryBundle`."""
 from __future__ import annotations
 
-from dataclasses import dataclass, field
 from pathlib import Path
 
-from ._validate import SummaryError, check_int, check_interval, check_level
+from ..core.validate import SummaryError, check_interval, check_level
 
-__all__ = ["SummaryBundle", "summarize_all", "write_summary_folder"]
+__all__ = ["write_summary_folder", "check_output_folder", "FIGURE_FORMATS"]
 
 #: Figure file formats written by :func:`write_summary_folder`.
 FIGURE_FORMATS = ("svg", "pdf", "png")
 
 
-@dataclass
-class SummaryBundle:
-    """The summaries of one set of draws (any may be None), and the files written from them."""
-
-    draws: object
-    tree: object
-    additive: object = None
-    linear: object = None
-    groups: object = None
-    files: list = field(default_factory=list)
-    notes: list = field(default_factory=list)
-
-    @property
-    def results(self) -> dict:
-        return {k: v for k, v in (("tree", self.tree), ("additive", self.additive), ("linear", self.linear),
-                                  ("groups", self.groups)) if v is not None}
-
-
-def summarize_all(draws, *, depth: int = 3, max_depth: int | None = None, min_size=None, columns=None,
-                  groups=None, additive: bool = True, linear: bool = True, progress=None) -> SummaryBundle:
-    """Tree (at ``depth``, grown to ``max_depth``), additive and linear summaries, and optional groups.
-
-    Parameters
-    ----------
-    draws : EffectDraws
-    depth : int, default 3
-        Depth of the reported subgroups.
-    max_depth : int, optional
-        Depth the tree is grown to (default ``max(depth, 4)``), so summary R^2 is shown for every depth.
-    min_size, columns
-        Passed to :func:`summarize_tree` (``columns`` also to the additive and linear summaries).
-    groups : mapping label -> pandas query, optional
-        Pre-specified groups (:func:`summarize_groups`).
-    """
-    from .additive import summarize_additive
-    from .groups import summarize_groups
-    from .linear import summarize_linear
-    from .tree import summarize_tree
-
-    depth = check_int(depth, "depth", low=1, high=8)
-    max_depth = max(depth, 4) if max_depth is None else check_int(max_depth, "max_depth", low=depth, high=8)
-    tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=progress).depth(depth)
-    return SummaryBundle(
-        draws=draws,
-        tree=tree,
-        additive=summarize_additive(draws, columns=columns) if additive else None,
-        linear=summarize_linear(draws, columns=columns) if linear else None,
-        groups=summarize_groups(draws, groups) if groups else None,
-    )
-
-
-def _folder_ready(out_dir: Path, overwrite: bool) -> None:
+def check_output_folder(out_dir: Path, overwrite: bool) -> None:
     if out_dir.exists() and not out_dir.is_dir():
         raise FileExistsError(f"{out_dir} exists and is not a folder; choose another output folder.")
     if out_dir.is_dir() and any(out_dir.iterdir()) and not overwrite:
@@ -92,13 +37,14 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
     An existing non-empty folder is refused unless ``overwrite=True``; every file is written
     atomically. Returns the written paths.
     """
-    from .export import export_tables, provenance
+    from .provenance import provenance
+    from .tables import export_tables
     from .report import write_report
 
     level = check_level(level)
     interval = check_interval(interval)
     out_dir = Path(out_dir)
-    _folder_ready(out_dir, overwrite)
+    check_output_folder(out_dir, overwrite)
     prov = provenance([bundle.draws, *bundle.results.values()], inputs=inputs,
                       settings={"level": level, "interval": interval, "digits": digits})
     written = list(export_tables(out_dir, tree=bundle.tree, groups=bundle.groups, linear=bundle.linear,
@@ -109,7 +55,7 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
                                 digits=digits, title=title or f"Posterior summary: {bundle.draws.label}",
                                 overwrite=overwrite))
     if figures == "auto":
-        from ._static_export import BrowserNotFoundError, find_browser
+        from ..figures.static import BrowserNotFoundError, find_browser
         try:
             find_browser()
         except BrowserNotFoundError as exc:
@@ -122,7 +68,7 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
 
 
 def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -> list[Path]:
-    from . import figures as F
+    from .. import figures as F
 
     bad = [f for f in formats if f not in FIGURE_FORMATS]
     if bad:
@@ -134,7 +80,7 @@ def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -
         best = int(bundle.tree.table(level=level, interval=interval).sort_values("mean").iloc[-1]["subgroup"])
         figs["contrasts"] = F.plot_contrasts(bundle.tree, best, level=level, interval=interval)
     if bundle.additive is not None:
-        figs["trends"] = F.plot_trends(bundle.additive, level=level, interval=interval)
+        figs["trends"] = F.plot_curves(bundle.additive, level=level, interval=interval)
     if bundle.linear is not None:
         figs["coefficients"] = F.plot_coefficients(bundle.linear, level=level, interval=interval)
     if bundle.groups is not None:

@@ -22,98 +22,17 @@ import pandas as pd
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from ._validate import SummaryError
+from ..core.validate import SummaryError
 
 __all__ = [
     "PALETTE", "DIVERGING", "EFFECT_PALETTE", "INK", "ACCENT", "MUTED", "GRID", "BAND",
     "effect_color", "effect_colorscale",
-    "plot_subgroups", "plot_fit_by_depth", "plot_trends", "plot_coefficients", "plot_contrasts",
+    "plot_subgroups", "plot_fit_by_depth", "plot_curves", "plot_coefficients", "plot_contrasts",
     "save_figure", "save_figures", "find_browser", "BrowserNotFoundError",
 ]
 
-# -- colours ---------------------------------------------------------------------------------
-# Our own palette. Every pair stays at least 12 CIELAB units apart under simulated protanopia,
-# deuteranopia and tritanopia (checked in tests/test_figures.py with Machado et al. 2009 matrices).
-#: Qualitative colours for series, as hex strings: harbour blue, amber, rose, ink, sky, bronze.
-PALETTE = ["#2E5F8A", "#E39A2D", "#CC5C8A", "#2B2D33", "#8FC1DE", "#7A5C2E"]
-#: Default colour of points, lines and text.
-INK = "#2B2D33"
-#: The selected / highlighted item.
-ACCENT = "#CC5C8A"
-#: Missing values and de-emphasized marks.
-MUTED = "#A7A9AC"
-#: Grid lines.
-GRID = "#E4E2DD"
-#: Fill of credible bands (drawn with transparency).
-BAND = "#2E5F8A"
-#: Diverging scale for effects, evenly spaced stops from the most negative to the most positive,
-#: centred on a warm paper white at zero. Lightness rises monotonically towards zero on both sides.
-DIVERGING = ["#1D4E79", "#6F9BC4", "#F3F0EA", "#E2A066", "#9A4A12"]
-#: The same scale in the form the JavaScript tree view takes (``TreeView(palette=...)``); its
-#: ``divergingColour`` interpolates the stops exactly as :func:`effect_color` does.
-EFFECT_PALETTE = {"stops": list(DIVERGING), "missing": MUTED}
-
-_FONT = "Helvetica Neue, Helvetica, Arial, Liberation Sans, DejaVu Sans, sans-serif"
-
-
-def _hex_to_rgb(h: str) -> np.ndarray:
-    return np.array([int(h[i:i + 2], 16) for i in (1, 3, 5)], dtype=float)
-
-
-def _rgba(h: str, alpha: float) -> str:
-    r, g, b = _hex_to_rgb(h).astype(int)
-    return f"rgba({r}, {g}, {b}, {alpha})"
-
-
-_STOPS = np.linspace(0.0, 1.0, len(DIVERGING))
-_STOP_RGB = np.array([_hex_to_rgb(h) for h in DIVERGING])
-
-
-def effect_colorscale() -> list[list]:
-    """The diverging scale as a plotly colorscale ``[[position, hex], ...]``.
-
-    Use it with ``cmin=-vmax, cmax=vmax`` (or ``cmid=0``) so zero sits on the centre colour.
-    """
-    return [[float(p), h] for p, h in zip(_STOPS, DIVERGING)]
-
-
-def effect_color(value, vmax):
-    """Colour of an effect on the diverging scale centred at zero.
-
-    Parameters
-    ----------
-    value : float or array-like of float
-        Effect(s). Values beyond ``+-vmax`` take the end colours; NaN takes ``MUTED``.
-    vmax : float
-        The magnitude mapped to the end colours (for example the largest absolute subgroup
-        mean). Must be finite and >= 0; ``vmax = 0`` maps every value to the centre colour.
-
-    Returns
-    -------
-    str or list of str
-        ``"#rrggbb"`` for a scalar ``value``, a list of them for an array.
-
-    Notes
-    -----
-    Linear interpolation in sRGB between the ``DIVERGING`` stops, rounded half up (plotly
-    interpolates its colorscales and the JS tree view its palette the same way, so they agree).
-    """
-    if isinstance(vmax, bool) or not isinstance(vmax, (int, float, np.integer, np.floating)) \
-            or not np.isfinite(vmax) or vmax < 0:
-        raise SummaryError(f"`vmax` must be a finite number >= 0; got {vmax!r}.")
-    scalar = np.ndim(value) == 0
-    try:
-        v = np.atleast_1d(np.asarray(value, dtype=float))
-    except (TypeError, ValueError):
-        raise SummaryError(f"`value` must be a number or an array of numbers; got {value!r}.") from None
-    v = v.ravel()
-    with np.errstate(invalid="ignore"):
-        t = np.full(v.shape, 0.5) if vmax == 0 else 0.5 + 0.5 * np.clip(v / float(vmax), -1.0, 1.0)
-    ok = np.isfinite(v)
-    rgb = np.floor(np.stack([np.interp(np.where(ok, t, 0.5), _STOPS, _STOP_RGB[:, k]) for k in range(3)], axis=1)
-                   + 0.5).astype(int)
-    out = [f"#{r:02x}{g:02x}{b:02x}" if good else MUTED for (r, g, b), good in zip(rgb.tolist(), ok)]
-    return out[0] if scalar else out
+from .palette import (ACCENT, BAND, DIVERGING, EFFECT_PALETTE, FONT as _FONT, GRID, INK, MUTED,  # noqa: F401
+                      PALETTE, effect_color, effect_colorscale, rgba as _rgba)
 
 
 # -- text ------------------------------------------------------------------------------------
@@ -295,7 +214,7 @@ def _row_figure(traces, *, labels, pos, heights, x_title: str, x_range, shapes=(
 _SUBGROUP_COLS = ["subgroup", "rule", "n_units", "share", "mean", "lower", "upper", "prob_positive"]
 
 
-def _subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None = None, pinned=(),
+def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None = None, pinned=(),
                       effect_label: str | None = None, title: str | None = None) -> go.Figure:
     """Horizontal point + interval per subgroup, ordered by posterior mean (largest on top).
 
@@ -410,8 +329,8 @@ def plot_subgroups(result, *, level: float = 0.95, interval: str = "equal-tailed
     -------
     plotly.graph_objects.Figure
     """
-    from .groups import ALL_UNITS, GroupSummary
-    from .tree import TreeSummary
+    from ..summaries.groups import ALL_UNITS, GroupSummary
+    from ..summaries.tree import TreeSummary
 
     _check_type(result, (TreeSummary, GroupSummary), "result")
     df = result.table(level=level, interval=interval)
@@ -425,7 +344,7 @@ def plot_subgroups(result, *, level: float = 0.95, interval: str = "equal-tailed
     pinned = [ALL_UNITS] if isinstance(result, GroupSummary) and ALL_UNITS in df["subgroup"].tolist() else []
     if isinstance(highlight, np.generic):
         highlight = highlight.item()
-    return _subgroups_figure(df, highlight=highlight, draws=draws, pinned=pinned,
+    return subgroups_figure(df, highlight=highlight, draws=draws, pinned=pinned,
                              effect_label=getattr(result, "label", None), title=title)
 
 
@@ -444,7 +363,7 @@ def _as_ids(ids) -> list:
 _FIT_COLS = ["depth", "n_subgroups", "mean", "lower", "upper"]
 
 
-def _fit_by_depth_figure(summary: pd.DataFrame, draws_by_depth: Mapping | None = None, *,
+def fit_by_depth_figure(summary: pd.DataFrame, draws_by_depth: Mapping | None = None, *,
                          current_depth: int | None = None, title: str | None = None) -> go.Figure:
     """Posterior of summary R^2 at each depth: violin of the draws, mean and credible interval.
 
@@ -513,14 +432,14 @@ def plot_fit_by_depth(tree, *, level: float = 0.95, interval: str = "equal-taile
     -------
     plotly.graph_objects.Figure
     """
-    from .tree import TreeSummary
+    from ..summaries.tree import TreeSummary
 
     _check_type(tree, TreeSummary, "tree")
     summary = tree.fit_r2_by_depth(level=level, interval=interval)
     draws = tree.fit_r2_draws_by_depth() if show_draws else None
     if current_depth is None:
         current_depth = getattr(tree, "current_depth", None)
-    return _fit_by_depth_figure(summary, draws, current_depth=current_depth, title=title)
+    return fit_by_depth_figure(summary, draws, current_depth=current_depth, title=title)
 
 
 # -- additive curves -------------------------------------------------------------------------
@@ -576,7 +495,7 @@ def _band_legend(fig, level: str):
                                  name=name, hoverinfo="skip"))
 
 
-def _trends_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, effect_label: str | None = None,
+def curves_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, effect_label: str | None = None,
                    title: str | None = None) -> go.Figure:
     """Additive curves: one panel per covariate (shared effect axis), or one covariate alone.
 
@@ -631,7 +550,7 @@ def _trends_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, eff
     return fig
 
 
-def plot_trends(additive, *, covariate=None, level: float = 0.95, interval: str = "equal-tailed",
+def plot_curves(additive, *, covariate=None, level: float = 0.95, interval: str = "equal-tailed",
                 n_cols: int = 3, title: str | None = None) -> go.Figure:
     """Additive-summary curves with pointwise and simultaneous credible bands.
 
@@ -653,13 +572,13 @@ def plot_trends(additive, *, covariate=None, level: float = 0.95, interval: str 
         Numeric covariates: mean line, pointwise band, lighter simultaneous band.
         Categorical covariates: a point per category with both intervals.
     """
-    from .additive import AdditiveSummary
+    from ..summaries.additive import AdditiveSummary
 
     _check_type(additive, AdditiveSummary, "additive")
     curves = additive.curves(level=level, interval=interval)
     if "level" not in curves.attrs:
         curves.attrs["level"] = level
-    return _trends_figure(curves, covariate=covariate, n_cols=n_cols,
+    return curves_figure(curves, covariate=covariate, n_cols=n_cols,
                           effect_label=getattr(additive, "label", None), title=title)
 
 
@@ -695,7 +614,7 @@ def _per_unit(table: pd.DataFrame, per) -> pd.DataFrame:
     return out
 
 
-def _coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=None,
+def coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=None,
                          title: str | None = None) -> go.Figure:
     """Linear-summary coefficients: point + interval per term, in table order (first on top).
 
@@ -750,10 +669,10 @@ def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tai
     -------
     plotly.graph_objects.Figure
     """
-    from .linear import LinearSummary
+    from ..summaries.linear import LinearSummary
 
     _check_type(linear, LinearSummary, "linear")
-    return _coefficients_figure(linear.table(level=level, interval=interval), intercept=intercept, per=per,
+    return coefficients_figure(linear.table(level=level, interval=interval), intercept=intercept, per=per,
                                 title=title)
 
 
@@ -774,7 +693,7 @@ def _oriented_contrasts(df: pd.DataFrame, subgroup) -> pd.DataFrame:
     return pd.concat([as_a[_CONTRAST_COLS], flipped], ignore_index=True)
 
 
-def _contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) -> go.Figure:
+def contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) -> go.Figure:
     """Difference between ``subgroup`` and each other subgroup, with interval and P(A > B).
 
     Parameters
@@ -831,14 +750,14 @@ def plot_contrasts(result, subgroup, *, level: float = 0.95, interval: str = "eq
     -------
     plotly.graph_objects.Figure
     """
-    from .groups import GroupSummary
-    from .tree import TreeSummary
+    from ..summaries.groups import GroupSummary
+    from ..summaries.tree import TreeSummary
 
     _check_type(result, (TreeSummary, GroupSummary), "result")
     if isinstance(subgroup, np.generic):
         subgroup = subgroup.item()
-    return _contrasts_figure(result.contrasts(level=level, interval=interval), subgroup, title=title)
+    return contrasts_figure(result.contrasts(level=level, interval=interval), subgroup, title=title)
 
 
 # Static export lives in its own module; its public names are part of this one.
-from ._static_export import BrowserNotFoundError, find_browser, save_figure, save_figures  # noqa: E402,F401
+from .static import BrowserNotFoundError, find_browser, save_figure, save_figures  # noqa: E402,F401

@@ -16,8 +16,8 @@ from pathlib import Path
 import numpy as np
 import plotly.graph_objects as go
 
-from ._files import write_atomic
-from ._validate import SummaryError
+from ..core.files import write_atomic
+from ..core.validate import SummaryError
 
 __all__ = ["save_figure", "save_figures", "find_browser", "BrowserNotFoundError"]
 

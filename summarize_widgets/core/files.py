@@ -5,7 +5,7 @@ import os
 import tempfile
 from pathlib import Path
 
-from ._validate import SummaryError
+from .validate import SummaryError
 
 __all__ = ["write_atomic", "refuse_existing"]
 

@@ -11,8 +11,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ._validate import SummaryError, check_interval, check_level
-from .intervals import ess_bulk, interval, prob_above
+from ..core.validate import SummaryError, check_interval, check_level
+from ..core.intervals import ess_bulk, interval, prob_above
 
 __all__ = ["ratio_draws", "effect_table", "contrast_table", "UPTAKE_FLOOR"]
 

@@ -15,8 +15,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ._validate import SummaryError
-from ._version import __version__
+from ..core.validate import SummaryError
+from .._version import __version__
 
 __all__ = ["hash_array", "hash_file", "provenance", "provenance_lines", "jsonable"]
 

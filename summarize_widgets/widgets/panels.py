@@ -15,7 +15,8 @@ import numpy as np
 import pandas as pd
 import plotly.graph_objects as go
 
-from .. import figures as _fig
+from ..figures import plots as _fig
+from ..figures.palette import rgba
 from ..export import to_html
 
 __all__ = [
@@ -111,27 +112,27 @@ def subgroups_figure(tree, table: pd.DataFrame, *, highlight, densities: bool) -
     if densities:
         mat = tree.leaf_draws
         draws = {int(sid): mat[:, j] for j, sid in enumerate(tree.leaf_ids)}
-    return _fig._subgroups_figure(table, highlight=highlight, draws=draws, effect_label=tree.label)
+    return _fig.subgroups_figure(table, highlight=highlight, draws=draws, effect_label=tree.label)
 
 
 def fit_figure(fit_table: pd.DataFrame, fit_draws: dict, *, current_depth: int) -> go.Figure:
     """Posterior of summary R^2 at every depth, the current one marked."""
-    return _fig._fit_by_depth_figure(fit_table, fit_draws, current_depth=current_depth)
+    return _fig.fit_by_depth_figure(fit_table, fit_draws, current_depth=current_depth)
 
 
 def trends_figure(curves: pd.DataFrame, covariate: str, *, label: str) -> go.Figure:
     """One covariate's additive curve with pointwise and simultaneous bands."""
-    return _fig._trends_figure(curves, covariate=covariate, effect_label=label)
+    return _fig.curves_figure(curves, covariate=covariate, effect_label=label)
 
 
 def coefficients_figure(table: pd.DataFrame) -> go.Figure:
     """Linear-summary coefficients with intervals (intercept left out)."""
-    return _fig._coefficients_figure(table)
+    return _fig.coefficients_figure(table)
 
 
 def contrasts_figure(contrasts: pd.DataFrame, subgroup) -> go.Figure:
     """The selected subgroup minus each other subgroup."""
-    return _fig._contrasts_figure(contrasts, subgroup)
+    return _fig.contrasts_figure(contrasts, subgroup)
 
 
 def table_html(table: pd.DataFrame, *, selected_row: int | None, css_scope: str) -> str:
@@ -147,7 +148,7 @@ def table_html(table: pd.DataFrame, *, selected_row: int | None, css_scope: str)
         A class name unique to this widget, so the style applies to its own table only.
     """
     scope = html.escape(css_scope)
-    accent = _fig._rgba(_fig.ACCENT, 0.14)
+    accent = rgba(_fig.ACCENT, 0.14)
     style = [
         f".{scope} table {{border-collapse: collapse; font-size: 13px; margin: 4px 0;}}",
         f".{scope} th, .{scope} td {{padding: 3px 10px; border-bottom: 1px solid {_fig.GRID};}}",

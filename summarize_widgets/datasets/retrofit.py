@@ -107,8 +107,8 @@ import numpy as np
 import pandas as pd
 from scipy.linalg import cho_factor, cho_solve, solve_triangular
 
-from ._validate import SummaryError, check_int
-from .draws import EffectDraws
+from ..core.validate import SummaryError, check_int
+from ..core.draws import EffectDraws
 
 __all__ = [
     "RetrofitStudy",

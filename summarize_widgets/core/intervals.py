@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._validate import check_interval, check_level
+from .validate import check_interval, check_level
 
 __all__ = ["interval", "equal_tailed", "highest_density", "prob_above", "simultaneous_band", "ess_bulk", "summarize_draws"]
 

@@ -29,8 +29,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ._validate import SummaryError, _fmt_names
-from .draws import EffectDraws
+from ..core.validate import SummaryError, _fmt_names
+from ..core.draws import EffectDraws
 
 __all__ = ["load_draws", "DRAW_FORMATS"]
 

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._validate import SummaryError
+from ..core.validate import SummaryError
 
 __all__ = ["checked_r2", "r2_note", "ProjectedFit"]
 

@@ -22,11 +22,11 @@ import numpy as np
 import pandas as pd
 from scipy.linalg import solve_triangular
 
-from ._design import classify_columns, linear_design
-from ._passes import LinearMap, run_pass
-from ._fit import ProjectedFit
-from ._validate import SummaryError, check_columns
-from .intervals import summarize_draws
+from ..core.design import classify_columns, linear_design
+from ..core.passes import LinearMap, run_pass
+from .projection import ProjectedFit
+from ..core.validate import SummaryError, check_columns
+from ..core.intervals import summarize_draws
 
 __all__ = ["summarize_linear", "LinearSummary"]
 
@@ -172,7 +172,7 @@ class FrozenProjection:
 
 
 def check_draws(draws):
-    from .draws import EffectDraws
+    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")

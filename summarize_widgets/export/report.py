@@ -13,9 +13,10 @@ import re
 from collections.abc import Mapping
 from pathlib import Path
 
-from ._provenance import jsonable, provenance as make_provenance, provenance_lines
-from ._validate import SummaryError, check_interval, check_level
-from .export import refuse_existing, summary_tables, to_html, write_atomic
+from .provenance import jsonable, provenance as make_provenance, provenance_lines
+from ..core.validate import SummaryError, check_interval, check_level
+from ..core.files import refuse_existing, write_atomic
+from .tables import summary_tables, to_html
 
 __all__ = ["write_report", "render_report", "default_figures", "CAUTIONS"]
 
@@ -82,7 +83,7 @@ def default_figures(*, tree=None, groups=None, additive=None, linear=None, level
 
     Uses :mod:`summarize_widgets.figures` (imported here so the table exporters work without plotly).
     """
-    from . import figures as F
+    from .. import figures as F
 
     out: dict[str, list] = {}
     if tree is not None:
@@ -96,7 +97,7 @@ def default_figures(*, tree=None, groups=None, additive=None, linear=None, level
     if groups is not None:
         out["groups"] = [("Pre-specified group effects", F.plot_subgroups(groups, level=level, interval=interval))]
     if additive is not None:
-        out["additive"] = [("Trends along each covariate", F.plot_trends(additive, level=level))]
+        out["additive"] = [("Trends along each covariate", F.plot_curves(additive, level=level))]
     if linear is not None:
         out["linear"] = [("Linear summary coefficients", F.plot_coefficients(linear, level=level))]
     return out
