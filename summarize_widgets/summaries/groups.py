@@ -50,7 +50,7 @@ class GroupSummary(SummaryResult):
 
     summary_type = "groups"
 
-    def __init__(self, draws, labels, queries, masks, theta, uptake):
+    def __init__(self, draws, labels, queries, masks, theta, uptake, weights=None):
         super().__init__(draws, {"groups": dict(zip(labels[1:], queries[1:])), "n_draws": draws.n_draws,
                                  "n_units": draws.n_units, "complier_weighted": draws.is_complier_weighted})
         self.labels = labels
@@ -58,6 +58,8 @@ class GroupSummary(SummaryResult):
         self._masks = masks
         self.group_draws = theta  # (n_draws, 1 + n_groups): "All units" first
         self._uptake = uptake
+        #: Per-draw total weight of each group, shape (n_draws, 1 + n_groups), "All units" first.
+        self.group_weight_draws = np.broadcast_to(weights, theta.shape) if weights is not None else None
 
     def _attrs(self) -> dict:
         return {"label": self.label, "summary": "groups", "unit": self.draws.unit, "better": self.draws.better}
@@ -139,4 +141,4 @@ def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=N
     if draws.is_complier_weighted:
         v = draws.unit_weights
         uptake = W / (v @ M)
-    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake)
+    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake, W)
