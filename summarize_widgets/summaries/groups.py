@@ -37,13 +37,15 @@ def _mask(covariates: pd.DataFrame, label: str, query: str) -> np.ndarray:
 class GroupSummary:
     """Posterior of the effect in each pre-specified group (groups may overlap)."""
 
-    def __init__(self, draws, labels, queries, masks, theta, uptake):
+    def __init__(self, draws, labels, queries, masks, theta, uptake, weights=None):
         self.draws = draws
         self.labels = labels
         self.queries = queries
         self._masks = masks
         self.group_draws = theta  # (n_draws, 1 + n_groups): "All units" first
         self._uptake = uptake
+        #: Per-draw total weight of each group, shape (n_draws, 1 + n_groups), "All units" first.
+        self.group_weight_draws = np.broadcast_to(weights, theta.shape) if weights is not None else None
 
     @property
     def settings(self) -> dict:
@@ -143,4 +145,4 @@ def _project(draws, labels, queries, M, progress=None) -> GroupSummary:
     if draws.is_complier_weighted:
         v = draws._weights if draws._weights is not None else np.ones(draws.n_units)
         uptake = W / (v @ M)
-    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake)
+    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake, W)

@@ -271,6 +271,16 @@ class TreeSummary:
         ids = self.leaf_ids
         return ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
 
+    @cached_property
+    def leaf_weight_draws(self) -> np.ndarray:
+        """Per-draw total weight of each subgroup ``W_sl = sum_{i in l} w_si``, shape (n_draws, n_subgroups).
+
+        Columns in ``leaf_ids`` order; constant over draws unless the weights vary by draw (for
+        complier-weighted draws: the subgroup's summed uptake effect).
+        """
+        f = self._f
+        return np.array(f.W_nodes[:, self.leaf_ids], dtype=np.float64)
+
     def fitted_values(self, rows=None) -> np.ndarray:
         """Projected draws: each unit's subgroup effect, shape (n_rows, n_units).
 
