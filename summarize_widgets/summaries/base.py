@@ -43,7 +43,8 @@ class SummaryResult:
 
     @property
     def settings(self) -> dict:
-        return dict(self._settings)
+        """What produced this summary (a plain dict of JSON-friendly values)."""
+        return self._settings
 
     def _columns(self, keys, theta: np.ndarray, *, level: float, interval: str) -> dict:
         """Table columns of per-draw quantities ``theta`` (n_draws, k).
