@@ -19,8 +19,6 @@ __all__ = ["EffectDraws", "DrawBlock", "ScanRecord", "DIRECTIONS"]
 
 # Rows per block in a pass: about 8 MB of float64 at 100,000 units.
 _BLOCK_BYTES = 8 * 2**20
-# Units used to pick each draw's centring constant (any constant is exact; a typical value avoids cancellation).
-_CENTRE_UNITS = 256
 
 
 @dataclass(frozen=True)
@@ -37,11 +35,45 @@ class DrawBlock:
         May be float32; reducers accumulate in float64.
     w : None or ndarray, shape (n_units,) or (n_rows, n_units)
         The weights: None means every unit weighs 1.
+    values : ndarray, shape (n_rows, n_units)
+        The draws as stored (effects, or the outcome ITT of complier-weighted draws).
+    uptake : None or ndarray, shape (n_rows, n_units)
+        The uptake ITT draws of complier-weighted draws (None otherwise).
     """
 
     rows: slice
     wt: np.ndarray
     w: np.ndarray | None
+    values: np.ndarray | None = None
+    uptake: np.ndarray | None = None
+
+
+def assemble_block(rows: slice, vals: np.ndarray, den: np.ndarray | None, weights: np.ndarray | None) -> DrawBlock:
+    """The :class:`DrawBlock` of draws ``rows`` from their stored values (where the block lives).
+
+    Parameters
+    ----------
+    rows : slice
+    vals : ndarray, shape (n_rows, n_units)
+        Effects, or the outcome ITT of complier-weighted draws.
+    den : None or ndarray, shape (n_rows, n_units)
+        Uptake ITT of complier-weighted draws.
+    weights : None or ndarray, shape (n_units,) or (n_draws, n_units)
+        The draws' weights as given (per-draw weights are sliced to ``rows`` here).
+    """
+    # Products that overflow float64 are caught by the validation scan and reported as an error.
+    with np.errstate(over="ignore", invalid="ignore"):
+        if den is not None:
+            den64 = np.asarray(den, dtype=np.float64)
+            if weights is None:
+                return DrawBlock(rows, vals, den64, vals, den)
+            return DrawBlock(rows, vals * weights, den64 * weights, vals, den)
+        w = weights
+        if w is None:
+            return DrawBlock(rows, vals, None, vals)
+        if w.ndim == 2:
+            w = w[rows]
+        return DrawBlock(rows, vals * w, w, vals)
 
 
 @dataclass(frozen=True)
@@ -91,7 +123,15 @@ def _check_unit(unit) -> str:
 
 
 def _as_matrix(values, name: str):
-    """Return (2-D float array without copying floats, n_chains from dims or None)."""
+    """Return (2-D float array without copying floats, n_chains from dims or None).
+
+    Lazy inputs (Dask arrays, zarr arrays, xarray objects backed by Dask) stay lazy
+    (:func:`summarize_widgets.core.lazy.lazy_matrix`): nothing is loaded.
+    """
+    from .lazy import is_lazy, lazy_matrix
+
+    if is_lazy(values):
+        return lazy_matrix(values, name)
     chains = None
     try:  # xarray is optional at import time of this module
         import xarray as xr
@@ -178,6 +218,10 @@ def _check_weights(weights, n_draws: int, n_units: int, name: str = "weights"):
 def _check_source(source, arr) -> str:
     """The given run name, or an id of the memory behind ``arr`` (shared by views of one array)."""
     if source is None:
+        if not isinstance(arr, np.ndarray):
+            from .lazy import lazy_source
+
+            return lazy_source(arr)
         base = arr
         while isinstance(getattr(base, "base", None), np.ndarray):
             base = base.base
@@ -257,6 +301,7 @@ class EffectDraws:
                 "with the same number of draws per chain."
             )
         self.n_chains = chains
+        self._scan_progress = None  # the scan's progress: a tqdm bar on long passes
         self._scan(name)
 
     @classmethod
@@ -289,6 +334,12 @@ class EffectDraws:
         _check_shape(den, cov.shape[0], "uptake_itt")
         if num.shape != den.shape:
             raise SummaryError(f"`outcome_itt` has shape {num.shape} but `uptake_itt` has shape {den.shape}; they must match.")
+        if isinstance(num, np.ndarray) != isinstance(den, np.ndarray):  # one lazy: read both through Dask
+            import dask.array as da
+
+            lazy = den if isinstance(num, np.ndarray) else num
+            num, den = (da.from_array(x, chunks=lazy.chunks) if isinstance(x, np.ndarray) else x.rechunk(lazy.chunks)
+                        for x in (num, den))
         if weights is not None and np.ndim(weights) != 1:
             raise SummaryError(
                 f"`weights` for complier-weighted draws must be one per unit, shape ({num.shape[1]},); "
@@ -304,107 +355,39 @@ class EffectDraws:
     def _scan(self, name):
         """The validation pass: finiteness, per-unit weighted means, per-draw centred sums.
 
-        Blocks run on up to two threads (NumPy releases the GIL in its loops); per-unit sums
-        are added under a lock.
+        One :func:`~summarize_widgets.core.passes.run_pass` with the reducers of
+        :mod:`summarize_widgets.core.scan` (threads for in-memory draws, a Dask computation
+        for lazy ones).
         """
-        import threading
-        from concurrent.futures import ThreadPoolExecutor
+        from .passes import run_pass
+        from .scan import ScanColumns, ScanRows
 
-        S, n = self._values.shape
-        self._colsum_wt = np.zeros(n)
-        self._colsum_w = np.zeros(n)
-        self._centre = np.empty(S)
-        self._q = np.empty(S)  # sum_i w_si (T_si - c_s)^2
-        self._wsum = np.empty(S)  # sum_i w_si
-        self._wtsum = np.empty(S)  # sum_i w_si T_si
-        self._bad_rows = []
-        self._uptake_min, self._uptake_neg = np.inf, 0
-        self._lock = threading.Lock()
-        blocks = list(self.blocks())  # public block iteration, as every pass
+        n = self.n_units
+        unit_w = self._weights if (self._weights is not None and self._weights.ndim == 1) else None
+        rows = ScanRows(unit_w if self._den is not None else None, complier=self._den is not None)
+        cols = ScanColumns(n, unit_w)
         # Overflow (finite values whose weighted sums exceed float64) is detected below and reported, not warned.
         with np.errstate(over="ignore", invalid="ignore"):
-            if len(blocks) == 1:
-                self._scan_block(blocks[0])
-            else:
-                with ThreadPoolExecutor(2) as pool:
-                    list(pool.map(self._scan_block, blocks))
-        bad_rows, colsum_wt, colsum_w = self._bad_rows, self._colsum_wt, self._colsum_w
-        del self._bad_rows, self._lock, self._colsum_wt
-        if bad_rows:
-            self._raise_nonfinite(sorted(bad_rows, key=lambda r: r.start), name)
+            run_pass(self, [rows, cols], progress=self._scan_progress)
+        self._centre, self._q = rows.centre, rows.centred_squares
+        self._wsum, self._wtsum = rows.weight_sums, rows.weighted_sums
+        self._uptake_min = float(rows.uptake_min.min())
+        self._uptake_neg = int(rows.uptake_negative.sum())
+        colsum_wt, colsum_w = cols.weighted, cols.weights
+        if rows.bad.any():
+            bad = np.flatnonzero(rows.bad)
+            runs = np.split(bad, np.flatnonzero(np.diff(bad) > 1) + 1)
+            self._raise_nonfinite([slice(int(r[0]), int(r[-1]) + 1) for r in runs], name)
         if not (np.isfinite(colsum_wt).all() and np.isfinite(self._q).all()):
             self._raise_overflow(name)
         if self._den is not None:
             self._check_uptake()
+        self._colsum_w = colsum_w
         with np.errstate(invalid="ignore", divide="ignore"):
             self._mean = np.where(colsum_w > 0, colsum_wt / np.where(colsum_w > 0, colsum_w, 1.0), np.nan)
         if not (colsum_w > 0).any():
             raise SummaryError("Every unit has zero total weight; nothing to summarize.")
         self._scan_record = ScanRecord(self._centre, self._q, self._wsum, self._wtsum)
-
-    def _scan_block(self, block):
-        r = block.rows
-        n = self.n_units
-        with np.errstate(over="ignore", invalid="ignore"):
-            wt = np.asarray(block.wt, dtype=np.float64)
-            rowsum = wt.sum(axis=1)
-            w = block.w
-            wsum = np.full(wt.shape[0], float(n)) if w is None else (w.sum(axis=-1) * np.ones(wt.shape[0]))
-            if not (np.isfinite(rowsum).all() and np.isfinite(wsum).all()):
-                with self._lock:
-                    self._bad_rows.append(r)
-                return
-            if self._den is not None:  # monotonicity check while the block is in cache
-                den = np.asarray(self._den[r])
-                low = float(den.min())
-                neg = int((den < 0).sum()) if low < 0 else 0
-                with self._lock:
-                    self._uptake_min = min(self._uptake_min, low)
-                    self._uptake_neg += neg
-            colsum = wt.sum(axis=0)
-            self._wsum[r] = wsum
-            self._wtsum[r] = rowsum
-            self._centre[r], self._q[r] = self._centred_squares(r, block, wt, rowsum, wsum)
-            with self._lock:
-                self._colsum_wt += colsum
-                if w is None:
-                    self._colsum_w += wt.shape[0]
-                elif w.ndim == 1:
-                    self._colsum_w += wt.shape[0] * w
-                else:
-                    self._colsum_w += w.sum(axis=0)
-
-    def _centred_squares(self, r, block, wt, rowsum, wsum):
-        """Per draw: a centring constant c_s and ``sum_i w_si (T_si - c_s)^2``.
-
-        Fast route: ``sum w T^2 - 2 c sum w T + c^2 sum w`` from one product. When that
-        would lose more than six of float64's sixteen digits to cancellation (effects large
-        relative to their spread), the rows are recomputed by centring before squaring
-        (METHOD.md section 3).
-        """
-        k = min(_CENTRE_UNITS, self.n_units)
-        if self._den is None:
-            vals = np.asarray(self._values[r], dtype=np.float64)
-            c = vals[:, :k].mean(axis=1)
-            ss = np.einsum("ij,ij->i", wt, vals)
-            q = ss - 2.0 * c * rowsum + c * c * wsum
-            unsafe = ~(q > 1e-6 * ss)
-            for j in np.flatnonzero(unsafe):
-                x = vals[j] - c[j]
-                q[j] = np.dot(x * block.w[j] if block.w is not None and block.w.ndim == 2 else
-                              (x * block.w if block.w is not None else x), x)
-            return c, q
-        # complier-weighted: T = ITT_y / pi with weight v * pi, so w (T - c)^2 = v (ITT_y - c pi)^2 / pi.
-        num = np.asarray(self._values[r], dtype=np.float64)
-        den = np.asarray(self._den[r], dtype=np.float64)
-        dk = den[:, :k].sum(axis=1)
-        c = np.where(dk > 0, num[:, :k].sum(axis=1) / np.where(dk > 0, dk, 1.0), 0.0)
-        resid = num - c[:, None] * den
-        with np.errstate(divide="ignore", invalid="ignore"):
-            contrib = np.where(den > 0, resid * resid / np.where(den > 0, den, 1.0), 0.0)
-        if self._weights is not None:
-            contrib = contrib * self._weights
-        return c, contrib.sum(axis=1)
 
     def _raise_nonfinite(self, bad_rows, name):
         """Report non-finite draws, the effect (or outcome ITT) matrix first, then the uptake matrix."""
@@ -426,8 +409,13 @@ class EffectDraws:
         self._raise_overflow(name)  # every value is finite: a weighted sum overflowed
 
     def _raise_overflow(self, name):
-        step = self.block_rows()
-        biggest = max(float(np.max(np.abs(self._values[i : i + step]))) for i in range(0, self.n_draws, step))
+        if self.is_lazy:
+            import dask.array as da
+
+            biggest = float(da.nanmax(da.fabs(da.where(da.isfinite(self._values), self._values, 0))).compute())
+        else:
+            step = self.block_rows()
+            biggest = max(float(np.max(np.abs(self._values[i : i + step]))) for i in range(0, self.n_draws, step))
         weighted = " times `weights`" if self._weights is not None else ""
         raise SummaryError(
             f"`{name}`{weighted} is too large in magnitude (largest |value| {biggest:.4g}): sums over units or "
@@ -446,32 +434,34 @@ class EffectDraws:
 
     # -- the pass primitive ---------------------------------------------------------
     def block_rows(self) -> int:
-        """Draws per block so one float64 block is about 8 MB."""
+        """Draws per block: so one float64 block is about 8 MB; for lazy draws their chunk of draws."""
+        if self.is_lazy:
+            return int(self._values.chunks[0][0])
         return max(1, min(self.n_draws, _BLOCK_BYTES // (8 * self.n_units)))
 
+    @property
+    def is_lazy(self) -> bool:
+        """True when the draws are a Dask array (not loaded): every pass is then a Dask computation."""
+        return not isinstance(self._values, np.ndarray)
+
     def blocks(self, rows_per_block: int | None = None):
-        """Yield :class:`DrawBlock` objects covering all draws in order."""
+        """Yield :class:`DrawBlock` objects covering all draws in order (lazy draws: read one by one)."""
         step = rows_per_block or self.block_rows()
         for start in range(0, self.n_draws, step):
             r = slice(start, min(start + step, self.n_draws))
             yield self.block(r)
 
     def block(self, r: slice) -> DrawBlock:
-        """The :class:`DrawBlock` of draws ``r`` (a slice of rows), as every pass reads it."""
+        """The :class:`DrawBlock` of draws ``r`` (a slice of rows), as every pass reads it.
+
+        For lazy draws the block is read (computed) here, as NumPy arrays.
+        """
         vals = self._values[r]
-        # Products that overflow float64 are caught by the validation scan and reported as an error.
-        with np.errstate(over="ignore", invalid="ignore"):
-            if self._den is not None:
-                den = np.asarray(self._den[r], dtype=np.float64)
-                if self._weights is None:
-                    return DrawBlock(r, vals, den)
-                return DrawBlock(r, vals * self._weights, den * self._weights)
-            w = self._weights
-            if w is None:
-                return DrawBlock(r, vals, None)
-            if w.ndim == 2:
-                w = w[r]
-            return DrawBlock(r, vals * w, w)
+        den = None if self._den is None else self._den[r]
+        if self.is_lazy:
+            vals = np.asarray(vals)
+            den = None if den is None else np.asarray(den)
+        return assemble_block(r, vals, den, self._weights)
 
     # -- public description ------------------------------------------------------------
     @property
@@ -490,8 +480,11 @@ class EffectDraws:
     def values(self) -> np.ndarray:
         """The draw matrix as given (effects, or the outcome ITT for complier-weighted draws), not a copy.
 
-        Read-only view: summaries assume it does not change after construction.
+        Read-only view: summaries assume it does not change after construction. Lazy draws:
+        the Dask array itself (chunks of draws spanning every unit).
         """
+        if self.is_lazy:
+            return self._values
         v = self._values.view()
         v.flags.writeable = False
         return v
@@ -501,6 +494,8 @@ class EffectDraws:
         """The uptake ITT draws of complier-weighted draws (read-only view), else None."""
         if self._den is None:
             return None
+        if self.is_lazy:
+            return self._den
         v = self._den.view()
         v.flags.writeable = False
         return v

@@ -1,10 +1,24 @@
 """Passes over the draws, written as chunked reductions.
 
-A pass hands consecutive blocks of draws (:class:`~summarize_widgets.draws.DrawBlock`)
-to one or more reducers. Each reducer writes the rows of its per-draw output
-that belong to the block, so blocks are independent: they can run on a thread
-pool (NumPy releases the GIL in the heavy loops), come from a memory-mapped
-file, and let a progress bar count blocks. Several summaries can share one pass.
+A pass hands consecutive blocks of draws (:class:`~summarize_widgets.core.draws.DrawBlock`)
+to one or more reducers. A reducer splits its work in two:
+
+- ``partial(block)`` reduces one block to a small result (per-draw rows of the block, or
+  a per-unit array to be summed over blocks when the reducer's ``summed`` is True). It
+  reads nothing but the block and the reducer's own fixed arrays, so it can run where the
+  block lives: on a worker thread, or on a Dask worker next to a chunk of a zarr store;
+- ``store(rows, part)`` writes that result into the reducer's outputs, on the caller's
+  side (``rows`` is the block's slice of draws; ``None`` with the sum over all blocks for
+  a ``summed`` reducer).
+
+In-memory NumPy draws (including ``np.memmap``) run on a thread pool (NumPy releases the
+GIL in the heavy loops). Lazy draws (a Dask array, or an xarray object opened with chunks)
+run as one Dask computation (:mod:`summarize_widgets.core.lazy`) on whatever scheduler is
+active: the threaded one, a ``dask.distributed.LocalCluster`` or a remote ``Client``.
+Several summaries share one pass by handing all their reducers to one :func:`run_pass`.
+
+A reducer with only ``consume(block)`` (the older protocol) still works: it runs on the
+caller's side, and lazy blocks are brought to it.
 """
 from __future__ import annotations
 
@@ -15,21 +29,65 @@ from typing import Protocol
 
 import numpy as np
 
-__all__ = ["Reducer", "run_pass", "LeafSums", "LinearMap"]
+__all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts"]
 
 
 class Reducer(Protocol):
-    """What a pass needs from a reducer."""
+    """What a pass needs from a reducer (see the module notes)."""
+
+    summed: bool
 
     def start(self, n_draws: int) -> None:
         """Allocate per-draw outputs."""
 
+    def partial(self, block):
+        """Reduce one block to a small picklable result."""
+
+    def store(self, rows, part) -> None:
+        """Write a block's result (``rows`` a slice), or the sum over blocks (``rows`` None)."""
+
+
+class BlockReducer:
+    """Base of the reducers here: ``consume(block)`` = ``store(block.rows, partial(block))``."""
+
+    #: True when the parts of all blocks are added and stored once (per-unit sums).
+    summed = False
+
+    def start(self, n_draws: int) -> None:  # pragma: no cover - every reducer overrides it
+        raise NotImplementedError
+
+    def partial(self, block):  # pragma: no cover
+        raise NotImplementedError
+
+    def store(self, rows, part) -> None:  # pragma: no cover
+        raise NotImplementedError
+
     def consume(self, block) -> None:
-        """Reduce one block; write only rows ``block.rows`` of the outputs."""
+        self.store(None if self.summed else block.rows, self.partial(block))
+
+
+def add_parts(a, b):
+    """Sum two parts of a ``summed`` reducer (arrays, or tuples of arrays / None)."""
+    if a is None:
+        return b
+    if isinstance(a, tuple):
+        return tuple(add_parts(x, y) for x, y in zip(a, b))
+    return a + b
 
 
 def _default_threads() -> int:
     return max(1, min(2, os.cpu_count() or 1))
+
+
+def block_step(draws, reducers, rows_per_block=None) -> int:
+    """Draws per block of an in-memory pass."""
+    step = rows_per_block or draws.block_rows()
+    wanted = max((getattr(r, "block_bytes", 0) for r in reducers), default=0)
+    if rows_per_block is None and wanted:
+        # Matrix-product reducers re-read their (n_units x k) matrix once per block: larger blocks
+        # cut that traffic and let BLAS reach its speed.
+        step = max(step, min(draws.n_draws, wanted // (8 * draws.n_units)))
+    return step
 
 
 def run_pass(draws, reducers: Sequence[Reducer], *, progress: Callable[[int, int], None] | None = None,
@@ -41,42 +99,67 @@ def run_pass(draws, reducers: Sequence[Reducer], *, progress: Callable[[int, int
     draws : EffectDraws
     reducers : sequence of Reducer
     progress : callable(done_blocks, total_blocks), optional
-        Called after each block (from the calling thread).
+        Called after each block (from the calling thread). Without one, long passes show
+        a tqdm progress bar (:func:`summarize_widgets.core.progress.auto_progress`).
     threads : int, optional
-        Worker threads (default: up to 2).
+        Worker threads for in-memory draws (default: up to 2). Lazy draws use the active
+        Dask scheduler's workers.
     rows_per_block : int, optional
-        Draws per block (default: about 8 MB of float64 per block).
+        Draws per block for in-memory draws (default: about 8 MB of float64 per block).
+        Lazy draws are reduced one chunk of draws at a time (the array's own chunks).
     """
+    from .progress import pass_progress
+
+    reducers = list(reducers)
     for r in reducers:
         r.start(draws.n_draws)
-    step = rows_per_block or draws.block_rows()
-    wanted = max((getattr(r, "block_bytes", 0) for r in reducers), default=0)
-    if rows_per_block is None and wanted:
-        # Matrix-product reducers re-read their (n_units x k) matrix once per block: larger blocks
-        # cut that traffic and let BLAS reach its speed.
-        step = max(step, min(draws.n_draws, wanted // (8 * draws.n_units)))
+    if getattr(draws, "is_lazy", False):
+        from .lazy import run_lazy_pass
+
+        with pass_progress(draws, progress) as tick:
+            run_lazy_pass(draws, reducers, progress=tick)
+        return
+    step = block_step(draws, reducers, rows_per_block)
     starts = list(range(0, draws.n_draws, step))
     total = len(starts)
+    sums = {}
 
     def work(start):
         block = draws.block(slice(start, min(start + step, draws.n_draws)))
-        for r in reducers:
-            r.consume(block)
+        parts = []
+        for k, r in enumerate(reducers):
+            if hasattr(r, "partial"):
+                parts.append(r.partial(block))
+            else:
+                r.consume(block)  # older protocol: writes its own rows
+                parts.append(None)
+        return block.rows, parts
+
+    def absorb(rows, parts):
+        for k, (r, part) in enumerate(zip(reducers, parts)):
+            if not hasattr(r, "partial"):
+                continue
+            if r.summed:
+                sums[k] = add_parts(sums.get(k), part)
+            else:
+                r.store(rows, part)
 
     threads = threads or _default_threads()
-    if threads == 1 or total == 1:
-        for k, s in enumerate(starts, 1):
-            work(s)
-            if progress:
-                progress(k, total)
-        return
-    with ThreadPoolExecutor(threads) as pool:
-        for k, _ in enumerate(pool.map(work, starts), 1):
-            if progress:
-                progress(k, total)
+    with pass_progress(draws, progress, total=total) as tick:
+        if threads == 1 or total == 1:
+            for k, s in enumerate(starts, 1):
+                absorb(*work(s))
+                tick(k, total)
+        else:
+            with ThreadPoolExecutor(threads) as pool:
+                for k, result in enumerate(pool.map(work, starts), 1):
+                    absorb(*result)
+                    tick(k, total)
+    for k, total_part in sums.items():
+        reducers[k].store(None, total_part)
 
 
-class LeafSums:
+class LeafSums(BlockReducer):
     """Per draw and group: ``A_sg = sum_{i in g} w_si T_si`` and, with per-draw weights, ``W_sg = sum_{i in g} w_si``.
 
     Parameters
@@ -89,47 +172,83 @@ class LeafSums:
     def __init__(self, codes: np.ndarray, n_groups: int):
         codes = np.asarray(codes)
         self._keep = None if (codes >= 0).all() else np.flatnonzero(codes >= 0)
-        self.codes = codes if self._keep is None else codes[self._keep]
+        kept = codes if self._keep is None else codes[self._keep]
+        # int32 codes halve the memory of millions of units (bincount accepts any integer type).
+        self.codes = kept.astype(np.int32 if n_groups < 2**31 else np.int64)
         self.n_groups = int(n_groups)
 
     def start(self, n_draws: int) -> None:
         self.sums = np.zeros((n_draws, self.n_groups))
         self.weights = None  # filled only when weights vary by draw
 
-    def _rows_bincount(self, mat, out):
+    def _rows_bincount(self, mat):
         codes, G = self.codes, self.n_groups
+        out = np.empty((mat.shape[0], G))
         for j in range(mat.shape[0]):
             row = mat[j] if self._keep is None else mat[j, self._keep]
             out[j] = np.bincount(codes, weights=row, minlength=G)
+        return out
 
-    def consume(self, block) -> None:
-        self._rows_bincount(block.wt, self.sums[block.rows])
+    def partial(self, block):
+        sums = self._rows_bincount(block.wt)
+        weights = None
         if block.w is not None and block.w.ndim == 2:
+            weights = self._rows_bincount(block.w)
+        return sums, weights
+
+    def store(self, rows, part) -> None:
+        sums, weights = part
+        self.sums[rows] = sums
+        if weights is not None:
             if self.weights is None:
                 self.weights = np.zeros_like(self.sums)
-            self._rows_bincount(block.w, self.weights[block.rows])
+            self.weights[rows] = weights
 
 
-class LinearMap:
+class LinearMap(BlockReducer):
     """Per draw: ``wt_s @ H`` for a fixed (n_units, k) matrix H (a frozen linear smoother or projection).
 
     With per-draw weights it also stores ``w_s @ H`` when ``with_weights`` is set.
-    Accumulates in float64 whatever the draws' dtype.
+    Accumulates in float64 whatever the draws' dtype, unless H is float32 (a design too large
+    for float64 in memory, see DEVELOPERS.md "Memory"): then the product runs in float32 over
+    slices of at most 2^16 units, added in float64.
     """
 
     #: Preferred block size in bytes (see :func:`run_pass`).
     block_bytes = 64 * 2**20
+    #: Units per float32 product slice (bounds float32 accumulation error to ~2^8 roundings).
+    slice_units = 2**16
 
     def __init__(self, H: np.ndarray, *, with_weights: bool = False):
-        self.H = np.ascontiguousarray(H, dtype=np.float64)
+        H = np.asarray(H)
+        self.H = np.ascontiguousarray(H, dtype=np.float32 if H.dtype == np.float32 else np.float64)
         self.with_weights = with_weights
 
     def start(self, n_draws: int) -> None:
         self.out = np.zeros((n_draws, self.H.shape[1]))
         self.weights_out = np.zeros((n_draws, self.H.shape[1])) if self.with_weights else None
 
-    def consume(self, block) -> None:
-        wt = block.wt if block.wt.dtype == np.float64 else block.wt.astype(np.float64)
-        self.out[block.rows] = wt @ self.H
+    def _product(self, mat):
+        H = self.H
+        if H.dtype == np.float64:
+            return (mat if mat.dtype == np.float64 else mat.astype(np.float64)) @ H
+        out = np.zeros((mat.shape[0], H.shape[1]))
+        step = self.slice_units
+        for a in range(0, H.shape[0], step):
+            m = mat[:, a:a + step]
+            out += (m if m.dtype == np.float32 else m.astype(np.float32)) @ H[a:a + step]
+        return out
+
+    def partial(self, block):
+        out = self._product(block.wt)
+        w_out = None
         if self.with_weights and block.w is not None:
-            self.weights_out[block.rows] = (block.w @ self.H) if block.w.ndim == 2 else np.broadcast_to(block.w @ self.H, self.out[block.rows].shape)
+            w_out = self._product(block.w) if block.w.ndim == 2 else np.broadcast_to(
+                self._product(block.w[None, :])[0], out.shape).copy()
+        return out, w_out
+
+    def store(self, rows, part) -> None:
+        out, w_out = part
+        self.out[rows] = out
+        if w_out is not None:
+            self.weights_out[rows] = w_out

@@ -39,7 +39,7 @@ import numpy as np
 import pandas as pd
 
 from ..core.stats import draw_summary
-from ..core.passes import run_pass
+from ..core.passes import BlockReducer, run_pass
 from ..core.validate import SummaryError, check_interval, check_level
 
 __all__ = ["HeterogeneityEvidence", "heterogeneity_evidence", "unit_sd_draws", "between_sd_draws",
@@ -52,7 +52,7 @@ DEFAULT_FRACTION = 0.25
 SUPPORT_PROB = 0.95
 
 
-class _SpreadSums:
+class _SpreadSums(BlockReducer):
     """Reducer: per draw ``W_s = sum_i w_si``, ``A_s = sum_i w_si T_si`` and the centred
     ``SST_s = sum_i w_si (T_si - A_s / W_s)^2``, centring before squaring (float64)."""
 
@@ -61,9 +61,8 @@ class _SpreadSums:
         self.wtsum = np.zeros(n_draws)
         self.sst = np.zeros(n_draws)
 
-    def consume(self, block) -> None:
+    def partial(self, block):
         wt = np.asarray(block.wt, dtype=np.float64)
-        rows = block.rows
         if block.w is None:
             W = np.full(wt.shape[0], float(wt.shape[1]))
             A = wt.sum(axis=1)
@@ -79,9 +78,10 @@ class _SpreadSums:
                 # w (T - m)^2 = (wt - m w)^2 / w, zero where w = 0 (the unit takes no part).
                 r = wt - m[:, None] * w
                 sst = np.where(w > 0, r * r / np.where(w > 0, w, 1.0), 0.0).sum(axis=1)
-        self.wsum[rows] = W
-        self.wtsum[rows] = A
-        self.sst[rows] = sst
+        return W, A, sst
+
+    def store(self, rows, part) -> None:
+        self.wsum[rows], self.wtsum[rows], self.sst[rows] = part
 
 
 def unit_sd_draws(draws, *, progress=None) -> np.ndarray:

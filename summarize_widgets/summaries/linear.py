@@ -23,7 +23,7 @@ import pandas as pd
 from scipy.linalg import solve_triangular
 
 from ..core.design import classify_columns, linear_design
-from ..core.passes import LinearMap, run_pass
+from ..core.passes import BlockReducer, LinearMap, run_pass
 from .projection import ProjectedFit
 from ..core.validate import SummaryError, check_columns
 from ..core.draws import EffectDraws
@@ -40,7 +40,7 @@ LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS)
 _NO_HETEROGENEITY = 1e-20
 
 
-class _PseudoSquares:
+class _PseudoSquares(BlockReducer):
     """Reducer: per draw ``sum_i wbar_i (Y_si - c_s)^2 = sum_i (wt_si - c_s wbar_i)^2 / wbar_i``.
 
     Needed only with per-draw weights (with fixed weights this is ``draws.scan.centred_squares``).
@@ -56,11 +56,14 @@ class _PseudoSquares:
     def start(self, n_draws: int) -> None:
         self.out = np.zeros(n_draws)
 
-    def consume(self, block) -> None:
+    def partial(self, block):
         wt = block.wt if self._idx is None else block.wt[:, self._idx]
         wt = np.asarray(wt, dtype=np.float64)
         r = wt - self._centre[block.rows, None] * self._w
-        self.out[block.rows] = np.einsum("ij,ij->i", r * self._inv_w, r)
+        return np.einsum("ij,ij->i", r * self._inv_w, r)
+
+    def store(self, rows, part) -> None:
+        self.out[rows] = part
 
 
 def _rank_check(R: np.ndarray, terms: list[str]) -> None:
