@@ -269,7 +269,7 @@ class EffectDraws:
     Construction makes one pass over the draws: it checks that every value is
     finite and stores, per unit, the weighted posterior mean (the target every
     summary is fitted to) and, per draw, the centred weighted sum of squares
-    used by every summary R^2 (METHOD.md section 3).
+    used by every summary R^2 (docs/method.md section 3).
     """
 
     def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect", unit: str | None = None,
@@ -324,7 +324,7 @@ class EffectDraws:
         Notes
         -----
         Every subgroup effect is the ratio of sums ``sum v ITT_y / sum v pi`` per
-        draw (the Wald ratio inside the subgroup, METHOD.md section 5), i.e. the
+        draw (the Wald ratio inside the subgroup, docs/method.md section 5), i.e. the
         uptake-weighted mean of unit CLATEs; nothing is divided unit by unit.
         """
         num, c1 = _as_matrix(outcome_itt, "outcome_itt")

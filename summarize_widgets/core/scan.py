@@ -2,7 +2,7 @@
 measures in its one pass over the draws.
 
 :class:`ScanRows` gives, per draw, the weight total, the weighted total, a centring
-constant and the centred weighted sum of squares (METHOD.md section 3), and flags draws
+constant and the centred weighted sum of squares (docs/method.md section 3), and flags draws
 with non-finite values and negative uptake effects; :class:`ScanColumns` gives, per unit,
 the weighted sums over draws (the posterior mean's numerator and denominator). Both run
 through :func:`~summarize_widgets.core.passes.run_pass`, so the scan is a Dask computation
@@ -91,7 +91,7 @@ class ScanRows(BlockReducer):
         Fast route: ``sum w T^2 - 2 c sum w T + c^2 sum w`` from one product. When that
         would lose more than six of float64's sixteen digits to cancellation (effects large
         relative to their spread), the rows are recomputed by centring before squaring
-        (METHOD.md section 3).
+        (docs/method.md section 3).
         """
         k = min(CENTRE_UNITS, wt.shape[1])
         if not self.complier:
