@@ -142,7 +142,7 @@ def run_lazy_pass(draws, reducers, *, progress=None) -> None:
 
     legacy = [r for r in reducers if not hasattr(r, "partial")]
     if legacy:  # older protocol: bring each chunk to the caller
-        for k, block in enumerate(draws.blocks(), 1):
+        for block in draws.blocks():
             for r in legacy:
                 r.consume(block)
         reducers = [r for r in reducers if hasattr(r, "partial")]

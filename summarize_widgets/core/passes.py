@@ -127,7 +127,7 @@ def run_pass(draws, reducers: Sequence[Reducer], *, progress: Callable[[int, int
     def work(start):
         block = draws.block(slice(start, min(start + step, draws.n_draws)))
         parts = []
-        for k, r in enumerate(reducers):
+        for r in reducers:
             if hasattr(r, "partial"):
                 parts.append(r.partial(block))
             else:
