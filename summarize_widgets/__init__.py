@@ -35,6 +35,7 @@ __all__ = [
     "side_by_side",
     "simulate_retrofit_study",
     "summarize_all",
+    "summarize_draws",
     "write_summary_folder",
     "Explorer",
     "figures",
@@ -44,6 +45,7 @@ __all__ = [
 _LAZY = {
     "simulate_retrofit_study": ("datasets", "simulate_retrofit_study"),
     "summarize_all": ("summaries.bundle", "summarize_all"),
+    "summarize_draws": ("summaries.bundle", "summarize_draws"),
     "write_summary_folder": ("export.folder", "write_summary_folder"),
     "Explorer": ("widgets", "Explorer"),
     "figures": ("figures", None),

@@ -114,3 +114,49 @@ def test_lazy_nonfinite_draw_is_reported(small_blocks):
     T[17, 5] = np.nan
     with pytest.raises(sw.SummaryError, match="NaN|non-finite"):
         sw.EffectDraws(da.from_array(T, chunks=(8, 300)), X)
+
+
+class _CountingStore:
+    """A read-only array that counts every read of a block of draws (as a zarr store would serve them)."""
+
+    def __init__(self, values):
+        self.values = values
+        self.shape, self.dtype, self.ndim = values.shape, values.dtype, values.ndim
+        self.reads = {}
+
+    def __getitem__(self, key):
+        out = self.values[key]
+        if out.size:
+            rows = key[0] if isinstance(key, tuple) else key
+            k = (rows.start, rows.stop)
+            self.reads[k] = self.reads.get(k, 0) + 1
+        return out
+
+
+def test_whole_job_reads_each_block_of_lazy_draws_exactly_twice(study):
+    X, T, _ = study
+    store = _CountingStore(T)
+    arr = da.from_array(store, chunks=(16, N), asarray=False, meta=np.empty((0, 0), np.float32))
+    draws = sw.EffectDraws(arr, X)  # pass 1: the validation scan
+    assert set(store.reads.values()) == {1}
+    sw.summarize_all(draws, depth=3, max_depth=6, groups=GROUPS)  # pass 2: every projection at once
+    assert len(store.reads) == -(-S // 16) and set(store.reads.values()) == {2}, store.reads
+
+
+def test_whole_job_reads_each_block_in_memory_exactly_twice(study, monkeypatch):
+    X, T, _ = study
+    reads = {}
+    original = sw.EffectDraws.block
+
+    def counting(self, r):
+        reads[(r.start, r.stop)] = reads.get((r.start, r.stop), 0) + 1
+        return original(self, r)
+
+    monkeypatch.setattr(sw.EffectDraws, "block", counting)
+    bundle = sw.summarize_draws(T.astype(np.float64), X, depth=2, groups=GROUPS)
+    assert bundle.linear is not None and bundle.additive is not None and bundle.groups is not None
+    assert reads and set(reads.values()) == {2}, reads
+    # a summary computed alone still costs one pass
+    reads.clear()
+    sw.summarize_linear(bundle.draws)
+    assert set(reads.values()) == {1}

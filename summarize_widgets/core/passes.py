@@ -29,6 +29,8 @@ from typing import Protocol
 
 import numpy as np
 
+from .validate import SummaryError
+
 __all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts"]
 
 
@@ -108,9 +110,29 @@ def run_pass(draws, reducers: Sequence[Reducer], *, progress: Callable[[int, int
         Draws per block for in-memory draws (default: about 8 MB of float64 per block).
         Lazy draws are reduced one chunk of draws at a time (the array's own chunks).
     """
+    try:
+        _run_pass(draws, list(reducers), progress, threads, rows_per_block)
+    except MemoryError as exc:
+        raise SummaryError(_memory_message(draws, reducers, exc)) from None
+
+
+def _memory_message(draws, reducers, exc) -> str:
+    maps = sum(int(getattr(r, "H", np.empty(0)).nbytes) for r in reducers)
+    lazy = getattr(draws, "is_lazy", False)
+    rows = draws.block_rows()
+    block = rows * draws.n_units * (draws.dtype.itemsize if lazy else 8)
+    return (
+        f"Ran out of memory in a pass over the draws ({draws.n_draws} x {draws.n_units}, {draws.dtype}; {exc}): "
+        f"each block of {rows} draws takes about {block / 2**20:.0f} MiB per worker and the summaries' maps "
+        f"{maps / 2**20:.0f} MiB (DEVELOPERS.md \"Memory\" has the formula). Free memory, summarize fewer "
+        "covariates at once, or read the draws lazily (a .npy file memory-mapped, or zarr through Dask with "
+        "smaller chunks of draws)."
+    )
+
+
+def _run_pass(draws, reducers, progress, threads, rows_per_block) -> None:
     from .progress import pass_progress
 
-    reducers = list(reducers)
     for r in reducers:
         r.start(draws.n_draws)
     if getattr(draws, "is_lazy", False):

@@ -32,7 +32,10 @@ import pandas as pd
 from ..core.validate import SummaryError, format_names
 from ..core.draws import EffectDraws
 
-__all__ = ["load_draws", "DRAW_FORMATS"]
+__all__ = ["load_draws", "DRAW_FORMATS", "MMAP_BYTES"]
+
+#: ``.npy`` files larger than this are memory-mapped by default (``load_draws(mmap=None)``).
+MMAP_BYTES = 256 * 2**20
 
 # format name -> extensions that select it (sampler-csv is detected inside .csv files).
 DRAW_FORMATS = {
@@ -71,7 +74,7 @@ def load_draws(
     label: str = "effect",
     unit_column: str | None = "unit",
     group: str | None = None,
-    mmap: bool = False,
+    mmap: bool | None = None,
 ) -> EffectDraws:
     """Load posterior draws of unit-level effects from a file.
 
@@ -113,8 +116,10 @@ def load_draws(
         matching off.
     group : str, optional
         netCDF group holding the variable (default: the root group).
-    mmap : bool, default False
-        Memory-map a ``.npy`` file read-only instead of reading it into memory.
+    mmap : bool or None, default None
+        Memory-map a ``.npy`` file read-only instead of reading it into memory. None (default):
+        memory-map files larger than :data:`MMAP_BYTES` (256 MiB); every pass over the draws
+        reads them block by block from disk, so draws larger than memory work.
 
     Returns
     -------
@@ -333,10 +338,19 @@ def _from_array(arr: np.ndarray, path: Path, what: str) -> _Read:
     return _Read(arr)
 
 
-def _read_npy(path: Path, mmap: bool) -> _Read:
+def _read_npy(path: Path, mmap: bool | None) -> _Read:
     _check_magic(path, _NPY_MAGIC, ".npy")
+    size = path.stat().st_size
+    if mmap is None:
+        mmap = size > MMAP_BYTES
     try:
         arr = np.load(path, allow_pickle=False, mmap_mode="r" if mmap else None)
+    except MemoryError as exc:
+        raise SummaryError(
+            f"`path`: not enough memory to read {str(path)!r} ({size / 2**30:.1f} GiB of draws) into memory "
+            f"({exc}). Leave `mmap` at its default (or pass mmap=True): the file is then read block by block "
+            "from disk; for draws on a cluster, store them as zarr and pass a Dask array to EffectDraws."
+        ) from None
     except Exception as exc:  # noqa: BLE001 - numpy raises ValueError/EOFError/OSError for bad files
         raise _numpy_error(path, exc, ".npy") from exc
     return _from_array(arr, path, ".npy")

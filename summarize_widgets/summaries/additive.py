@@ -28,10 +28,11 @@ from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 from .base import SummaryResult
 from .pygam_bridge import PYGAM_RIDGE as _PYGAM_RIDGE
 from .pygam_bridge import model_matrix, penalty_matrix
-from .projection import ProjectedFit
+from . import projection
+from .projection import ChunkedDesign, ProjectedFit, SummaryPlan, project, weighted_map
 from .linear import FrozenProjection, check_draws
 
-__all__ = ["summarize_additive", "AdditiveSummary", "CURVE_COLUMNS", "MISSING_COLUMNS"]
+__all__ = ["summarize_additive", "plan_additive", "COMPILE_UNITS", "AdditiveSummary", "CURVE_COLUMNS", "MISSING_COLUMNS"]
 
 #: Columns of the additive summary's curves table, in order.
 CURVE_COLUMNS = ("covariate", "covariate_type", "x", *STAT_COLUMNS, "lower_joint", "upper_joint", *MC_COLUMNS)
@@ -337,6 +338,47 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
     and lam. pygam casts fit weights to float32; the frozen smoother keeps the float64
     weights (the two agree exactly when the weights are float32 numbers, e.g. no weights).
     """
+    plan = plan_additive(draws, columns=columns, n_splines=n_splines, lam=lam, grid_size=grid_size)
+    return project(draws, [plan], progress=progress)[0]
+
+
+#: Units pygam sees when it compiles the terms on millions of units (knots, categories); the
+#: subsample always holds each numeric feature's smallest and largest value and one unit of
+#: every category, so the compiled terms are those of all units (see :func:`plan_additive`).
+COMPILE_UNITS = 200_000
+
+
+def _compile_rows(X: np.ndarray, size: int) -> np.ndarray:
+    """Rows pygam compiles the terms on: every row when few; else the extremes of each column,
+    one row per distinct value of each column with few values, and a seeded uniform sample."""
+    n = X.shape[0]
+    if n <= size:
+        return np.arange(n)
+    picked = [np.random.default_rng(0).choice(n, size, replace=False)]
+    for j in range(X.shape[1]):
+        col = X[:, j]
+        picked.append(np.array([np.argmin(col), np.argmax(col)]))
+        uniq, first = np.unique(col, return_index=True)
+        if uniq.size <= 10_000:  # categorical codes and indicators: one row of each value
+            picked.append(first)
+    return np.unique(np.concatenate(picked))
+
+
+def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_size: int = 50) -> SummaryPlan:
+    """The fit-structure step of :func:`summarize_additive` (no pass over the draws).
+
+    Compiles pygam's terms, chooses the smoothing by GCV on the posterior mean and freezes
+    the smoother; its projection (one pass) gives the :class:`AdditiveSummary`.
+
+    Notes
+    -----
+    On more than :data:`~summarize_widgets.summaries.projection.CHUNK_UNITS` units the model
+    matrix is built, factorized (tall-skinny QR) and mapped piece by piece, never whole, and
+    pygam compiles its terms on :data:`COMPILE_UNITS` units (:func:`_compile_rows`: a seeded
+    uniform sample plus each feature's extremes and every category, so knots and levels are
+    those of all units). The GCV choice of smoothing uses ALL units (it needs only the
+    factor ``R`` and ``z``), and so does every projection.
+    """
     keep = check_draws(draws)
     cols = check_columns(columns, list(draws.covariates.columns))
     n_splines = check_int(n_splines, "n_splines", low=4, high=100)
@@ -346,34 +388,44 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
     X, info = _features(draws.covariates, specs, keep)
     wk = draws.mean_weights[keep]
     target = draws.posterior_mean[keep]
+    n_kept = target.size
 
     # The terms are compiled (knots from the data) once; the model matrix and penalties come from pygam.
     gam = _pygam_model(X, info, n_splines, {c: 1.0 for c in cols} if lam is None else lam)
+    fit_rows = _compile_rows(X, COMPILE_UNITS)
     # pygam prints "did not converge" and divides by zero on a constant target (no heterogeneity);
     # that case is reported by fit_r2, and the frozen smoother below never relies on pygam's iterations.
     with warnings.catch_warnings(), contextlib.redirect_stdout(io.StringIO()):
         warnings.simplefilter("ignore", RuntimeWarning)
-        gam.fit(X, target, weights=wk)  # one fit: compiles the terms and sets pygam's fitted state
-    design = model_matrix(gam, X)
-    p = design.shape[1]
+        gam.fit(X[fit_rows], target[fit_rows], weights=wk[fit_rows])  # compiles the terms, sets pygam's state
     sw = np.sqrt(wk)
-    Q, R = np.linalg.qr(sw[:, None] * design.toarray())
+    P1 = penalty_matrix(gam)
+    p = P1.shape[0]
+    if n_kept <= projection.CHUNK_UNITS:
+        design = model_matrix(gam, X)
+        Q, R = np.linalg.qr(sw[:, None] * design.toarray())
+        z_target = Q.T @ (sw * target)
+        mapping = {"qr": (Q, R)}
+    else:
+        design = ChunkedDesign(lambda a, b: model_matrix(gam, X[a:b]), n_kept, p)
+        R, Hk = weighted_map(lambda a, b: model_matrix(gam, X[a:b]), sw, p)
+        z_target = sum(Hk[a:a + projection.CHUNK_UNITS].T.astype(np.float64) @ (wk * target)[a:a + projection.CHUNK_UNITS]
+                       for a in range(0, n_kept, projection.CHUNK_UNITS))
+        mapping = {"map_": (R, Hk)}
     if lam is None:
         # pygam's gridsearch criterion, computed from one QR instead of one pygam fit per candidate.
-        best = _gcv_search(R, Q.T @ (sw * target), float(wk @ (target * target)), penalty_matrix(gam), target.size)
+        best = _gcv_search(R, z_target, float(wk @ (target * target)), P1, n_kept)
         lam_used = {c: best for c in cols}
-        penalty = best * penalty_matrix(gam)
+        penalty = best * P1
         source = "GCV grid search (pygam's default grid and criterion, one lam for all terms)"
     else:
         lam_used = {it["spec"].name: float(gam.lam[j][0]) for j, it in enumerate(info)}
-        penalty = penalty_matrix(gam)
+        penalty = P1
         source = "given"
     penalty = penalty + _PYGAM_RIDGE * np.eye(p)
-    proj = FrozenProjection(draws, None, keep, penalty=penalty, intercept=p - 1, qr=(Q, R))
-    del Q
-    coef, r2 = proj.run(draws, progress=progress)
-
-    bbar = np.asarray(design.T @ wk).ravel() / wk.sum()
+    proj = FrozenProjection(draws, None, keep, penalty=penalty, intercept=p - 1, **mapping)
+    del mapping
+    bbar = (design.column_sums(wk) if isinstance(design, ChunkedDesign) else np.asarray(design.T @ wk).ravel()) / wk.sum()
     C, C_missing = {}, {}
     for j, item in enumerate(info):
         name = item["spec"].name
@@ -412,9 +464,15 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
         "n_draws": draws.n_draws,
         "n_units": draws.n_units,
         "n_units_used": int(keep.sum()),
+        "n_units_compiled": int(fit_rows.size),
         "weights": "posterior-mean weight per unit (per-draw weights enter the numerator only)"
         if draws.has_draw_weights else draws.weights_description,
         "complier_weighted": draws.is_complier_weighted,
         "structure_from": draws.label,
     }
-    return AdditiveSummary(draws, coef, r2, info, C, C_missing, design, keep, bbar, lam_used, settings)
+
+    def finish():
+        coef, r2 = proj.finish(draws)
+        return AdditiveSummary(draws, coef, r2, info, C, C_missing, design, keep, bbar, lam_used, settings)
+
+    return SummaryPlan(proj.reducers(draws), finish, "additive")

@@ -7,12 +7,13 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from ..core.validate import SummaryError, check_int
-from .additive import summarize_additive
-from .groups import summarize_groups
-from .linear import summarize_linear
-from .tree import summarize_tree
+from .additive import plan_additive
+from .groups import plan_groups
+from .linear import plan_linear
+from .projection import project
+from .tree import plan_tree
 
-__all__ = ["SummaryBundle", "summarize_all", "DEFAULT_DEPTH", "STAGES"]
+__all__ = ["SummaryBundle", "summarize_all", "summarize_draws", "DEFAULT_DEPTH", "STAGES"]
 
 #: Depth of the reported subgroups, shared by the command line, the report and the explorer.
 DEFAULT_DEPTH = 3
@@ -72,34 +73,80 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         the message in ``bundle.errors`` (the explorer shows it in that summary's tab). The tree
         and the groups always raise.
     progress : callable(stage, stage_index, n_stages, done_blocks, total_blocks), optional
-        Called after each block of each pass; ``stage`` is one of :data:`STAGES`.
+        Called after each block of the one pass (``stage`` is the first of :data:`STAGES`
+        computed, ``stage_index`` 0 of ``n_stages`` 1). Without one, a long pass shows a tqdm bar.
+
+    Notes
+    -----
+    ONE pass over the draws, whatever is asked for: every structure (tree, groups, designs
+    and smoothing) is fitted from the validation scan's posterior mean, then the draws are
+    projected onto all of them at once (leaf sums of every depth, group sums, the linear and
+    additive maps). With the validation scan, the whole job reads each block of draws twice.
     """
     depth = check_int(depth, "depth", low=1, high=8)
     max_depth = max(depth, 4) if max_depth is None else check_int(max_depth, "max_depth", low=depth, high=8)
     if extras not in ("raise", "record"):
         raise SummaryError(f"`extras` must be 'raise' or 'record'; got {extras!r}.")
     wanted = [name for name, on in zip(STAGES, (True, bool(groups), linear, additive)) if on]
+    tick = None
+    if progress is not None:
+        def tick(done, total):  # one pass for every summary: reported as the first stage, of one
+            progress(wanted[0], 0, 1, done, total)
 
-    def tick(stage):
-        if progress is None:
-            return None
-        k = wanted.index(stage)
-        return lambda done, total: progress(stage, k, len(wanted), done, total)
-
-    tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=tick("tree"))
-    bundle = SummaryBundle(draws=draws, tree=tree.at_depth(depth))
+    # Fit every structure from the validation scan's posterior mean (no pass over the draws) ...
+    plans = {"tree": plan_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns)}
     if groups:
-        bundle.groups = summarize_groups(draws, groups, progress=tick("groups"))
-    extra_summaries = {"linear": lambda: summarize_linear(draws, columns=columns, progress=tick("linear")),
-                       "additive": lambda: summarize_additive(draws, columns=columns, progress=tick("additive"),
-                                                              **dict(additive_options or {}))}
-    for name, make in extra_summaries.items():
+        plans["groups"] = plan_groups(draws, groups)
+    extra_plans = {"linear": lambda: plan_linear(draws, columns=columns),
+                   "additive": lambda: plan_additive(draws, columns=columns, **dict(additive_options or {}))}
+    errors = {}
+    for name, make in extra_plans.items():
         if name not in wanted:
             continue
         try:
-            setattr(bundle, name, make())
+            plans[name] = make()
         except SummaryError as exc:
             if extras == "raise":
                 raise
-            bundle.errors[name] = str(exc)
+            errors[name] = str(exc)
+    # ... then project the draws onto all of them in ONE pass.
+    results = dict(zip(plans, project(draws, list(plans.values()), progress=tick)))
+    bundle = SummaryBundle(draws=draws, tree=results["tree"].at_depth(depth), groups=results.get("groups"),
+                           linear=results.get("linear"), additive=results.get("additive"), errors=errors)
     return bundle
+
+
+def summarize_draws(values, covariates, *, weights=None, chains=None, label: str = "effect", unit=None,
+                    better: str = "higher", **options) -> SummaryBundle:
+    """The whole job in one call and two passes over the draws: validate, then every summary.
+
+    Parameters
+    ----------
+    values : array-like, Dask array, zarr array, xarray object, or EffectDraws
+        The draws (n_draws, n_units), as for :class:`~summarize_widgets.EffectDraws`: a NumPy
+        array or ``np.memmap`` runs on threads; a Dask array, a zarr array or an xarray object
+        opened with chunks (``xr.open_zarr``, ``xr.open_dataset(..., chunks={})``) stays on disk
+        or on the cluster and every pass is a Dask computation on the active scheduler.
+    covariates : pandas.DataFrame
+        One row per unit (ignored when ``values`` is already an EffectDraws).
+    weights, chains, label, unit, better
+        As for :class:`~summarize_widgets.EffectDraws`.
+    **options
+        Passed to :func:`summarize_all` (``depth``, ``max_depth``, ``min_size``, ``columns``,
+        ``groups``, ``additive``, ``linear``, ``additive_options``, ``extras``, ``progress``).
+
+    Returns
+    -------
+    SummaryBundle
+
+    Notes
+    -----
+    Pass 1 is the validation scan (finiteness, posterior mean, per-draw sums of squares);
+    the structures (tree, groups, linear and additive designs, smoothing) are fitted from it
+    without reading the draws; pass 2 computes every projection at once.
+    """
+    from ..core.draws import EffectDraws
+
+    draws = values if isinstance(values, EffectDraws) else EffectDraws(
+        values, covariates, weights=weights, chains=chains, label=label, unit=unit, better=better)
+    return summarize_all(draws, **options)

@@ -6,12 +6,13 @@ from collections.abc import Mapping
 import numpy as np
 import pandas as pd
 
-from ..core.passes import LinearMap, run_pass
+from ..core.passes import LinearMap
+from .projection import SummaryPlan, project
 from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
 from ..core.validate import SummaryError
 
-__all__ = ["summarize_groups", "GroupSummary", "ALL_UNITS"]
+__all__ = ["summarize_groups", "plan_groups", "GroupSummary", "ALL_UNITS"]
 
 #: Label of the first row of every group table.
 ALL_UNITS = "All units"
@@ -130,6 +131,15 @@ def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=N
 
         warnings.warn("summarize_groups(level=...) is ignored and will be removed; pass level to .table().",
                       DeprecationWarning, stacklevel=2)
+    return _project(draws, *_memberships(draws, groups), progress)
+
+
+def _memberships(draws, groups):
+    """Labels, queries and the membership matrix (n_units, 1 + n_groups) of the groups."""
+    from ..core.draws import EffectDraws
+
+    if not isinstance(draws, EffectDraws):
+        raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
     if not isinstance(groups, Mapping) or not groups:
         raise SummaryError("`groups` must be a non-empty mapping of label -> pandas query, e.g. {'older': 'age >= 65'}.")
     labels, queries, masks = [ALL_UNITS], ["all units"], [np.ones(draws.n_units, bool)]
@@ -143,21 +153,31 @@ def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=N
         labels.append(label)
         queries.append(query)
         masks.append(m)
-    return _project(draws, labels, queries, np.column_stack(masks).astype(np.float64), progress)
+    return labels, queries, np.column_stack(masks).astype(np.float64)
 
 
 def _project(draws, labels, queries, M, progress=None) -> GroupSummary:
     """One pass: every group's per-draw effect from the membership matrix ``M`` (n_units, n_groups)."""
+    return project(draws, [_group_plan(draws, labels, queries, M)], progress=progress)[0]
+
+
+def _group_plan(draws, labels, queries, M) -> SummaryPlan:
     red = LinearMap(M, with_weights=draws.has_draw_weights)
-    run_pass(draws, [red], progress=progress)
-    if draws.has_draw_weights:
-        W = red.weights_out
-    else:
-        w = draws.unit_weights
-        W = w @ M
-    theta = ratio_draws(red.out, W, labels)
-    uptake = None
-    if draws.is_complier_weighted:
-        v = draws.unit_weights
-        uptake = W / (v @ M)
-    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake, W)
+
+    def finish():
+        if draws.has_draw_weights:
+            W = red.weights_out
+        else:
+            W = draws.unit_weights @ M
+        theta = ratio_draws(red.out, W, labels)
+        uptake = None
+        if draws.is_complier_weighted:
+            uptake = W / (draws.unit_weights @ M)
+        return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake, W)
+
+    return SummaryPlan([red], finish, "groups")
+
+
+def plan_groups(draws, groups: Mapping[str, str]) -> SummaryPlan:
+    """The fit-structure step of :func:`summarize_groups` (memberships from the queries; no pass)."""
+    return _group_plan(draws, *_memberships(draws, groups))

@@ -24,13 +24,14 @@ from scipy.linalg import solve_triangular
 
 from ..core.design import classify_columns, linear_design
 from ..core.passes import BlockReducer, LinearMap, run_pass
-from .projection import ProjectedFit
+from . import projection
+from .projection import ProjectedFit, SummaryPlan, project, weighted_map
 from ..core.validate import SummaryError, check_columns
 from ..core.draws import EffectDraws
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 from .base import SummaryResult
 
-__all__ = ["summarize_linear", "LinearSummary", "FrozenProjection", "LINEAR_COLUMNS"]
+__all__ = ["summarize_linear", "plan_linear", "LinearSummary", "FrozenProjection", "LINEAR_COLUMNS"]
 
 #: Columns of the linear summary's table, in order.
 LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS)
@@ -109,6 +110,10 @@ class FrozenProjection:
         Column names, for the rank-deficiency message.
     qr : tuple (Q, R), optional
         The thin QR of ``sqrt(wbar) B`` when the caller already has it.
+    map_ : tuple (R, H), optional
+        Instead of ``qr``: ``R`` and ``H = B R^{-1}`` (n_kept, p) from
+        :func:`~summarize_widgets.summaries.projection.weighted_map` (millions of units:
+        no ``Q`` is ever formed, ``H`` may be float32).
 
     Notes
     -----
@@ -125,8 +130,11 @@ class FrozenProjection:
     """
 
     def __init__(self, draws, design: np.ndarray, keep: np.ndarray, *, penalty=None, intercept: int = 0, terms=None,
-                 qr=None):
-        n_kept, p = design.shape if design is not None else qr[0].shape
+                 qr=None, map_=None):
+        if map_ is not None:
+            n_kept, p = map_[1].shape
+        else:
+            n_kept, p = design.shape if design is not None else qr[0].shape
         if n_kept <= p:
             raise SummaryError(
                 f"The summary has {p} coefficients but only {n_kept} units with positive weight; "
@@ -135,7 +143,15 @@ class FrozenProjection:
         wbar = draws.mean_weights
         w = wbar[keep]
         sw = np.sqrt(w)
-        Q, R = np.linalg.qr(sw[:, None] * design) if qr is None else qr
+        Q = None
+        if map_ is not None:
+            R, Hk = map_
+        elif qr is not None:
+            Q, R = qr
+        elif n_kept > projection.CHUNK_UNITS:  # millions of units: factorize piecewise (weighted_map)
+            R, Hk = weighted_map(lambda a, b: design[a:b], sw, p)
+        else:
+            Q, R = np.linalg.qr(sw[:, None] * design)
         if penalty is None:
             _rank_check(R, list(terms) if terms is not None else [str(k) for k in range(p)])
             self.coef_map = solve_triangular(R, np.eye(p))
@@ -144,23 +160,41 @@ class FrozenProjection:
             U, d, Vt = np.linalg.svd(np.vstack([R, E]), full_matrices=False)
             self.coef_map = (Vt.T / d) @ U[:p].T
         self.R = R
-        self.q1 = Q.T @ sw
         self.wsum = float(w.sum())
         self.keep = keep
         self.intercept = int(intercept)
-        H = np.zeros((draws.n_units, p))
-        H[keep] = Q / sw[:, None]
+        if Q is not None:
+            self.q1 = Q.T @ sw
+            H = np.zeros((draws.n_units, p))
+            H[keep] = Q / sw[:, None]
+        else:
+            # q1 = Q' sqrt(w) = H' w, summed in float64 piece by piece (H may be float32)
+            self.q1 = sum(Hk[a:a + projection.CHUNK_UNITS].T.astype(np.float64) @ w[a:a + projection.CHUNK_UNITS]
+                          for a in range(0, n_kept, projection.CHUNK_UNITS))
+            if keep.all():
+                H = Hk
+            else:
+                H = np.zeros((draws.n_units, p), dtype=Hk.dtype)
+                H[keep] = Hk
         self.H = H
 
     def run(self, draws, progress=None):
         """One pass: coefficients (n_draws, p), raw R^2 (n_draws,) with NaN where undefined."""
-        lmap = LinearMap(self.H)
-        reducers = [lmap]
-        squares = None
+        run_pass(draws, self.reducers(draws), progress=progress)
+        return self.finish(draws)
+
+    def reducers(self, draws) -> list:
+        """The reducers of the projection pass (to share one pass with other summaries)."""
+        self._lmap = LinearMap(self.H)
+        self._squares = None
         if draws.has_draw_weights:
-            squares = _PseudoSquares(draws.mean_weights, self.keep, draws.scan.centre)
-            reducers.append(squares)
-        run_pass(draws, reducers, progress=progress)
+            self._squares = _PseudoSquares(draws.mean_weights, self.keep, draws.scan.centre)
+        return [self._lmap] + ([self._squares] if self._squares is not None else [])
+
+    def finish(self, draws):
+        """Coefficients (n_draws, p) and raw R^2 (n_draws,) once the pass of :meth:`reducers` has run."""
+        lmap, squares = self._lmap, self._squares
+        self._lmap = self._squares = None
         self.H = None  # the n x p map is not needed after the pass
         z = lmap.out
         q = squares.out if squares is not None else draws.scan.centred_squares
@@ -277,13 +311,18 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
     fitted values is ``sum_i w_si T_si / sum_i wbar_i``, whose denominator is fixed at its
     posterior mean (not the per-draw ratio of :attr:`EffectDraws.overall`).
     """
+    plan = plan_linear(draws, columns=columns)
+    return project(draws, [plan], progress=progress)[0]
+
+
+def plan_linear(draws, *, columns=None) -> SummaryPlan:
+    """The fit-structure step of :func:`summarize_linear` (design, its QR; no pass over the draws)."""
     keep = check_draws(draws)
     cols = check_columns(columns, list(draws.covariates.columns))
     specs = classify_columns(draws.covariates, cols)
     B, terms, fill = linear_design(draws.covariates, specs)
     Bk = B[keep]
     proj = FrozenProjection(draws, Bk, keep, intercept=0, terms=terms)
-    coef, r2 = proj.run(draws, progress=progress)
     settings = {
         "columns": cols,
         "terms": list(terms),
@@ -295,4 +334,9 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
         "complier_weighted": draws.is_complier_weighted,
         "structure_from": draws.label,
     }
-    return LinearSummary(draws, coef, r2, terms, specs, fill, Bk, keep, settings)
+
+    def finish():
+        coef, r2 = proj.finish(draws)
+        return LinearSummary(draws, coef, r2, terms, specs, fill, Bk, keep, settings)
+
+    return SummaryPlan(proj.reducers(draws), finish, "linear")

@@ -5,7 +5,8 @@ import numpy as np
 
 from ..core.validate import SummaryError
 
-__all__ = ["checked_r2", "r2_note", "ProjectedFit"]
+__all__ = ["checked_r2", "r2_note", "ProjectedFit", "SummaryPlan", "project", "weighted_map", "ChunkedDesign",
+           "FLOAT64_MAP_BYTES", "CHUNK_UNITS"]
 
 
 def checked_r2(r2: np.ndarray) -> np.ndarray:
@@ -75,4 +76,135 @@ class ProjectedFit:
         coef = self.coef_draws if rows is None else np.atleast_2d(self.coef_draws[rows])
         out = np.full((coef.shape[0], self._keep.size), np.nan)
         out[:, self._keep] = (self._design @ coef.T).T
+        return out
+
+
+class SummaryPlan:
+    """A summary's structure, fitted on the posterior mean, waiting for its pass over the draws.
+
+    The "fit structure" step (``plan_tree``, ``plan_linear``, ``plan_additive``, ``plan_groups``)
+    reads only the validation scan's results (posterior mean, weights) and the covariates; the
+    "project" step is one pass running :attr:`reducers` (shared with other plans by
+    :func:`project`), after which :meth:`finish` builds the result from the reducers' outputs.
+
+    Parameters
+    ----------
+    reducers : list
+        The reducers the projection needs (see :mod:`summarize_widgets.core.passes`).
+    finish : callable() -> summary result
+        Builds the result once the pass has run.
+    name : str
+        What is projected ("tree", "linear", "additive", "groups"), for progress and errors.
+    """
+
+    def __init__(self, reducers, finish, name: str = ""):
+        self.reducers = list(reducers)
+        self._finish = finish
+        self.name = name
+
+    def finish(self):
+        """The summary result (call once, after the pass)."""
+        return self._finish()
+
+
+def project(draws, plans, *, progress=None) -> list:
+    """Run the projections of every plan in ONE pass over ``draws``; return their results in order.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+    plans : sequence of SummaryPlan
+    progress : callable(done, total), optional
+    """
+    from ..core.passes import run_pass
+
+    plans = list(plans)
+    reducers = [r for p in plans for r in p.reducers]
+    if reducers:
+        run_pass(draws, reducers, progress=progress)
+    return [p.finish() for p in plans]
+
+
+#: A projection map ``H`` (n_units x p) larger than this in float64 is kept in float32
+#: (DEVELOPERS.md "Memory": each product then sums at most 2^16 float32 terms, added in float64).
+FLOAT64_MAP_BYTES = 256 * 2**20
+#: Units per piece when a design is built, factorized and mapped piecewise.
+CHUNK_UNITS = 2**18
+
+
+def _dense(mat) -> np.ndarray:
+    return mat.toarray() if hasattr(mat, "toarray") else np.asarray(mat, dtype=np.float64)
+
+
+def weighted_map(design_rows, sw: np.ndarray, p: int):
+    """The thin QR ``sqrt(W) B = Q R`` of a design built piece by piece, as ``R`` and ``H = Q / sqrt(W)``.
+
+    Parameters
+    ----------
+    design_rows : callable(a, b) -> (b - a, p) dense or sparse
+        Rows ``a:b`` of the design ``B`` (built on demand, so the whole design need not exist).
+    sw : ndarray, shape (n,)
+        Square roots of the (positive) fit weights.
+    p : int
+
+    Returns
+    -------
+    R : ndarray (p, p)
+    H : ndarray (n, p)
+        float32 when it would exceed :data:`FLOAT64_MAP_BYTES` in float64. ``Q = sqrt(W) H``,
+        so ``z_s = Q' sqrt(W) Y_s = H' (w_s T_s)``.
+
+    Notes
+    -----
+    A two-level tall-skinny QR (Demmel et al. 2012, "Communication-optimal parallel and
+    sequential QR"): ``sqrt(W_k) B_k = Q_k R_k`` per piece, then ``[R_1; ...; R_K] = Q_s R``,
+    and ``Q`` restricted to piece k is ``Q_k Q_s[k]``. It is a QR of the whole matrix (no
+    normal equations, no inverse of ``R``, so designs with exactly collinear columns, such
+    as spline bases beside an intercept, stay as stable as with one QR).
+    """
+    n = sw.size
+    H = np.empty((n, p), dtype=np.float32 if n * p * 8 > FLOAT64_MAP_BYTES else np.float64)
+    triangles, spans = [], []
+    for a in range(0, n, CHUNK_UNITS):
+        b = min(a + CHUNK_UNITS, n)
+        Qk, Rk = np.linalg.qr(sw[a:b, None] * _dense(design_rows(a, b)))
+        H[a:b] = Qk / sw[a:b, None]
+        triangles.append(Rk)
+        spans.append((a, b))
+    Qs, R = np.linalg.qr(np.vstack(triangles))
+    row = 0
+    for (a, b), Rk in zip(spans, triangles):
+        k = Rk.shape[0]
+        H[a:b] = H[a:b].astype(np.float64) @ Qs[row:row + k]
+        row += k
+    return R, H
+
+
+class ChunkedDesign:
+    """A design matrix built piece by piece on demand (``design @ M`` works, nothing else is stored).
+
+    Parameters
+    ----------
+    design_rows : callable(a, b) -> (b - a, p) dense or sparse
+    n_rows, p : int
+    """
+
+    def __init__(self, design_rows, n_rows: int, p: int):
+        self._rows = design_rows
+        self.shape = (int(n_rows), int(p))
+
+    def __matmul__(self, M):
+        M = np.asarray(M)
+        out = np.empty((self.shape[0],) + M.shape[1:])
+        for a in range(0, self.shape[0], CHUNK_UNITS):
+            b = min(a + CHUNK_UNITS, self.shape[0])
+            out[a:b] = self._rows(a, b) @ M
+        return out
+
+    def column_sums(self, w: np.ndarray) -> np.ndarray:
+        """``B' w`` (p,)."""
+        out = np.zeros(self.shape[1])
+        for a in range(0, self.shape[0], CHUNK_UNITS):
+            b = min(a + CHUNK_UNITS, self.shape[0])
+            out += np.asarray(self._rows(a, b).T @ w[a:b]).ravel()
         return out

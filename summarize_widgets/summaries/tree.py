@@ -25,14 +25,14 @@ import pandas as pd
 from sklearn.tree import DecisionTreeRegressor
 
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
-from .projection import checked_r2, r2_note
-from ..core.passes import LeafSums, run_pass
+from .projection import SummaryPlan, checked_r2, project, r2_note
+from ..core.passes import LeafSums
 from ..core.rules import Condition, combine, nice_threshold
 from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
 from ..core.validate import SummaryError, check_columns, check_int, check_level
 
-__all__ = ["summarize_tree", "TreeSummary", "default_min_size"]
+__all__ = ["summarize_tree", "plan_tree", "TreeSummary", "default_min_size"]
 
 _MAX_DEPTH_LIMIT = 8
 
@@ -474,15 +474,9 @@ class TreeSummary(SummaryResult):
             raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
         f = self._f
         check_same_units(f.draws, draws, self.columns)
-        sums = LeafSums(f.unit_leaf, len(f.sk_leaves))
-        run_pass(draws, [sums], progress=progress)
-        W_fixed = None
-        if sums.weights is None:
-            w = draws.weights if draws.weights is not None else np.ones(draws.n_units)
-            W_fixed = np.bincount(f.unit_leaf, weights=w, minlength=len(f.sk_leaves))
-        fitted = _Fitted(draws, f.specs, f.est, f.X, f.X_raw, f.rank, f.edges, f.max_depth, f.min_size, f.unit_leaf,
-                         sums.sums, sums.weights, W_fixed, f.names_by_rank, grown_on=f.grown_on)
-        return TreeSummary(fitted, self._depth)
+        plan = _leaf_plan(draws, f.specs, f.est, f.X, f.X_raw, f.rank, f.edges, f.max_depth, f.min_size, f.unit_leaf,
+                          f.names_by_rank, grown_on=f.grown_on, depth=self._depth)
+        return project(draws, [plan], progress=progress)[0]
 
     def _ancestor_at_depth(self) -> np.ndarray:
         f = self._f
@@ -503,9 +497,29 @@ class TreeSummary(SummaryResult):
         return "\n".join(lines)
 
 
+def _leaf_plan(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, names_by_rank,
+               grown_on=None, depth=None) -> SummaryPlan:
+    """The projection step of a tree: per-draw sums of every deepest leaf (so of every node at every depth)."""
+    n_leaves = int(np.flatnonzero(est.tree_.children_left < 0).size)
+    sums = LeafSums(unit_leaf, n_leaves)
+
+    def finish():
+        W_draw = sums.weights
+        W_fixed = None
+        if W_draw is None:
+            W_fixed = np.bincount(unit_leaf, weights=draws.unit_weights, minlength=n_leaves)
+        fitted = _Fitted(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, sums.sums, W_draw,
+                         W_fixed, names_by_rank, grown_on=grown_on)
+        return TreeSummary(fitted, max_depth if depth is None else depth)
+
+    return SummaryPlan([sums], finish, "tree")
+
+
 def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns=None,
                    n_bins: int | None = 256, progress=None) -> TreeSummary:
     """Fit a summary tree to the posterior mean and project every draw onto its subgroups.
+
+    One pass over the draws (:func:`plan_tree` then its projection).
 
     Parameters
     ----------
@@ -530,6 +544,16 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     -------
     TreeSummary
         At depth ``max_depth``.
+    """
+    plan = plan_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, n_bins=n_bins)
+    return project(draws, [plan], progress=progress)[0]
+
+
+def plan_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns=None,
+              n_bins: int | None = 256) -> SummaryPlan:
+    """The fit-structure step of :func:`summarize_tree` (CART on the posterior mean; no pass
+    over the draws). Returns a :class:`~summarize_widgets.summaries.projection.SummaryPlan`
+    whose projection gives the :class:`TreeSummary` at depth ``max_depth``.
     """
     from ..core.draws import EffectDraws
 
@@ -579,12 +603,4 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     sk_leaves = np.flatnonzero(est.tree_.children_left < 0)
     unit_leaf = np.searchsorted(sk_leaves, est.apply(X))
 
-    sums = LeafSums(unit_leaf, len(sk_leaves))
-    run_pass(draws, [sums], progress=progress)
-    W_draw = sums.weights
-    W_fixed = None
-    if W_draw is None:
-        w = draws.unit_weights
-        W_fixed = np.bincount(unit_leaf, weights=w, minlength=len(sk_leaves))
-    fitted = _Fitted(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, sums.sums, W_draw, W_fixed, names_by_rank)
-    return TreeSummary(fitted, max_depth)
+    return _leaf_plan(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, names_by_rank)
