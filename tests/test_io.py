@@ -314,7 +314,7 @@ def test_netcdf_unit_coordinate_matched_to_covariates(tmp_path, values, househol
 def test_netcdf_errors(tmp_path, values, households):
     ds = xr.Dataset({"tau": (("chain", "draw", "household"), values.reshape(2, 3, N_UNITS)), "lp": (("chain", "draw"), np.zeros((2, 3)))})
     ds.to_netcdf(tmp_path / "post.nc")
-    with pytest.raises(SummaryError, match=r"`variable` 'cate' is not in .*available: 'tau', 'lp'"):
+    with pytest.raises(SummaryError, match=r"`variable` 'cate' is not in .*available, by group: \(root\): 'tau', 'lp'"):
         load_draws(tmp_path / "post.nc", households, variable="cate")
     with pytest.raises(SummaryError, match=r"holds 2 variables; name one of 'tau', 'lp'"):
         load_draws(tmp_path / "post.nc", households)
@@ -401,7 +401,7 @@ def test_unknown_extension_lists_supported(tmp_path, households):
     (tmp_path / "draws.xlsx").write_text("x")
     with pytest.raises(SummaryError, match=r"extension '\.xlsx'\. Supported: extensions \.npy, \.npz, \.csv, \.parquet, \.pq, \.nc"):
         load_draws(tmp_path / "draws.xlsx", households)
-    with pytest.raises(SummaryError, match=r"`format` must be one of 'npy', 'npz', 'csv', 'parquet', 'netcdf', 'sampler-csv'"):
+    with pytest.raises(SummaryError, match=r"`format` must be one of 'npy', 'npz', 'csv', 'parquet', 'netcdf', 'zarr', 'sampler-csv'"):
         load_draws(tmp_path / "draws.xlsx", households, format="excel")
 
 
