@@ -136,8 +136,12 @@ def _load(args):
         )
     outcome = load_draws(args.draws, args.covariates, format=args.draws_format, variable=args.variable,
                          source=str(args.draws), **common)
-    uptake = load_draws(args.uptake, args.covariates, format=args.uptake_format, variable=args.uptake_var,
-                        source=str(args.uptake), **common)
+    try:
+        uptake = load_draws(args.uptake, args.covariates, format=args.uptake_format, variable=args.uptake_var,
+                            source=str(args.uptake), **common)
+    except ValueError as exc:  # name the uptake file's own options in the hint
+        msg = str(exc).replace("`variable`", "--uptake-var").replace("`format=`", "--uptake-format")
+        raise ValueError(f"--uptake file: {msg}") from None
     # Both files were matched to the same covariate rows, so their columns are the same units in the same order.
     cov = outcome.covariates.set_axis(outcome.unit_ids, axis=0)
     return EffectDraws.from_itt(outcome.values, uptake.values, cov, chains=outcome.n_chains,

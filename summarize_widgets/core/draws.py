@@ -280,11 +280,10 @@ class EffectDraws:
         order, cov_given, ids, notes = match_units(labels, covariates, unit_column, name=name)
         drop = [c for c in id_like_columns(cov_given) if c != unit_column]
         if drop:
+            names = ", ".join(repr(str(c)) for c in drop)
             notes.append(
-                f"Covariate column{'s' if len(drop) > 1 else ''} {', '.join(repr(str(c)) for c in drop)} "
-                f"{'have' if len(drop) > 1 else 'has'} a different text value for every unit: "
-                f"{'they identify' if len(drop) > 1 else 'it identifies'} units, not describe them, and "
-                f"{'are' if len(drop) > 1 else 'is'} not used as covariates (pass it as `unit_column=` or the index to match units)."
+                f"Not used as covariates: {names} (a different text value for every unit: it identifies units "
+                "rather than describing them; set it as the covariates' index or pass `unit_column=` to match units by it)."
             )
             cov_given = cov_given.drop(columns=drop)
         cov = check_covariates(cov_given)
@@ -351,6 +350,9 @@ class EffectDraws:
         """
         num, c1, lab1 = _as_matrix(outcome_itt, "outcome_itt", outcome_variable)
         den, c2, lab2 = _as_matrix(uptake_itt, "uptake_itt", uptake_variable)
+        if isinstance(covariates, pd.DataFrame):  # each matrix against the covariates first (transposed hints)
+            _check_shape(num, len(covariates), "outcome_itt")
+            _check_shape(den, len(covariates), "uptake_itt")
         if num.shape != den.shape:
             raise SummaryError(f"`outcome_itt` has shape {num.shape} but `uptake_itt` has shape {den.shape}; they must match.")
         den, labels = _same_units(num, den, lab1, lab2)

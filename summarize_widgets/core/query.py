@@ -133,15 +133,18 @@ def _check(q: _Query, node):
             if k > 0 and isinstance(node.ops[k - 1], (ast.Is, ast.IsNot, ast.In, ast.NotIn)):
                 continue
             if not (isinstance(operand, ast.Name) or _is_constant(operand)):
-                _refuse(q, operand, "the operand")
+                _refuse(q, operand, _kind(operand))
     elif isinstance(node, ast.Name):
         return
     elif isinstance(node, ast.Constant) and isinstance(node.value, bool):
         return
     else:
-        kind = {ast.Attribute: "attribute access", ast.Call: "the call", ast.Subscript: "indexing",
-                ast.BinOp: "arithmetic", ast.NamedExpr: "the assignment", ast.Lambda: "the lambda"}.get(type(node), "the expression")
-        _refuse(q, node, kind)
+        _refuse(q, node, _kind(node))
+
+
+def _kind(node) -> str:
+    return {ast.Attribute: "attribute access", ast.Call: "the call", ast.Subscript: "indexing",
+            ast.BinOp: "arithmetic", ast.NamedExpr: "the assignment", ast.Lambda: "the lambda"}.get(type(node), "the expression")
 
 
 # -- evaluation --------------------------------------------------------------------------------

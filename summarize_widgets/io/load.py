@@ -86,10 +86,10 @@ def load_draws(
         The draws file. A list (or tuple) of sampler CSV files is read as one file
         per chain, stacked chain-major in the order given.
     covariates : pandas.DataFrame, or str or path-like to a ``.csv`` / ``.parquet`` file
-        One row per unit. If it has a column named ``unit_column``, that column holds
-        unit ids: draws whose file names its units (wide and long tables, a netCDF
-        unit coordinate) are matched to it by id, and the column is then dropped
-        (an identifier is not a covariate).
+        One row per unit, in any order when the file names its units. If it has a
+        column named ``unit_column``, that column holds unit ids: the file's units
+        (wide and long tables, a netCDF/zarr unit coordinate, sampler indices) are
+        matched to it by id, and the column is dropped (an identifier is not a covariate).
     format : {"npy", "npz", "csv", "parquet", "netcdf", "sampler-csv"}, optional
         Overrides the format implied by the extension. A ``.csv`` file is read as
         sampler output when it begins with ``#`` comment lines, or when ``variable``
@@ -132,12 +132,14 @@ def load_draws(
 
     Notes
     -----
-    Unit order (the columns of the draw matrix, which must follow the covariate
-    rows): with a unit-id column in the covariates, its order; else, when the
-    covariates' index holds the file's unit ids (in any order), matched by index;
-    otherwise the file's order (array columns, table columns, the netCDF/zarr unit
-    dim, the sampler index 1, 2, ..., 10 compared as integers), except for long
-    tables, whose units are sorted naturally (``h2`` before ``h10``; numbers as numbers). Draw order: chain-major, draws in file order, or sorted by
+    Unit order: the draw matrix keeps the file's unit order (it is never reordered or
+    copied); the covariate rows are matched to it by the file's unit ids (table columns, a
+    long table's unit column, a netCDF/zarr unit coordinate, the sampler index 1, 2, ...,
+    10 compared as integers) through the ``unit_column`` column, else through the
+    covariates' index when it holds the same ids (in any order). Without ids on both sides
+    the rows pair by position with the file's order; long tables' units are then sorted
+    naturally (``h2`` before ``h10``; numbers as numbers).
+    Draw order: chain-major, draws in file order, or sorted by
     ``(chain, draw)`` when those columns exist.
 
     Float values are read exactly: ``.npy``, ``.npz``, Parquet and netCDF keep
@@ -180,32 +182,35 @@ def load_draws(
     if group is not None and fmt not in ("netcdf", "zarr"):
         raise SummaryError(f"`group` picks a netCDF or zarr group; the draws are read as {fmt!r}.")
 
-    matched = unit_column is not None and unit_column in cov.columns
-    values, cov = _match_units(read, cov, unit_column)
-    values = _labelled(values, read, cov, by_index=not matched)
+    id_column = unit_column if unit_column is not None and unit_column in cov.columns else None
+    values = _labelled(read, cov, id_column)
     if read.chains is not None and chains is not None and chains != read.chains:
         raise SummaryError(
             f"`chains` = {chains!r} but the file records {read.chains} chains; leave `chains` unset to use the file's."
         )
+    # EffectDraws matches the file's unit labels to the id column or the covariates' index (the covariate
+    # rows follow the file's unit order: the draw matrix is never reordered or copied).
     return EffectDraws(values, cov, weights=weights, chains=read.chains if chains is None else chains, label=label,
-                       source=source if source is not None else str(paths[0]))
+                       source=source if source is not None else str(paths[0]), unit_column=id_column)
 
 
-def _labelled(values, read: _Read, cov: pd.DataFrame, by_index: bool):
-    """The values with their unit labels kept only when the covariates' index holds the same ids
-    (EffectDraws then matches by index); otherwise the plain matrix, in the order already decided."""
+def _labelled(read: _Read, cov: pd.DataFrame, id_column):
+    """The values, carrying the file's unit labels when the covariates can be matched to them
+    (an id column, or an index holding the same ids); otherwise the plain matrix (file order)."""
     from ..core.inputs import unit_key
 
-    keep = False
-    if by_index and read.unit_ids is not None and len(read.unit_ids) == len(cov):
-        keep = {unit_key(v) for v in read.unit_ids} == {unit_key(v) for v in cov.index}
+    keep = read.unit_ids is not None and (id_column is not None or (
+        len(read.unit_ids) == len(cov) and {unit_key(v) for v in read.unit_ids} == {unit_key(v) for v in cov.index}))
+    if id_column is not None and read.unit_ids is None:
+        # the file names no units: the id column is only dropped (rows in file order)
+        return read.values
     if read.unit_dim is not None:  # a DataArray
-        if keep or read.unit_dim not in values.coords:
-            return values
-        return values.drop_vars(read.unit_dim)
+        if keep or read.unit_dim not in read.values.coords:
+            return read.values
+        return read.values.drop_vars(read.unit_dim)
     if keep:
-        return pd.DataFrame(values, columns=pd.Index(read.unit_ids), copy=False)
-    return values
+        return pd.DataFrame(read.values, columns=pd.Index(read.unit_ids), copy=False)
+    return read.values
 
 
 # -- paths and formats -------------------------------------------------------------------
@@ -305,45 +310,6 @@ def _read_covariates(covariates) -> pd.DataFrame:
         f"`covariates`: cannot tell the format of {str(p)!r} from its extension {suffix or '(none)'!r}; "
         "supported: .csv, .parquet, .pq, or pass a DataFrame."
     )
-
-
-def _match_units(read: _Read, cov: pd.DataFrame, unit_column):
-    """Reorder the draw columns to the covariates' unit ids (if both exist); drop the id column."""
-    if unit_column is None or unit_column not in cov.columns:
-        return read.values, cov
-    ids = cov[unit_column]
-    if ids.isna().any():
-        raise SummaryError(
-            f"`covariates` column {unit_column!r} (unit ids) has {int(ids.isna().sum())} missing values; "
-            "every unit needs an id (or pass unit_column=None)."
-        )
-    keys = [str(v) for v in ids]
-    dup = sorted({k for k, c in pd.Series(keys).value_counts().items() if c > 1})
-    if dup:
-        raise SummaryError(f"`covariates` column {unit_column!r} (unit ids) repeats ids: {_fmt_names(dup, 5)}.")
-    cov = cov.drop(columns=[unit_column])
-    if read.unit_ids is None:
-        return read.values, cov
-    file_keys = [str(v) for v in read.unit_ids]
-    pos = {k: i for i, k in enumerate(file_keys)}
-    missing = [k for k in keys if k not in pos]
-    extra = sorted(set(file_keys) - set(keys))
-    if missing or extra:
-        parts = []
-        if missing:
-            parts.append(f"{len(missing)} covariate unit ids have no draws (e.g. {_fmt_names(missing, 5)})")
-        if extra:
-            parts.append(f"{len(extra)} units in the draws are not in the covariates (e.g. {_fmt_names(extra, 5)})")
-        raise SummaryError(
-            f"`covariates` column {unit_column!r} does not match the draws' units: {'; '.join(parts)}. "
-            "Ids are compared as text; pass unit_column=None to match by position instead."
-        )
-    order = np.array([pos[k] for k in keys])
-    if np.array_equal(order, np.arange(len(order))):
-        return read.values, cov  # already aligned: keep the matrix as it is (no copy)
-    if read.unit_dim is not None:
-        return read.values.isel({read.unit_dim: order}), cov
-    return read.values[:, order], cov
 
 
 # -- NumPy -----------------------------------------------------------------------------------
@@ -762,4 +728,4 @@ def _read_sampler_csv(paths: list[Path], variable) -> _Read:
                 "each chain needs the same number of draws."
             )
     values = mats[0] if len(mats) == 1 else np.concatenate(mats, axis=0)
-    return _Read(values, chains=len(paths) if len(paths) > 1 else None)
+    return _Read(values, chains=len(paths) if len(paths) > 1 else None, unit_ids=index_sets[0])
