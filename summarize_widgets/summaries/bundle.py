@@ -42,7 +42,7 @@ def summarize_all(draws, *, depth: int = 3, max_depth: int | None = None, min_si
         Depth the tree is grown to (default ``max(depth, 4)``), so summary R^2 is shown for every depth.
     min_size, columns
         Passed to :func:`summarize_tree` (``columns`` also to the additive and linear summaries).
-    groups : mapping label -> pandas query, optional
+    groups : mapping label -> query (:mod:`summarize_widgets.core.query`), optional
         Pre-specified groups (:func:`summarize_groups`).
     """
     from .additive import summarize_additive
@@ -59,4 +59,5 @@ def summarize_all(draws, *, depth: int = 3, max_depth: int | None = None, min_si
         additive=summarize_additive(draws, columns=columns) if additive else None,
         linear=summarize_linear(draws, columns=columns) if linear else None,
         groups=summarize_groups(draws, groups) if groups else None,
+        notes=list(getattr(draws, "notes", ())),  # what construction decided (an id column matched or excluded)
     )
