@@ -118,7 +118,7 @@ def test_smoothing_is_chosen_like_pygam_gridsearch():
 
 
 def test_fit_r2_equals_definition_and_is_between_zero_and_one():
-    # Definition (METHOD.md section 3): 1 - sum (T - fit)^2 / sum (T - mean T)^2 per draw, from residuals.
+    # Definition (docs/method.md section 3): 1 - sum (T - fit)^2 / sum (T - mean T)^2 per draw, from residuals.
     T, X = _data(S=80)
     add = summarize_additive(sw.EffectDraws(T, X), lam=LAM)
     fit = add.fitted_values()
@@ -282,3 +282,35 @@ def test_constant_effect_has_undefined_r2():
         add.fit_r2
     # the curves of a constant effect are flat at that constant
     np.testing.assert_allclose(add.curve_draws("age"), const[:, :50], atol=1e-9)
+
+
+def test_pygam_internals_we_use_are_present():
+    # summaries/pygam_bridge.py reads pygam's private model matrix and penalty. If a pygam release
+    # moves or changes them, this fails loudly (and pyproject.toml pins the checked releases).
+    import re
+    from importlib.metadata import version
+    from pathlib import Path
+
+    from pygam import LinearGAM, s as spline
+    from summarize_widgets.summaries.pygam_bridge import CHECKED_VERSIONS, model_matrix, penalty_matrix
+
+    rng = np.random.default_rng(3)
+    x = rng.uniform(0, 1, (300, 1))
+    y = np.sin(6 * x[:, 0]) + rng.normal(0, 0.1, 300)
+    gam = LinearGAM(spline(0, n_splines=8, lam=0.7)).fit(x, y)
+    B = model_matrix(gam, x)
+    # pygam's own prediction is the model matrix times its coefficients (Gaussian, identity link).
+    np.testing.assert_allclose(B @ gam.coef_, gam.predict(x), rtol=1e-10, atol=1e-12)
+    P = penalty_matrix(gam)
+    assert P.shape == (B.shape[1], B.shape[1])
+    np.testing.assert_allclose(P, P.T, atol=1e-12)
+    assert np.linalg.eigvalsh(P).min() > -1e-8
+    # The penalty is lam times the unscaled term penalty: doubling lam doubles it.
+    gam2 = LinearGAM(spline(0, n_splines=8, lam=1.4)).fit(x, y)
+    np.testing.assert_allclose(penalty_matrix(gam2), 2 * P, rtol=1e-10, atol=1e-12)
+    # The installed pygam is one of the checked releases, and pyproject.toml pins the same range.
+    low, high = re.match(r">=([\d.]+),<([\d.]+)", CHECKED_VERSIONS).groups()
+    as_tuple = lambda v: tuple(int(p) for p in v.split(".")[:2])  # noqa: E731
+    assert as_tuple(low) <= as_tuple(version("pygam")) < as_tuple(high)
+    pyproject = (Path(__file__).resolve().parents[1] / "pyproject.toml").read_text()
+    assert f'"pygam{CHECKED_VERSIONS}"' in pyproject

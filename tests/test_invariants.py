@@ -1,7 +1,7 @@
 """One suite of invariants run over every summary type (tree, additive, linear; groups where they apply).
 
 Each invariant follows from the summary being a fixed projection applied to every draw
-(METHOD.md section 2): properties of least squares, not of any implementation.
+(docs/method.md section 2): properties of least squares, not of any implementation.
 """
 import numpy as np
 import pandas as pd

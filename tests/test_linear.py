@@ -87,7 +87,7 @@ def test_complier_weighted_draws_use_outcome_itt_over_mean_uptake():
 
 
 def test_fit_r2_equals_definition_from_residuals():
-    # Definition (METHOD.md section 3, pseudo-values): R2 = 1 - sum wbar (Y - fit)^2 / sum wbar (Y - Ybar)^2,
+    # Definition (docs/method.md section 3, pseudo-values): R2 = 1 - sum wbar (Y - fit)^2 / sum wbar (Y - Ybar)^2,
     # computed here directly from numpy residuals, with per-draw weights.
     T, X = _data(S=60)
     W = np.random.default_rng(1).uniform(0.5, 1.5, T.shape)

@@ -445,3 +445,14 @@ def test_text_from_the_data_is_escaped():
     # The tree view receives the raw text; the ES module only ever sets it as textContent.
     assert any("<script>" in r["rule"] for r in ex.tree_view.nodes)
     assert "innerHTML" not in asset_path("tree_view.js").read_text()
+
+
+def test_plotly_widget_internals_we_use_are_present():
+    # widgets/panels.py keeps a FigureWidget's saved state in step through plotly internals
+    # (_layout_obj._props, _data, _widget_layout, _widget_data); fail loudly if plotly moves them.
+    import plotly.graph_objects as go
+
+    w = go.FigureWidget(go.Figure(go.Scatter(x=[1, 2], y=[3, 4])))
+    assert isinstance(w._layout_obj._props, dict)
+    assert isinstance(w._data, list) and w._data[0]["x"] == [1, 2] or list(w._data[0]["x"]) == [1, 2]
+    assert hasattr(w, "_widget_layout") and hasattr(w, "_widget_data")

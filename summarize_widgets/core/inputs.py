@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .validate import SummaryError, _fmt_names
+from .validate import SummaryError, format_names
 
 __all__ = ["DrawInput", "as_draw_input", "match_units", "unit_key", "align_weights", "id_like_columns"]
 
@@ -100,10 +100,10 @@ def pick_variable(ds, variable, name: str, where: str = ""):
         cands = with_draws or names
         raise SummaryError(
             f"`{name}`: {where} holds {len(names)} variables; name one with `variable=` "
-            f"({_fmt_names(cands, 20)})."
+            f"({format_names(cands, 20)})."
         )
     if variable not in names:
-        raise SummaryError(f"`variable` {variable!r} is not in {where}; variables there: {_fmt_names(names, 20)}.")
+        raise SummaryError(f"`variable` {variable!r} is not in {where}; variables there: {format_names(names, 20)}.")
     return ds[variable]
 
 
@@ -213,7 +213,7 @@ def _check_unique(keys: list[str], what: str):
     s = pd.Series(keys)
     dup = s[s.duplicated()].unique().tolist()
     if dup:
-        raise SummaryError(f"{what} repeats unit ids: {_fmt_names(dup, 5)}; every unit needs its own id.")
+        raise SummaryError(f"{what} repeats unit ids: {format_names(dup, 5)}; every unit needs its own id.")
 
 
 def id_like_columns(covariates: pd.DataFrame) -> list:
@@ -259,7 +259,7 @@ def match_units(labels, covariates: pd.DataFrame, unit_column=None, *, name: str
     if unit_column is not None:
         if unit_column not in cov.columns:
             raise SummaryError(
-                f"`unit_column` {unit_column!r} is not a column of the covariates; columns: {_fmt_names(cov.columns, 12)}."
+                f"`unit_column` {unit_column!r} is not a column of the covariates; columns: {format_names(cov.columns, 12)}."
             )
         col = cov[unit_column]
         if col.isna().any():
@@ -294,8 +294,8 @@ def match_units(labels, covariates: pd.DataFrame, unit_column=None, *, name: str
         extra = [k for k in lkeys if k not in set(ikeys)]
         raise SummaryError(
             f"`{name}` carries unit labels that do not match the covariates' {where}: "
-            f"{len(missing)} covariate units have no draws (e.g. {_fmt_names(missing, 3)}), "
-            f"{len(extra)} draw units are not in the covariates (e.g. {_fmt_names(extra, 3)}). "
+            f"{len(missing)} covariate units have no draws (e.g. {format_names(missing, 3)}), "
+            f"{len(extra)} draw units are not in the covariates (e.g. {format_names(extra, 3)}). "
             "Set the covariates' index to the unit ids (covariates.set_index('<id column>')) or pass `unit_column=`."
         )
     pos = {k: i for i, k in enumerate(ikeys)}
@@ -321,7 +321,7 @@ def align_weights(weights, ids: pd.Index, order, name: str = "weights"):
                 missing = [k for k in ikeys if k not in set(lkeys)]
                 raise SummaryError(
                     f"`{name}` is labelled by unit, but its labels do not match the covariates' unit ids "
-                    f"({len(missing)} units have no weight, e.g. {_fmt_names(missing, 3)}); give it the covariates' index."
+                    f"({len(missing)} units have no weight, e.g. {format_names(missing, 3)}); give it the covariates' index."
                 )
             _check_unique(lkeys, f"`{name}`")
             pos = {k: i for i, k in enumerate(lkeys)}

@@ -161,10 +161,10 @@ def _column(q: _Query, node: ast.Name, covariates, names) -> np.ndarray:
     elif key == "index":
         s = covariates.index.to_series(index=covariates.index)
     else:
-        from .validate import _fmt_names
+        from .validate import format_names
         raise SummaryError(
             f"query {q.text!r} names {key!r}, which is not a column of the covariates. "
-            f"Available: {_fmt_names(names, 20)} (and `index`); backquote names with spaces, e.g. `floor area`."
+            f"Available: {format_names(names, 20)} (and `index`); backquote names with spaces, e.g. `floor area`."
         )
     return s
 

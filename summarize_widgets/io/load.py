@@ -32,7 +32,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ..core.validate import SummaryError, _fmt_names
+from ..core.validate import SummaryError, format_names
 from ..core.draws import EffectDraws
 
 __all__ = ["load_draws", "DRAW_FORMATS"]
@@ -157,7 +157,7 @@ def load_draws(
     paths = _as_paths(path)
     fmt = _resolve_format(paths, format, variable)
     if layout is not None and layout not in _LAYOUTS:
-        raise SummaryError(f"`layout` must be one of {_fmt_names(_LAYOUTS)} or None; got {layout!r}.")
+        raise SummaryError(f"`layout` must be one of {format_names(_LAYOUTS)} or None; got {layout!r}.")
     if layout is not None and fmt not in ("csv", "parquet"):
         raise SummaryError(f"`layout` applies to CSV and Parquet tables only; the draws are read as {fmt!r}.")
     if len(paths) > 1 and fmt != "sampler-csv":
@@ -240,13 +240,13 @@ def _is_zarr(p: Path) -> bool:
 
 def _supported() -> str:
     exts = [e for f in DRAW_FORMATS.values() for e in f]
-    return f"extensions {', '.join(exts)}; formats {_fmt_names(DRAW_FORMATS)}"
+    return f"extensions {', '.join(exts)}; formats {format_names(DRAW_FORMATS)}"
 
 
 def _resolve_format(paths: list[Path], format, variable) -> str:
     if format is not None:
         if format not in DRAW_FORMATS:
-            raise SummaryError(f"`format` must be one of {_fmt_names(DRAW_FORMATS)}; got {format!r}.")
+            raise SummaryError(f"`format` must be one of {format_names(DRAW_FORMATS)}; got {format!r}.")
         return format
     if all(p.is_dir() for p in paths):
         return "zarr"
@@ -358,11 +358,11 @@ def _read_npz(path: Path, variable) -> _Read:
             if variable is None:
                 if len(names) != 1:
                     raise SummaryError(
-                        f"`variable`: {str(path)!r} holds {len(names)} arrays; name one of {_fmt_names(names)}."
+                        f"`variable`: {str(path)!r} holds {len(names)} arrays; name one of {format_names(names)}."
                     )
                 variable = names[0]
             elif variable not in names:
-                raise SummaryError(f"`variable` {variable!r} is not in {str(path)!r}; available: {_fmt_names(names)}.")
+                raise SummaryError(f"`variable` {variable!r} is not in {str(path)!r}; available: {format_names(names)}.")
             arr = archive[variable]
     except SummaryError:
         raise
@@ -394,7 +394,7 @@ def _read_table(path: Path, fmt: str, variable, layout) -> _Read:
             hint = " nor a prefix of unit columns like 'tau.1', 'tau[1]' or 'tau_1' (sampler output)"
         raise SummaryError(
             f"`variable` {variable!r} matches no column of {str(path)!r}: it is neither the value column of a "
-            f"long table{hint}. Columns seen: {_fmt_names(cols, 8)}."
+            f"long table{hint}. Columns seen: {format_names(cols, 8)}."
         )
     long_cols = ["draw", "unit", value_col]
     if layout is None:
@@ -403,8 +403,8 @@ def _read_table(path: Path, fmt: str, variable, layout) -> _Read:
         missing = [c for c in long_cols if c not in cols]
         if missing:
             raise SummaryError(
-                f"`layout`='long' needs columns {_fmt_names(long_cols)} (and optionally 'chain') in {str(path)!r}; "
-                f"missing {_fmt_names(missing)}. Columns seen: {_fmt_names(cols, 8)}."
+                f"`layout`='long' needs columns {format_names(long_cols)} (and optionally 'chain') in {str(path)!r}; "
+                f"missing {format_names(missing)}. Columns seen: {format_names(cols, 8)}."
             )
         return _long_to_matrix(df, value_col, path)
     return _wide_to_matrix(df, path)
@@ -448,7 +448,7 @@ def _wide_to_matrix(df: pd.DataFrame, path: Path) -> _Read:
     if bad:
         raise SummaryError(
             f"`path`: a wide table has one numeric column per unit, but these columns of {str(path)!r} are not "
-            f"numeric: {_fmt_names(bad, 5)}. For a long table use columns 'draw', 'unit', 'value'."
+            f"numeric: {format_names(bad, 5)}. For a long table use columns 'draw', 'unit', 'value'."
         )
     return _Read(df[units].to_numpy(), chains=chains, unit_ids=units)
 
@@ -578,7 +578,7 @@ def _layout(path: Path, fmt: str) -> dict[str, list[str]]:
 
 
 def _describe_layout(layout: dict) -> str:
-    return "; ".join(f"{g or '(root)'}: {_fmt_names(v) if v else '(no variables)'}" for g, v in layout.items())
+    return "; ".join(f"{g or '(root)'}: {format_names(v) if v else '(no variables)'}" for g, v in layout.items())
 
 
 def _choose_group(path: Path, fmt: str, variable, group, layout: dict) -> str:
@@ -623,7 +623,7 @@ def _read_grouped(path: Path, fmt: str, variable, group) -> _Read:
     if variable is None:
         if len(names) != 1:
             raise SummaryError(
-                f"`variable`: {where} holds {len(names)} variables; name one of {_fmt_names(names)} "
+                f"`variable`: {where} holds {len(names)} variables; name one of {format_names(names)} "
                 f"(groups and their variables: {_describe_layout(layout)})."
             )
         variable = names[0]
@@ -696,7 +696,7 @@ def _read_sampler_csv(paths: list[Path], variable) -> _Read:
         if not found:
             raise SummaryError(
                 f"`variable` prefix {variable!r} matches no column of {str(path)!r} (looked for {variable}.1, "
-                f"{variable}[1] or {variable}_1). Columns seen: {_fmt_names(header, 8)}."
+                f"{variable}[1] or {variable}_1). Columns seen: {format_names(header, 8)}."
             )
         idx = sorted(found)  # integer order: tau.10 comes after tau.9
         gaps = sorted(set(range(idx[0], idx[-1] + 1)) - set(idx))
@@ -704,7 +704,7 @@ def _read_sampler_csv(paths: list[Path], variable) -> _Read:
             raise SummaryError(
                 f"`variable` {variable!r}: the unit indices in {str(path)!r} must run 1..n (or 0..n-1) without "
                 f"gaps; found {len(idx)} columns from {idx[0]} to {idx[-1]}"
-                + (f", missing {_fmt_names(gaps, 5)}." if gaps else ".")
+                + (f", missing {format_names(gaps, 5)}." if gaps else ".")
             )
         names = [found[k] for k in idx]
         try:
