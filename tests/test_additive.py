@@ -5,7 +5,7 @@ import pytest
 from pygam import LinearGAM, f, l, s
 
 import summarize_widgets as sw
-from helpers import household_covariates
+from conftest import draws_around, household_covariates
 from summarize_widgets import SummaryError
 from summarize_widgets.summaries.additive import summarize_additive
 
@@ -18,8 +18,7 @@ def _data(n=500, S=200, seed=11, dtype=np.float64):
     X = household_covariates(n, rng)
     age = X["age"].to_numpy()
     f_ = -0.8 * np.sin(age / 12) - 0.6 * (X["fuel"] == "oil").to_numpy() - 0.05 * np.nan_to_num(X["rooms"].to_numpy(), nan=7)
-    T = f_ + rng.normal(0, 0.5, (S, n)) + rng.normal(0, 0.3, (S, 1))
-    return T.astype(dtype), X
+    return draws_around(f_, S, rng, dtype=dtype), X
 
 
 def _reference_inputs(X, keep=None):

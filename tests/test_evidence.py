@@ -5,7 +5,7 @@ import pytest
 import summarize_widgets as sw
 from summarize_widgets.summaries.evidence import between_sd_draws, heterogeneity_evidence, unit_sd_draws
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 
 def _flat(S=400, n=600, seed=1):

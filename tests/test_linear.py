@@ -4,7 +4,7 @@ import pytest
 import statsmodels.api as sm
 
 import summarize_widgets as sw
-from helpers import household_covariates
+from conftest import draws_around, household_covariates
 from summarize_widgets import SummaryError
 from summarize_widgets.core.design import classify_columns, linear_design
 from summarize_widgets.summaries.linear import LINEAR_COLUMNS, summarize_linear
@@ -15,8 +15,7 @@ def _data(n=500, S=200, seed=3, dtype=np.float64, offset=0.0):
     rng = np.random.default_rng(seed)
     X = household_covariates(n, rng)
     f = -0.02 * X["age"].to_numpy() - 0.6 * (X["fuel"] == "oil").to_numpy() - 0.1 * np.nan_to_num(X["rooms"].to_numpy(), nan=4)
-    T = offset + f + rng.normal(0, 0.5, (S, n)) + rng.normal(0, 0.3, (S, 1))
-    return T.astype(dtype), X
+    return draws_around(offset + f, S, rng, dtype=dtype), X
 
 
 def _design(X, columns=None):

@@ -6,6 +6,7 @@ import pytest
 from arviz_stats.base import array_stats  # the maintained reference implementation
 
 import summarize_widgets as sw
+from conftest import draws_around, household_covariates
 from summarize_widgets.core.stats import ESS_MIN, MC_COLUMNS, RHAT_MAX, STAT_COLUMNS, mc_diagnostics, summary_columns
 from summarize_widgets.export import summary_tables
 from summarize_widgets.summaries.additive import CURVE_COLUMNS, MISSING_COLUMNS
@@ -93,11 +94,8 @@ def _every_table(d, groups=True):
 
 def _data(n=300, S=80, seed=3):
     rng = np.random.default_rng(seed)
-    X = pd.DataFrame({"age": rng.uniform(20, 80, n), "fuel": rng.choice(["gas", "oil"], n),
-                      "rooms": rng.integers(2, 8, n).astype(float)})
-    X.loc[rng.choice(n, 20, replace=False), "rooms"] = np.nan
-    T = X["age"].to_numpy()[None, :] / 30 + rng.normal(size=(S, n))
-    return X, T, rng
+    X = household_covariates(n, rng, n_missing_rooms=20)
+    return X, draws_around(X["age"].to_numpy() / 30, S, rng, noise=1.0, shared=0.0), rng
 
 
 def test_every_table_of_every_summary_has_the_documented_columns():

@@ -1,10 +1,16 @@
 """Write a folder of tables, figures, ``report.html`` and ``provenance.json`` from a :class:`SummaryBundle`."""
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 from ..core.validate import SummaryError, check_interval, check_level
 from ..summaries.bundle import SummaryBundle
+from .. import figures as F
+from ..figures.static import BrowserNotFoundError, find_browser
+from .provenance import provenance
+from .report import write_report
+from .tables import export_tables
 
 __all__ = ["write_summary_folder", "check_output_folder", "FIGURE_FORMATS"]
 
@@ -13,8 +19,21 @@ FIGURE_FORMATS = ("svg", "pdf", "png")
 
 
 def check_output_folder(out_dir: Path, overwrite: bool) -> None:
+    """Refuse an output folder that cannot be written, before any computation.
+
+    Refused: a path that is a file, a path below a file, a folder whose nearest existing
+    parent is not writable, and (unless ``overwrite``) an existing non-empty folder.
+    """
+    out_dir = Path(out_dir)
     if out_dir.exists() and not out_dir.is_dir():
         raise FileExistsError(f"{out_dir} exists and is not a folder; choose another output folder.")
+    parent = out_dir if out_dir.exists() else out_dir.parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if parent.exists() and not parent.is_dir():
+        raise FileExistsError(f"{out_dir} is below {parent}, which is a file, not a folder; choose another output folder.")
+    if parent.exists() and not os.access(parent, os.W_OK | os.X_OK):
+        raise PermissionError(f"{out_dir} cannot be created: {parent} is not writable; choose another output folder.")
     if out_dir.is_dir() and any(out_dir.iterdir()) and not overwrite:
         raise FileExistsError(
             f"Output folder {out_dir} already exists and is not empty; nothing was written. "
@@ -38,9 +57,6 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
     An existing non-empty folder is refused unless ``overwrite=True``; every file is written
     atomically. Returns the written paths.
     """
-    from .provenance import provenance
-    from .tables import export_tables
-    from .report import write_report
 
     level = check_level(level)
     interval = check_interval(interval)
@@ -56,7 +72,6 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
                                 digits=digits, title=title or f"Posterior summary: {bundle.draws.label}",
                                 overwrite=overwrite))
     if figures == "auto":
-        from ..figures.static import BrowserNotFoundError, find_browser
         try:
             find_browser()
         except BrowserNotFoundError as exc:
@@ -69,7 +84,6 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
 
 
 def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -> list[Path]:
-    from .. import figures as F
 
     bad = [f for f in formats if f not in FIGURE_FORMATS]
     if bad:

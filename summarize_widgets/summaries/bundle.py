@@ -62,7 +62,7 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         Depth the tree is grown to (default ``max(depth, 4)``), so summary R^2 is shown for every depth.
     min_size, columns
         Passed to :func:`summarize_tree` (``columns`` also to the additive and linear summaries).
-    groups : mapping label -> query, optional
+    groups : mapping label -> query (:mod:`summarize_widgets.core.query`), optional
         Pre-specified groups (:func:`summarize_groups`).
     additive, linear : bool, default True
         Whether to compute these summaries.
@@ -112,7 +112,8 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
     # ... then project the draws onto all of them in ONE pass.
     results = dict(zip(plans, project(draws, list(plans.values()), progress=tick)))
     bundle = SummaryBundle(draws=draws, tree=results["tree"].at_depth(depth), groups=results.get("groups"),
-                           linear=results.get("linear"), additive=results.get("additive"), errors=errors)
+                           linear=results.get("linear"), additive=results.get("additive"), errors=errors,
+                           notes=list(draws.notes))  # what construction decided (an id column matched or excluded)
     return bundle
 
 

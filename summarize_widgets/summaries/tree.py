@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 from sklearn.tree import DecisionTreeRegressor
 
+from ..core.draws import EffectDraws
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
 from .projection import SummaryPlan, checked_r2, project, r2_note
 from ..core.passes import LeafSums
@@ -467,7 +468,6 @@ class TreeSummary(SummaryResult):
             At the current depth, every depth available; one pass over ``draws``, no refit.
             Applied to the draws the tree was grown on, it reproduces this summary exactly.
         """
-        from ..core.draws import EffectDraws
         from .compare import check_same_units
 
         if not isinstance(draws, EffectDraws):
