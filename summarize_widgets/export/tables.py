@@ -132,7 +132,7 @@ def to_latex(df, *, caption=None, label=None, digits: int | None = None, provena
     # Many number columns leave a rule column too narrow to read: the rule then gets its own
     # full-width line under its subgroup's numbers.
     as_rows = wrap is not None and lay.rows and lay.rows[0][wrap][0] in ("rule", "text") and (
-        rules == "rows" or (rules == "auto" and len(cols) - 2 > _MAX_NUMBER_COLUMNS and not landscape))
+        rules == "rows" or (rules == "auto" and len(cols) - 2 > _MAX_NUMBER_COLUMNS * _width_factor(width, landscape)))
     if as_rows:
         keep = [k for k in range(len(cols)) if k != wrap]
         spec = "@{\\extracolsep{\\fill}}" + "".join(cols[k] if cols[k] != "X" else "l" for k in keep)
@@ -174,6 +174,13 @@ def to_latex(df, *, caption=None, label=None, digits: int | None = None, provena
 
 
 _MAX_NUMBER_COLUMNS = 5
+
+
+def _width_factor(width: str, landscape: bool) -> float:
+    """How wide the table is relative to a portrait text width (``0.7\\linewidth`` -> 0.7; landscape ~1.4)."""
+    m = re.fullmatch(r"\s*([0-9.]*)\s*\\(?:linewidth|textwidth|columnwidth)\s*", width)
+    factor = float(m.group(1)) if m and m.group(1) else 1.0
+    return factor * (1.4 if landscape else 1.0)
 _SIZES = ("normalsize", "small", "footnotesize", "scriptsize", "tiny")
 
 
@@ -189,12 +196,30 @@ def _latex_header(text: str, align: str) -> str:
     return r"\begin{tabular}[b]{@{}" + col + "@{}}" + a + r"\\" + b + r"\end{tabular}"
 
 
+_BREAK = "\ue000"  # a private-use character marking where a long word may break
+_LONG_RUN = re.compile(r"[^\s]{13,}")
+
+
+def _breakable(text: str) -> str:
+    """Mark break points inside words of 13+ characters: after ``_ / . ( ) - ,`` and at least
+    every 10 characters, so a long covariate name cannot run out of its column."""
+    def mark(m):
+        out, since = [], 0
+        for ch in m.group(0):
+            out.append(ch)
+            since += 1
+            if ch in "_/.()-," or since >= 10:
+                out.append(_BREAK)
+                since = 0
+        return "".join(out).rstrip(_BREAK)
+    return _LONG_RUN.sub(mark, str(text).replace(_BREAK, ""))
+
+
 def _latex_cell(cell, digits) -> str:
-    text = format_cell(cell, digits, "tex")
     if cell[0] in ("rule", "text"):
-        # Let long names break after an underscore, and sets after their commas.
-        text = text.replace(r"\_", r"\_\penalty5000{}")  # a break only where nothing else fits
-    return text
+        cell = (cell[0], _breakable(cell[1]), *cell[2:])
+    # a break there only where nothing else fits
+    return format_cell(cell, digits, "tex").replace(_BREAK, r"\penalty5000{}")
 
 
 def _latex_note(note: str) -> str:
