@@ -505,14 +505,15 @@ def _simulate_households(n: int, rng: np.random.Generator) -> pd.DataFrame:
 def _mask(study: "RetrofitStudy", mask) -> np.ndarray:
     n = study.true_itt_outcome.size
     if isinstance(mask, str):
+        from ..core.query import query_mask
+
         try:
-            hit = study.covariates.eval(mask)
-        except Exception as exc:  # noqa: BLE001 - any parse error is the user's query
-            raise SummaryError(f"`mask` query {mask!r} could not be evaluated on the covariates: {exc}") from exc
-        mask = hit
+            mask = query_mask(study.covariates, mask)  # the whitelisted grammar: user text is data, never code
+        except SummaryError as exc:
+            raise SummaryError(f"`mask`: {exc}") from None
     m = np.asarray(mask)
     if m.dtype != bool or m.shape != (n,):
-        raise SummaryError(f"`mask` must be a boolean array of shape ({n},) or a pandas query string; got dtype {m.dtype}, shape {m.shape}.")
+        raise SummaryError(f"`mask` must be a boolean array of shape ({n},) or a query string; got dtype {m.dtype}, shape {m.shape}.")
     if not m.any():
         raise SummaryError("`mask` selects no household; a subgroup average needs at least one.")
     return m
@@ -590,7 +591,7 @@ class RetrofitStudy:
         Parameters
         ----------
         mask : array of bool, shape (n,), or str
-            A boolean selection or a pandas query on :attr:`covariates`
+            A boolean selection or a query (:mod:`summarize_widgets.core.query`) on :attr:`covariates`
             (for example ``"tenure == 'renter' and baseline_bill > 200"``).
         """
         return float(self.true_itt_outcome[_mask(self, mask)].mean())
