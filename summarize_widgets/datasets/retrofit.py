@@ -123,6 +123,8 @@ __all__ = [
 FUELS = ("gas", "oil", "electric", "heat_pump")
 TENURES = ("owner", "renter")
 REGIONS = ("central", "north", "south", "east", "west")
+#: Unit of the outcome and of every effect on it (a lower bill is better: negative effects are savings).
+BILL_UNIT = "currency units per month"
 #: Knots of the natural cubic spline in the baseline bill (currency units/month).
 BILL_KNOTS = (70.0, 110.0, 160.0, 230.0, 340.0)
 #: Standard deviation of the outcome noise (currency units/month).
@@ -576,11 +578,12 @@ class RetrofitStudy:
 
     def effect_draws(self, label: str = "offer effect on winter bill") -> EffectDraws:
         """The ITT outcome draws as plain effect draws, shape (n_draws, n)."""
-        return EffectDraws(self.itt_outcome_draws, self.covariates, label=label)
+        return EffectDraws(self.itt_outcome_draws, self.covariates, label=label, unit=BILL_UNIT, better="lower")
 
     def complier_draws(self, label: str = "retrofit effect among compliers (LATE)") -> EffectDraws:
         """Complier-weighted draws: subgroup effects are ``sum ITT_y / sum pi`` per draw."""
-        return EffectDraws.from_itt(self.itt_outcome_draws, self.itt_uptake_draws, self.covariates, label=label)
+        return EffectDraws.from_itt(self.itt_outcome_draws, self.itt_uptake_draws, self.covariates, label=label,
+                                    unit=BILL_UNIT, better="lower")
 
     def true_subgroup_mean(self, mask) -> float:
         """True average ``ITT_y`` over the selected households.

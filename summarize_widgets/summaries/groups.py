@@ -61,12 +61,18 @@ class GroupSummary(SummaryResult):
 
     def _info(self) -> pd.DataFrame:
         wbar = self.draws.mean_weights
-        return pd.DataFrame({
+        out = pd.DataFrame({
             "subgroup": self.labels,
+            "label": self.labels,
             "rule": self.queries,
             "n_units": self._masks.sum(axis=0).astype(int),
             "share": (wbar @ self._masks) / wbar.sum(),
         })
+        if self.draws.is_complier_weighted:  # share of units by the unit weights; of compliers by the uptake
+            v = self.draws.unit_weights
+            out["complier_share"] = out["share"]
+            out["share"] = (v @ self._masks) / v.sum()
+        return out
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """Same columns as :meth:`TreeSummary.table`; ``subgroup`` is the label, ``rule`` the query."""
@@ -77,7 +83,7 @@ class GroupSummary(SummaryResult):
     def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
         """Every pair of groups (the "All units" row included): difference, interval, P(A > B)."""
         return contrast_table(self.group_draws, self.labels, self.queries, level=level, interval=interval,
-                              subgroup=subgroup, attrs=self._attrs(),
+                              subgroup=subgroup, attrs=self._attrs(), labels=self.labels,
                               stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     def apply_to(self, draws, *, progress=None) -> "GroupSummary":
