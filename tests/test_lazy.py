@@ -7,7 +7,7 @@ import pytest
 import summarize_widgets as sw
 from summarize_widgets.core import lazy
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 da = pytest.importorskip("dask.array")
 zarr = pytest.importorskip("zarr")

@@ -6,7 +6,7 @@ import pytest
 import summarize_widgets as sw
 from summarize_widgets.summaries import additive, projection
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 
 @pytest.fixture(scope="module")

@@ -149,6 +149,14 @@ def _same_matrix(a, b) -> bool:
         return True
     if a.shape != b.shape:
         return False
+    if not (isinstance(a, np.ndarray) and isinstance(b, np.ndarray)):  # lazy: same graph, or equal first draws
+        if getattr(a, "name", None) is not None and getattr(a, "name", None) == getattr(b, "name", None):
+            return True
+        if not np.array_equal(np.asarray(a[:1]), np.asarray(b[:1])):
+            return False
+        import dask.array as da
+
+        return bool(da.all(da.asarray(a) == da.asarray(b)).compute())
     if (a.__array_interface__["data"][0] == b.__array_interface__["data"][0] and a.strides == b.strides):
         return True
     if not np.array_equal(a[0], b[0]):

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from .lazy import is_lazy, lazy_matrix
 from .validate import SummaryError, format_names
 
 __all__ = ["DrawInput", "as_draw_input", "match_units", "unit_key", "align_weights", "id_like_columns"]
@@ -145,6 +146,9 @@ def _from_dataarray(da, name: str) -> DrawInput:
             f"`{name}` must be 2-D (draws x units) or have dims (chain, draw, <unit>); got dims {tuple(dims)}."
         )
     labels = pd.Index(da.indexes[unit_dim]) if unit_dim in da.indexes else None
+    if is_lazy(da):  # opened with chunks (zarr, netCDF): stays on disk, every pass is a Dask computation
+        arr, _ = lazy_matrix(da.data, name)
+        return DrawInput(arr, chains, labels)
     arr = da.to_numpy()  # one read of the data (a view for NumPy-backed arrays)
     if arr.ndim == 3:
         arr = arr.reshape(arr.shape[0] * arr.shape[1], arr.shape[2])
@@ -178,6 +182,9 @@ def as_draw_input(values, name: str, variable: str | None = None) -> DrawInput:
         return _from_dataarray(values, name)
     if isinstance(values, pd.DataFrame):
         return DrawInput(values.to_numpy(), None, pd.Index(values.columns))
+    if is_lazy(values):  # a Dask or zarr array: never loaded
+        arr, chains = lazy_matrix(values, name)
+        return DrawInput(arr, chains, None)
     if isinstance(values, np.ndarray):
         arr = values
     else:
