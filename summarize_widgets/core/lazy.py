@@ -17,7 +17,7 @@ from .validate import SummaryError
 __all__ = ["is_lazy", "lazy_matrix", "run_lazy_pass", "lazy_source", "LAZY_BLOCK_BYTES"]
 
 #: Target bytes of one chunk of draws in a lazy pass (chunks of the store are merged up to it).
-LAZY_BLOCK_BYTES = 256 * 2**20
+LAZY_BLOCK_BYTES = 128 * 2**20
 
 
 def _dask_array_type():

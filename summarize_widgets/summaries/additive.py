@@ -364,6 +364,22 @@ def _compile_rows(X: np.ndarray, size: int) -> np.ndarray:
     return np.unique(np.concatenate(picked))
 
 
+class _FeatureRows:
+    """Rows ``a:b`` of the frozen model matrix, from features rebuilt on first use (see ChunkedDesign)."""
+
+    def __init__(self, gam, covariates, specs, keep):
+        self.gam, self.covariates, self.specs, self.keep = gam, covariates, specs, keep
+        self.X = None
+
+    def __call__(self, a, b):
+        if self.X is None:
+            self.X = _features(self.covariates, self.specs, self.keep)[0]
+        return model_matrix(self.gam, self.X[a:b])
+
+    def release(self):
+        self.X = None
+
+
 def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_size: int = 50) -> SummaryPlan:
     """The fit-structure step of :func:`summarize_additive` (no pass over the draws).
 
@@ -407,7 +423,8 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
         z_target = Q.T @ (sw * target)
         mapping = {"qr": (Q, R)}
     else:
-        design = ChunkedDesign(lambda a, b: model_matrix(gam, X[a:b]), n_kept, p)
+        # kept for fitted values: rebuilds the features from the covariates when asked (not kept beside them)
+        design = ChunkedDesign(_FeatureRows(gam, draws.covariates, specs, keep), n_kept, p)
         R, Hk = weighted_map(lambda a, b: model_matrix(gam, X[a:b]), sw, p)
         z_target = sum(Hk[a:a + projection.CHUNK_UNITS].T.astype(np.float64) @ (wk * target)[a:a + projection.CHUNK_UNITS]
                        for a in range(0, n_kept, projection.CHUNK_UNITS))
@@ -425,13 +442,18 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
     penalty = penalty + _PYGAM_RIDGE * np.eye(p)
     proj = FrozenProjection(draws, None, keep, penalty=penalty, intercept=p - 1, **mapping)
     del mapping
-    bbar = (design.column_sums(wk) if isinstance(design, ChunkedDesign) else np.asarray(design.T @ wk).ravel()) / wk.sum()
+    if isinstance(design, ChunkedDesign):
+        bsum = sum(np.asarray(model_matrix(gam, X[a:a + projection.CHUNK_UNITS]).T @ wk[a:a + projection.CHUNK_UNITS]).ravel()
+                   for a in range(0, n_kept, projection.CHUNK_UNITS))
+    else:
+        bsum = np.asarray(design.T @ wk).ravel()
+    bbar = bsum / wk.sum()
     C, C_missing = {}, {}
     for j, item in enumerate(info):
         name = item["spec"].name
         idx = gam.terms.get_coef_indices(j)
         if item["spec"].kind == "numeric":
-            grid = _grid(item["observed"], grid_size)
+            grid = _grid(item.pop("observed"), grid_size)  # n values: not kept
             values = grid
         else:
             grid = np.arange(len(item["labels"]), dtype=np.float64)

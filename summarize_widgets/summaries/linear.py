@@ -321,8 +321,11 @@ def plan_linear(draws, *, columns=None) -> SummaryPlan:
     cols = check_columns(columns, list(draws.covariates.columns))
     specs = classify_columns(draws.covariates, cols)
     B, terms, fill = linear_design(draws.covariates, specs)
-    Bk = B[keep]
+    Bk = B if keep.all() else B[keep]
+    del B
     proj = FrozenProjection(draws, Bk, keep, intercept=0, terms=terms)
+    if Bk.nbytes > projection.FLOAT64_MAP_BYTES:  # kept for fitted_values only: float32 halves it
+        Bk = Bk.astype(np.float32)
     settings = {
         "columns": cols,
         "terms": list(terms),

@@ -199,12 +199,7 @@ class ChunkedDesign:
         for a in range(0, self.shape[0], CHUNK_UNITS):
             b = min(a + CHUNK_UNITS, self.shape[0])
             out[a:b] = self._rows(a, b) @ M
-        return out
-
-    def column_sums(self, w: np.ndarray) -> np.ndarray:
-        """``B' w`` (p,)."""
-        out = np.zeros(self.shape[1])
-        for a in range(0, self.shape[0], CHUNK_UNITS):
-            b = min(a + CHUNK_UNITS, self.shape[0])
-            out += np.asarray(self._rows(a, b).T @ w[a:b]).ravel()
+        release = getattr(self._rows, "release", None)
+        if release is not None:  # whatever the rows were built from is dropped again
+            release()
         return out

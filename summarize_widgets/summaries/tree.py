@@ -673,7 +673,9 @@ def plan_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns
             e = _bin_edges(numeric_values(draws.covariates[spec.name]), n_bins)
             if e is not None:
                 edges[spec.name] = e
-    X = _encode(draws.covariates, specs, rank, edges, codes=all_codes)
+    # float32 is what scikit-learn's trees split on anyway (bin numbers and category ranks are exact in it);
+    # it halves the matrix kept for rules on millions of units.
+    X = _encode(draws.covariates, specs, rank, edges, codes=all_codes).astype(np.float32)
     X_raw = np.column_stack([numeric_values(draws.covariates[sp.name]) if sp.kind == "numeric" else X[:, j]
                              for j, sp in enumerate(specs)])
 
