@@ -1,6 +1,5 @@
 """Heterogeneity evidence: the posterior of the spread of effects and its verdict (invented data)."""
 import numpy as np
-import pandas as pd
 import pytest
 
 import summarize_widgets as sw
