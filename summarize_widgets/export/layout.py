@@ -141,6 +141,9 @@ _KINDS = {
     "linear": ["term", "mean", "lower", "upper", "prob_positive"],
     "curves": ["covariate", "x", "mean", "lower", "upper", "lower_joint", "upper_joint"],
     "fit_r2": ["depth", "n_subgroups", "mean", "lower", "upper"],
+    "evidence": ["quantity", "mean", "lower", "upper", "prob_above"],
+    "size_path": ["step", "size", "added", "mean", "lower", "upper", "shortfall", "prob_within", "chosen"],
+    "stability": ["covariate", "first_split", "in_summary"],
 }
 
 
@@ -154,7 +157,7 @@ def table_kind(df, kind):
         if missing:
             raise SummaryError(f"`df` lacks the columns a {kind!r} table needs: {missing}; it has {list(df.columns)}.")
         return kind
-    for name in ("contrasts", "curves", "fit_r2", "subgroups", "linear"):
+    for name in ("size_path", "stability", "evidence", "contrasts", "curves", "fit_r2", "subgroups", "linear"):
         if all(c in df.columns for c in _KINDS[name]):
             return name
     raise SummaryError(
@@ -232,6 +235,8 @@ def _layout(df: pd.DataFrame, kind: str) -> _Layout:
                          ("interval", (r.lower_joint, r.upper_joint))])
         notes.append(_interval_note(df, "the additive summary's effect at each value")
                      + " Simultaneous intervals cover a covariate's whole curve jointly.")
+    elif kind in ("evidence", "size_path", "stability"):
+        headers, rows, notes = _evidence_layout(df, kind, iv)
     else:  # fit_r2
         headers = [("Depth", "Depth", "r"), ("Subgroups", "Subgroups", "r"), ("Summary R\u00b2", "Summary $R^2$", "r"),
                    (iv, escape_latex(iv), "c")]
@@ -241,6 +246,50 @@ def _layout(df: pd.DataFrame, kind: str) -> _Layout:
     if "mcse" in df.columns and len(df):
         notes.append(f"Largest Monte Carlo standard error of a mean: {float(np.nanmax(df['mcse'])):.2g}.")
     return _Layout(headers, rows, notes)
+
+
+def _evidence_layout(df: pd.DataFrame, kind: str, iv: str):
+    """Headers, rows and notes of the evidence tables (heterogeneity, size paths, stability)."""
+    rows, notes = [], []
+    if kind == "evidence":
+        c = df.attrs.get("threshold")
+        ptxt = f"P(> {c:.3g})" if c is not None else "P(> c)"
+        headers = [("Quantity", "Quantity", "l"), ("Mean", "Mean", "r"), (iv, escape_latex(iv), "c"),
+                   (ptxt, escape_latex(ptxt), "r")]
+        for r in df.itertuples(index=False):
+            rows.append([("text", r.quantity), ("num", r.mean), ("interval", (r.lower, r.upper)), ("num", r.prob_above)])
+        notes.append(_interval_note(df, "each quantity") + f" {ptxt}: posterior probability that it exceeds the threshold.")
+        if df.attrs.get("threshold_rule"):
+            notes.append(f"Threshold: {df.attrs['threshold_rule']}.")
+    elif kind == "size_path":
+        tree = str(df.attrs.get("summary", "")).endswith("tree")
+        size = ("Subgroups", "Subgroups", "r") if tree else ("Terms", "Terms", "r")
+        tol = df.attrs.get("tolerance")
+        within = f"P(shortfall ≤ {tol:g})" if tol is not None else "P(within)"
+        headers = [size, ("Step", "Step", "l"), ("Summary R²", "Summary $R^2$", "r"), (iv, escape_latex(iv), "c"),
+                   ("Shortfall", "Shortfall", "r"), (within, escape_latex(within).replace("≤", "$\\leq$"), "r"),
+                   ("Smallest within tolerance", "Smallest within tolerance", "c")]
+        for r in df.itertuples(index=False):
+            rows.append([("int", r.size), ("text", r.added), ("num", r.mean), ("interval", (r.lower, r.upper)),
+                         ("num", r.shortfall), ("num", r.prob_within), ("text", "yes" if r.chosen else "")])
+        notes.append(_interval_note(df, "the summary R² of each nested summary")
+                     + " Shortfall: posterior mean of the largest summary's R² minus this one's, draw by draw.")
+    else:  # stability
+        depths = [c for c in df.columns if str(c).startswith("depth_")]
+        headers = [("Covariate", "Covariate", "l"), ("First split", "First split", "r")]
+        headers += [(f"Depth {c[6:]}", f"Depth {c[6:]}", "r") for c in depths]
+        headers.append(("Summary tree splits at depth", "Summary tree splits at depth", "l"))
+        for r in df.to_dict("records"):
+            cells = [("text", r["covariate"]), ("num", r["first_split"])]
+            cells += [("text", "") if pd.isna(r[c]) else ("num", r[c]) for c in depths]
+            cells.append(("text", r["in_summary"]))
+            rows.append(cells)
+        n = df.attrs.get("n_fits")
+        notes.append(f"Share of {n if n is not None else 'the'} trees refitted to single posterior draws that split on "
+                     "each covariate first, and at each depth.")
+    if df.attrs.get("message"):
+        notes.append(str(df.attrs["message"]))
+    return headers, rows, notes
 
 
 def _num(x, digits: int, minus: str) -> str:

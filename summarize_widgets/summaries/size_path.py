@@ -250,6 +250,6 @@ def _message(kind, r2, chosen, tolerance, what, terms) -> str:
     full, pick = r2[ok, -1].mean(), r2[ok, chosen].mean()
     largest = "full linear summary" if kind == "linear" else "deepest tree"
     listed = f" ({', '.join(terms)})" if terms else ""
-    return (f"Smallest {kind} summary within {tolerance:.2g} of the {largest}'s summary R^2: {what}{listed}, "
-            f"R^2 {pick:.2f} against {full:.2f} (posterior means). The summaries describe the model's posterior, "
+    return (f"Smallest {kind} summary within {tolerance:.2g} of the {largest}'s summary R\u00b2: {what}{listed}, "
+            f"R\u00b2 {pick:.2f} against {full:.2f} (posterior means). The summaries describe the model's posterior, "
             "not a true model.")
