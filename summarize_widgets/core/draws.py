@@ -129,6 +129,18 @@ def _check_weights(weights, n_draws: int, n_units: int, name: str = "weights"):
     return w
 
 
+def _check_source(source, arr) -> str:
+    """The given run name, or an id of the memory behind ``arr`` (shared by views of one array)."""
+    if source is None:
+        base = arr
+        while isinstance(getattr(base, "base", None), np.ndarray):
+            base = base.base
+        return f"memory:{base.__array_interface__['data'][0]:x}:{arr.shape[0]}"
+    if not isinstance(source, str) or not source.strip():
+        raise SummaryError(f"`source` must be a non-empty string naming the sampler run; got {source!r}.")
+    return source
+
+
 class EffectDraws:
     """Posterior draws of unit-level effects, with the units' covariates.
 
@@ -150,6 +162,13 @@ class EffectDraws:
         Taken from the input's dims when it has a ``chain`` dim; 1 otherwise.
     label : str, default "effect"
         What the values are (used in tables and figure titles).
+    source : str, optional
+        Names the sampler run the draws come from (for example a file name). Two draw
+        sets with the same ``source`` and the same number of draws are taken as paired
+        (draw ``s`` of one and draw ``s`` of the other come from the same sampler state)
+        when two posteriors are compared. Default: an id of the array's memory, so draws
+        built on the very same array (for example the outcome ITT of complier-weighted
+        draws and the plain ITT draws) are recognised as paired.
 
     Notes
     -----
@@ -159,11 +178,13 @@ class EffectDraws:
     used by every summary R^2 (METHOD.md section 3).
     """
 
-    def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect"):
+    def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect", source=None):
         arr, dim_chains = _as_matrix(values, "values")
         cov = check_covariates(covariates)
         _check_shape(arr, cov.shape[0], "values")
         w = _check_weights(weights, arr.shape[0], arr.shape[1])
+        self._source = _check_source(source, arr)
+        self._unit_ids = covariates.index.copy() if isinstance(covariates, pd.DataFrame) else None
         self._init(arr, None, w, cov, chains if chains is not None else dim_chains, label, "values")
 
     # -- construction ---------------------------------------------------------------
@@ -186,7 +207,8 @@ class EffectDraws:
         self._scan(name)
 
     @classmethod
-    def from_itt(cls, outcome_itt, uptake_itt, covariates, *, weights=None, chains=None, label: str = "LATE"):
+    def from_itt(cls, outcome_itt, uptake_itt, covariates, *, weights=None, chains=None, label: str = "LATE",
+                 source=None):
         """Complier-weighted draws for an encouragement (instrument) design.
 
         Parameters
@@ -196,8 +218,8 @@ class EffectDraws:
         uptake_itt : array-like, shape (n_draws, n_units)
             Per-draw unit-level effect of the offer on uptake (the complier share,
             non-negative under monotonicity).
-        covariates, chains, label
-            As for :class:`EffectDraws`.
+        covariates, chains, label, source
+            As for :class:`EffectDraws` (the default ``source`` is that of ``outcome_itt``).
         weights : None or array-like, shape (n_units,)
             Fixed unit weights ``v_i``, multiplying both sums.
 
@@ -221,6 +243,8 @@ class EffectDraws:
             )
         w = _check_weights(weights, num.shape[0], num.shape[1])
         self = cls.__new__(cls)
+        self._source = _check_source(source, num)
+        self._unit_ids = covariates.index.copy() if isinstance(covariates, pd.DataFrame) else None
         self._init(num, den, w, cov, chains if chains is not None else (c1 or c2), label, "outcome_itt")
         return self
 
@@ -459,6 +483,16 @@ class EffectDraws:
     def overall(self) -> np.ndarray:
         """Per draw, the weighted average effect over all units, shape (n_draws,)."""
         return self._wtsum / self._wsum
+
+    @property
+    def source(self) -> str:
+        """Which sampler run the draws come from (given, or an id of the array's memory); read-only."""
+        return self._source
+
+    @property
+    def unit_ids(self) -> pd.Index:
+        """The index of the covariate table as given (``covariates`` itself is renumbered 0..n-1)."""
+        return self._unit_ids
 
     @property
     def draws_per_chain(self) -> int:

@@ -212,6 +212,31 @@ class AdditiveSummary(ProjectedFit):
         draws = self.coef_draws @ np.column_stack([self._C_missing[k] for k in names])
         return pd.DataFrame({"covariate": names, **summarize_draws(draws, level, interval)})
 
+    def apply_to(self, draws, *, progress=None) -> "AdditiveSummary":
+        """The same smooth terms (basis, smoothing and grids frozen) projected from other draws.
+
+        ``draws`` (EffectDraws) must describe the same units (same covariate index, order and
+        values in this summary's columns) and give positive weight to the same units. The
+        smoothing chosen on the first posterior mean is kept (not searched again), so the
+        frozen smoother is the same; applied to the draws summarized, this reproduces the
+        summary exactly.
+        """
+        from .compare import check_same_units
+
+        keep = check_draws(draws)
+        check_same_units(self.draws, draws, self.columns)
+        if not np.array_equal(keep, self._keep):
+            raise SummaryError(
+                f"`draws` gives zero weight to {int((~keep).sum())} units and this summary to {int((~self._keep).sum())} "
+                "(not the same units); the frozen basis needs the same units with positive weight."
+            )
+        out = summarize_additive(draws, columns=self.columns, n_splines=self.settings["n_splines"], lam=dict(self.lam),
+                                 grid_size=self.settings["grid_size"], progress=progress)
+        for key in ("lam_source", "criterion"):
+            out.settings[key] = self.settings[key]
+        out.settings["structure_from"] = self.settings.get("structure_from", self.label)
+        return out
+
     def __repr__(self) -> str:
         return f"AdditiveSummary('{self.label}': {len(self.columns)} covariates, {self.coef_draws.shape[0]} draws)"
 
@@ -378,5 +403,8 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
         "weights": "posterior-mean weight per unit (per-draw weights enter the numerator only)"
         if draws.has_draw_weights else ("per unit" if draws._weights is not None else "none"),
         "complier_weighted": draws.is_complier_weighted,
+        "structure_from": draws.label,
     }
-    return AdditiveSummary(coef, r2, info, C, C_missing, design, keep, bbar, lam_used, draws.label, settings)
+    out = AdditiveSummary(coef, r2, info, C, C_missing, design, keep, bbar, lam_used, draws.label, settings)
+    out.draws = draws  # the draws summarized (a reference, not a copy): apply_to and comparisons use it
+    return out

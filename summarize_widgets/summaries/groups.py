@@ -73,6 +73,21 @@ class GroupSummary:
         return contrast_table(self.group_draws, self.labels, self.queries, level=level, kind=interval,
                               subgroup=subgroup, attrs={"label": self.draws.label, "kind": "groups"})
 
+    def apply_to(self, draws, *, progress=None) -> "GroupSummary":
+        """The same groups (memberships frozen) with effects computed from other draws of the same units.
+
+        ``draws`` (EffectDraws) must describe the same units: same covariate index, in the same
+        order, with the same covariate values. Applied to the draws these groups were computed
+        from, it reproduces this summary exactly.
+        """
+        from ..core.draws import EffectDraws
+        from .compare import check_same_units
+
+        if not isinstance(draws, EffectDraws):
+            raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
+        check_same_units(self.draws, draws, None)
+        return _project(draws, list(self.labels), list(self.queries), self._masks.astype(np.float64), progress)
+
     def __repr__(self) -> str:
         return f"GroupSummary of '{self.draws.label}': {', '.join(self.labels)}"
 
@@ -113,7 +128,11 @@ def summarize_groups(draws, groups: Mapping[str, str], level: float = 0.95, *, p
         labels.append(label)
         queries.append(query)
         masks.append(m)
-    M = np.column_stack(masks).astype(np.float64)
+    return _project(draws, labels, queries, np.column_stack(masks).astype(np.float64), progress)
+
+
+def _project(draws, labels, queries, M, progress=None) -> GroupSummary:
+    """One pass: every group's per-draw effect from the membership matrix ``M`` (n_units, n_groups)."""
     red = LinearMap(M, with_weights=draws.has_draw_weights)
     run_pass(draws, [red], progress=progress)
     if draws.has_draw_weights:

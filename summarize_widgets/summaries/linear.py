@@ -226,6 +226,22 @@ class LinearSummary(ProjectedFit):
                           "reference": dict(self.reference), "kind": "linear"})
         return out
 
+    def apply_to(self, draws, *, progress=None) -> "LinearSummary":
+        """The same linear terms (design frozen) projected from other draws of the same units.
+
+        ``draws`` (EffectDraws) must describe the same units: same covariate index, in the same
+        order, with the same values in this summary's columns. The design (terms, reference
+        categories, fill values of missing numerics) depends on the covariates only, so it is
+        the same design; applied to the draws summarized, this reproduces the summary exactly.
+        """
+        from .compare import check_same_units
+
+        check_draws(draws)
+        check_same_units(self.draws, draws, self.columns)
+        out = summarize_linear(draws, columns=self.columns, progress=progress)
+        out.settings["structure_from"] = self.settings.get("structure_from", self.label)
+        return out
+
     def __repr__(self) -> str:
         return f"LinearSummary('{self.label}': {len(self.terms)} terms, {self.coef_draws.shape[0]} draws)"
 
@@ -273,5 +289,8 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
         "weights": "posterior-mean weight per unit (per-draw weights enter the numerator only)"
         if draws.has_draw_weights else ("per unit" if draws._weights is not None else "none"),
         "complier_weighted": draws.is_complier_weighted,
+        "structure_from": draws.label,
     }
-    return LinearSummary(coef, r2, terms, specs, fill, Bk, keep, draws.label, settings)
+    out = LinearSummary(coef, r2, terms, specs, fill, Bk, keep, draws.label, settings)
+    out.draws = draws  # the draws summarized (a reference, not a copy): apply_to and comparisons use it
+    return out

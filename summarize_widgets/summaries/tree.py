@@ -78,8 +78,10 @@ def _bin_edges(x: np.ndarray, n_bins: int) -> np.ndarray | None:
 class _Fitted:
     """Everything shared by a tree and its truncations (computed once)."""
 
-    def __init__(self, draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, A, W_draw, W_fixed, names_by_rank):
+    def __init__(self, draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, A, W_draw, W_fixed,
+                 names_by_rank, grown_on=None):
         self.draws = draws
+        self.grown_on = draws.label if grown_on is None else grown_on  # label of the draws the tree was grown on
         self.specs = specs
         self.est = est
         self.X = X
@@ -249,6 +251,7 @@ class TreeSummary:
             "n_draws": self._f.draws.n_draws,
             "n_units": self._f.draws.n_units,
             "complier_weighted": self._f.draws.is_complier_weighted,
+            "structure_from": self._f.grown_on,
         }
 
     def depth(self, d: int) -> "TreeSummary":
@@ -419,6 +422,40 @@ class TreeSummary:
         pos = np.searchsorted(f.sk_leaves, sk_leaf)
         anc = self._ancestor_at_depth()
         return pd.Series(anc[f.sk_leaves[pos]], index=covariates.index, name="subgroup")
+
+    def apply_to(self, draws, *, progress=None) -> "TreeSummary":
+        """The same subgroups (this tree, frozen) with effects computed from other draws of the same units.
+
+        Parameters
+        ----------
+        draws : EffectDraws
+            Another posterior for the same units: a second outcome, a second model, the
+            intention-to-treat draws beside complier-weighted ones. Its covariates must have
+            the same index, in the same order, and the same values in the tree's columns.
+        progress : callable(done, total), optional
+
+        Returns
+        -------
+        TreeSummary
+            At the current depth, every depth available; one pass over ``draws``, no refit.
+            Applied to the draws the tree was grown on, it reproduces this summary exactly.
+        """
+        from ..core.draws import EffectDraws
+        from .compare import check_same_units
+
+        if not isinstance(draws, EffectDraws):
+            raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
+        f = self._f
+        check_same_units(f.draws, draws, self.columns)
+        sums = LeafSums(f.unit_leaf, len(f.sk_leaves))
+        run_pass(draws, [sums], progress=progress)
+        W_fixed = None
+        if sums.weights is None:
+            w = draws.weights if draws.weights is not None else np.ones(draws.n_units)
+            W_fixed = np.bincount(f.unit_leaf, weights=w, minlength=len(f.sk_leaves))
+        fitted = _Fitted(draws, f.specs, f.est, f.X, f.X_raw, f.rank, f.edges, f.max_depth, f.min_size, f.unit_leaf,
+                         sums.sums, sums.weights, W_fixed, f.names_by_rank, grown_on=f.grown_on)
+        return TreeSummary(fitted, self.current_depth)
 
     def _ancestor_at_depth(self) -> np.ndarray:
         f = self._f
