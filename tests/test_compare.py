@@ -34,7 +34,7 @@ def test_tree_applied_to_its_own_draws_is_the_same_summary(tree, late):
     pd.testing.assert_frame_equal(again.table(), tree.table())
     pd.testing.assert_frame_equal(again.nodes(), tree.nodes())
     for d in (1, 2):
-        pd.testing.assert_frame_equal(again.depth(d).table(), tree.depth(d).table())
+        pd.testing.assert_frame_equal(again.at_depth(d).table(), tree.at_depth(d).table())
     np.testing.assert_array_equal(again.fit_r2, tree.fit_r2)
 
 

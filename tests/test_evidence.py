@@ -42,7 +42,7 @@ def test_no_heterogeneity_concentrates_near_zero_and_says_so():
 
 def test_strong_heterogeneity_excludes_zero_and_says_so():
     d, X = _strong()
-    tree = sw.summarize_tree(d, max_depth=2).depth(1)
+    tree = sw.summarize_tree(d, max_depth=2).at_depth(1)
     ev = heterogeneity_evidence(d, tree)
     tab = ev.table()
     # Two blocks one unit apart: sd of unit effects is about 0.5, far from zero.

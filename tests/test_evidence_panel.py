@@ -27,7 +27,7 @@ def test_explorer_mounts_the_evidence_tab_and_follows_the_depth(draws):
     text = panel.summary_html.value
     expected = heterogeneity_evidence(draws, ex.tree).message
     assert "Heterogeneity supported" in text and "Tree size" in text and "Linear summary size" in text
-    assert f"the {len(ex.tree.leaf_ids)} subgroups of the tree at depth {ex.tree.current_depth}" in expected
+    assert f"the {len(ex.tree.leaf_ids)} subgroups of the tree at depth {ex.tree.depth}" in expected
     assert "oil<b>" not in text and "fuel = oil&lt;b&gt;" in text  # the linear path's term, escaped
     ex._tabs.selected_index = names.index("evidence")
     ex.apply(depth=1)
@@ -44,7 +44,7 @@ def test_stability_runs_only_on_request_and_is_kept_per_tree(draws):
     assert panel.wait(30)
     assert "First split supported" in panel.stability_html.value
     assert "Splits of 6 trees" in panel.stability_html.value
-    panel.show(tree.depth(1))  # another depth: not checked yet
+    panel.show(tree.at_depth(1))  # another depth: not checked yet
     assert "press the button" in panel.stability_html.value
     panel.show(tree)  # back: the result is kept
     assert "First split supported" in panel.stability_html.value

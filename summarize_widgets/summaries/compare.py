@@ -29,7 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..core.intervals import interval as credible_interval
+from ..core.intervals import credible_interval
 from ..core.intervals import prob_above
 from ..core.validate import SummaryError, check_interval, check_level
 

@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from ..core.design import classify_columns, linear_design
-from ..core.intervals import summarize_draws
+from ..core.stats import summary_columns
 from ..core.validate import SummaryError, check_interval, check_level
 
 __all__ = ["SizePath", "linear_size_path", "tree_size_path", "term_order", "DEFAULT_TOLERANCE"]
@@ -70,27 +70,31 @@ class SizePath:
     order: str
     message: str
     label: str = "effect"
+    n_chains: int = 1
     settings: dict = field(default_factory=dict)
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """One row per step: ``step``, ``size``, ``added``, ``mean``, ``sd``, ``lower``, ``upper`` (summary R^2),
         ``shortfall`` (posterior mean of the full summary's R^2 minus this one's), ``prob_within``
-        (posterior probability that the shortfall is at most ``tolerance``), ``chosen``."""
+        (posterior probability that the shortfall is at most ``tolerance``), ``chosen``, then the Monte
+        Carlo error columns of the R^2 (:mod:`summarize_widgets.core.stats`)."""
         level = check_level(level)
         interval = check_interval(interval)
         ok = ~np.isnan(self.r2_draws).any(axis=1)
         r2 = self.r2_draws[ok]
-        stats = summarize_draws(r2, level, interval)
+        # Draws without heterogeneity (no R^2) are left out; the rest are treated as one chain (as for R^2 by depth).
+        stats = summary_columns(r2, level=level, interval=interval, n_chains=1 if not ok.all() else self.n_chains)
         stats.pop("prob_positive")
         short = r2[:, -1:] - r2
         out = pd.DataFrame({
             "step": np.arange(len(self.steps)),
             "size": self.sizes,
             "added": self.steps,
-            **stats,
+            **{k: stats.pop(k) for k in ("mean", "sd", "lower", "upper")},
             "shortfall": short.mean(axis=0),
             "prob_within": (short <= self.tolerance).mean(axis=0),
             "chosen": np.arange(len(self.steps)) == self.chosen,
+            **stats,
         })
         out.attrs.update({"level": level, "interval": interval, "label": self.label, "summary": f"size_path_{self.kind}",
                           "tolerance": self.tolerance, "order": self.order, "message": self.message})
@@ -215,7 +219,8 @@ def linear_size_path(draws, linear, *, order: str = "lars", tolerance: float = D
     msg = _message("linear", r2, chosen, tolerance, f"{chosen} of {len(path)} terms", names[1:chosen + 1])
     settings = {"summary": "size_path_linear", "order": order, "tolerance": tolerance, "terms": names}
     return SizePath(sizes=sizes, steps=names, r2_draws=r2, chosen=chosen, tolerance=tolerance, kind="linear",
-                    order=order, message=msg, label=draws.label, settings=settings)
+                    order=order, message=msg, label=draws.label, n_chains=draws.n_chains,
+                    settings=settings)
 
 
 def tree_size_path(tree, *, tolerance: float = DEFAULT_TOLERANCE) -> SizePath:
@@ -242,7 +247,8 @@ def tree_size_path(tree, *, tolerance: float = DEFAULT_TOLERANCE) -> SizePath:
     msg = _message("tree", r2, chosen, tolerance, f"depth {depths[chosen]} ({sizes[chosen]} subgroups)", [])
     settings = {"summary": "size_path_tree", "order": "depth", "tolerance": tolerance}
     return SizePath(sizes=sizes, steps=steps, r2_draws=r2, chosen=chosen, tolerance=tolerance, kind="tree",
-                    order="depth", message=msg, label=tree.label, settings=settings)
+                    order="depth", message=msg, label=tree.label,
+                    n_chains=tree.draws.n_chains, settings=settings)
 
 
 def _message(kind, r2, chosen, tolerance, what, terms) -> str:

@@ -33,8 +33,9 @@ import numpy as np
 import pandas as pd
 from sklearn.metrics import adjusted_rand_score
 
-from ..core.intervals import summarize_draws
+from ..core.stats import draw_summary, summary_columns
 from ..core.validate import SummaryError, check_int, check_interval, check_level
+from .evidence import with_prob_above
 from .tree import TreeSummary, fit_cart
 
 __all__ = ["StabilityCheck", "structure_stability", "SUPPORT_SHARE", "NO_SPLIT"]
@@ -140,12 +141,13 @@ class StabilityCheck:
 
     def agreement(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """Posterior of the adjusted Rand index over the refitted draws: ``quantity``, ``mean``, ``sd``,
-        ``lower``, ``upper``, ``prob_above`` (share of draw-trees with index above 0.5)."""
+        ``lower``, ``upper``, ``prob_above`` (share of draw-trees with index above 0.5) and the Monte Carlo
+        error columns (over the refitted draws, taken as one chain)."""
         level = check_level(level)
         interval = check_interval(interval)
-        stats = summarize_draws(self.ari[:, None], level, interval, threshold=0.5)
-        stats["prob_above"] = stats.pop("prob_positive")
-        out = pd.DataFrame({"quantity": ["adjusted Rand index, draw-tree vs summary tree"], **stats})
+        # The fitted draws are a random sample of the posterior draws: treated as one chain.
+        stats = summary_columns(self.ari[:, None], level=level, interval=interval, n_chains=1, threshold=0.5)
+        out = pd.DataFrame({"quantity": ["adjusted Rand index, draw-tree vs summary tree"], **with_prob_above(stats)})
         out.attrs.update({"level": level, "interval": interval, "label": self.label, "summary": "stability",
                           "threshold": 0.5, "n_fits": len(self.ari)})
         return out
@@ -181,7 +183,7 @@ def structure_stability(tree: TreeSummary, *, n_fits: int = 200, seed: int = 0, 
     seed = check_int(seed, "seed", low=0)
     level = check_level(level)
     threads = check_int(threads, "threads", low=1) if threads is not None else max(1, min(2, os.cpu_count() or 1))
-    depth, min_size, columns = tree.current_depth, tree.min_size, list(tree.columns)
+    depth, min_size, columns = int(tree.depth), int(tree.min_size), list(tree.columns)
     categorical = [t == "categorical" for t in tree.column_types]
     fit_rows = draws.mean_weights > 0
     X = np.asarray(tree.encoded_covariates)[fit_rows]
@@ -215,7 +217,7 @@ def structure_stability(tree: TreeSummary, *, n_fits: int = 200, seed: int = 0, 
     supported = share >= SUPPORT_SHARE
     counts = pd.Series(first).value_counts()
     top = counts.index[0]
-    a = summarize_draws(ari[:, None], level, "equal-tailed")
+    a = draw_summary(ari[:, None], level, "equal-tailed")
     pct = f"{100 * level:g}%"
     if supported:
         msg = (f"First split supported: {100 * share:.0f}% of {len(first)} trees refitted to single posterior draws "

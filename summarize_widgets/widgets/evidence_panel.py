@@ -19,7 +19,6 @@ from ..summaries.evidence import heterogeneity_evidence, unit_sd_draws
 from ..summaries.evidence_set import DEFAULT_STABILITY_FITS
 from ..summaries.size_path import linear_size_path, tree_size_path
 from ..summaries.stability import structure_stability
-from . import panels as P
 
 __all__ = ["EvidencePanel"]
 
@@ -37,8 +36,16 @@ _STYLE = (
 )
 
 
+def _status(text: str, tone: str = "info") -> str:
+    """One escaped status line of the panel ("info", "busy" or "error")."""
+    colour = {"info": "#444444", "busy": "#2E5F8A", "error": "#9b1c1c"}[tone]
+    role = ' role="alert"' if tone == "error" else ""
+    return (f'<div class="swx-evidence-status"{role} style="color:{colour};font-size:13px;line-height:1.4;'
+            f'margin:4px 0">{html.escape(text)}</div>')
+
+
 def _tree_key(tree) -> tuple:
-    return (id(tree.draws), tree.current_depth, tree.min_size, tuple(tree.columns))
+    return (id(tree.draws), int(tree.depth), tree.min_size, tuple(tree.columns))
 
 
 class EvidencePanel(widgets.VBox):
@@ -108,7 +115,7 @@ class EvidencePanel(widgets.VBox):
                 parts.append(self._verdict("Heterogeneity", het.message))
                 parts.append(to_html(het.table(level, interval), caption="Spread of the effects"))
             except SummaryError as exc:
-                parts.append(P.status_html(f"Heterogeneity: {exc}", kind="error"))
+                parts.append(_status(f"Heterogeneity: {exc}", tone="error"))
             if tree.max_depth > 1:
                 tp = tree_size_path(tree, tolerance=self._tolerance)
                 parts.append(self._verdict("Tree size", tp.message))
@@ -126,9 +133,9 @@ class EvidencePanel(widgets.VBox):
         tree, _, level, interval = self._view
         check = self._stability.get(_tree_key(tree))
         if check is None:
-            self.stability_html.value = P.status_html(
+            self.stability_html.value = _status(
                 "Structure stability: press the button to refit this tree to single posterior draws "
-                f"(depth {tree.current_depth}, smallest subgroup {tree.min_size:,} units). It takes one tree fit per draw.")
+                f"(depth {tree.depth}, smallest subgroup {tree.min_size:,} units). It takes one tree fit per draw.")
             return
         self.stability_html.value = self._wrap(
             self._verdict("Structure stability", check.message)
@@ -154,7 +161,7 @@ class EvidencePanel(widgets.VBox):
         self.stability_button.disabled = True
         self.progress.layout.display = None
         self.progress.value = 0.0
-        self.stability_html.value = P.status_html(f"Refitting the tree to {n_fits:,} single draws\u2026", kind="busy")
+        self.stability_html.value = _status(f"Refitting the tree to {n_fits:,} single draws\u2026", tone="busy")
 
         def progress(done, total):
             self.progress.value = done / max(total, 1)
@@ -165,7 +172,7 @@ class EvidencePanel(widgets.VBox):
                 self._stability[_tree_key(tree)] = check
                 self._draw_stability()
         except Exception as exc:  # noqa: BLE001 - a worker thread has no output area: report in the panel
-            self.stability_html.value = P.status_html(f"Structure stability failed: {exc}", kind="error")
+            self.stability_html.value = _status(f"Structure stability failed: {exc}", tone="error")
         finally:
             self.progress.layout.display = "none"
             self.stability_button.disabled = False
