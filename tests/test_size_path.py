@@ -13,6 +13,7 @@ def _study(S=60, n=400, seed=20):
     rng = np.random.default_rng(seed)
     X = household_covariates(n, rng)
     X["noise"] = rng.normal(size=n)
+    X["income"] = 1e5 + 1e3 * rng.normal(size=n)  # far from zero and large: the path must keep its digits
     f = 0.08 * X["age"].to_numpy() + 1.5 * (X["fuel"] == "oil").to_numpy() + 0.05 * np.nan_to_num(X["rooms"].to_numpy())
     return rng, X, f
 
@@ -60,7 +61,7 @@ def test_linear_path_equals_explicit_projections(kind):
     else:
         pi = rng.uniform(0.1, 0.9, (S, n))
         d = sw.EffectDraws.from_itt(T * pi, pi, X, weights=rng.uniform(0.5, 2, n))
-    cols = ["age", "fuel", "rooms", "noise"]
+    cols = ["age", "fuel", "rooms", "noise", "income"]
     lin = sw.summarize_linear(d, columns=cols)
     path = linear_size_path(d, lin)
     ref = _explicit_r2(d, X, path.steps[1:], cols)

@@ -278,7 +278,7 @@ def _evidence_layout(df: pd.DataFrame, kind: str, iv: str):
                      + " Shortfall: posterior mean of the largest summary's R² minus this one's, draw by draw.")
     else:  # stability
         depths = [c for c in df.columns if str(c).startswith("depth_")]
-        headers = [("Covariate", "Covariate", "l"), ("First split", "First split", "r")]
+        headers = [("Covariate", "Covariate", "l"), ("First split (depth 1)", "First split (depth 1)", "r")]
         headers += [(f"Depth {c[6:]}", f"Depth {c[6:]}", "r") for c in depths]
         headers.append(("Summary tree splits at depth", "Summary tree splits at depth", "l"))
         for r in df.to_dict("records"):

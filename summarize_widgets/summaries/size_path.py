@@ -10,7 +10,9 @@ No pass over the draws is needed. With the weights ``wbar`` of the linear summar
 and its design reordered as ``sqrt(wbar) B P = Q R`` (thin QR, intercept first),
 every draw's projection onto the full span is ``B gamma_s``; its coordinates in the
 orthonormal basis ``Q`` are ``z_s = R P' gamma_s``, and the projection onto the
-first ``k + 1`` columns keeps the first ``k + 1`` coordinates. So the explained sum
+first ``k + 1`` columns keeps the first ``k + 1`` coordinates. (Computed with the
+non-intercept columns centred and scaled, whose ``R`` is the Cholesky factor of their
+small Gram matrix: the same spans, no QR of the n x p design.) So the explained sum
 of squares of the nested fit is ``SSR_k,s = sum_{j=1..k} z_sj^2`` (coordinate 0 is
 the intercept) and, with the full fit's summary R^2 ``R2_s = SSR_p,s / SST_s``,
 ``R2_k,s = R2_s * SSR_k,s / SSR_p,s``: exactly the R^2 of refitting each nested
@@ -205,9 +207,16 @@ def linear_size_path(draws, linear, *, order: str = "lars", tolerance: float = D
     Bk = B[keep]
     path = term_order(Bk, draws.posterior_mean[keep], w, order=order)
     perm = [0, *path]
-    _, R = np.linalg.qr(np.sqrt(w)[:, None] * Bk[:, perm])
-    z = linear.coef_draws[:, perm] @ R.T  # coordinates of each draw's projection in the ordered orthonormal basis
-    ssr = np.cumsum(z[:, 1:] ** 2, axis=1)
+    # The intercept is in every nested set, so centring the other columns (weighted) changes no span and
+    # leaves their coefficients as they are; scaled to unit weighted length, their Gram matrix is well
+    # conditioned and its Cholesky factor is the R of their QR (computed in O(n p^2), no n x p QR).
+    cols = np.array(path)
+    Xc = Bk[:, cols] - (w @ Bk[:, cols]) / w.sum()
+    scale = np.sqrt(w @ (Xc * Xc))
+    Xs = Xc / scale
+    R = np.linalg.cholesky((Xs * w[:, None]).T @ Xs).T
+    z = (linear.coef_draws[:, cols] * scale) @ R.T  # coordinates of each draw's projection beyond the intercept
+    ssr = np.cumsum(z ** 2, axis=1)
     r2_full = np.asarray(linear.fit_r2, dtype=np.float64)  # raises when no draw has heterogeneity
     with np.errstate(divide="ignore", invalid="ignore"):
         frac = np.where(ssr[:, -1:] > 0, ssr / np.where(ssr[:, -1:] > 0, ssr[:, -1:], 1.0), 0.0)
@@ -240,8 +249,7 @@ def tree_size_path(tree, *, tolerance: float = DEFAULT_TOLERANCE) -> SizePath:
     by_depth = tree.fit_r2_draws_by_depth()
     depths = sorted(by_depth)
     r2 = np.column_stack([by_depth[d] for d in depths])
-    n_sub = dict(zip(*tree.fit_r2_by_depth()[["depth", "n_subgroups"]].to_numpy().T))
-    sizes = np.array([int(n_sub[d]) for d in depths])
+    sizes = np.array([len(tree.at_depth(d).leaf_ids) for d in depths])
     chosen = _choose(r2, tolerance)
     steps = [f"depth {d}" for d in depths]
     msg = _message("tree", r2, chosen, tolerance, f"depth {depths[chosen]} ({sizes[chosen]} subgroups)", [])

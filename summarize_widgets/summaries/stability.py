@@ -117,8 +117,8 @@ class StabilityCheck:
 
     def table(self) -> pd.DataFrame:
         """One row per covariate: ``covariate``, ``first_split`` (share of draw-trees whose first split
-        is on it), ``depth_1`` ... ``depth_<depth>`` (share of draw-trees splitting on it at that depth,
-        the first split being depth 1), ``in_summary`` (the depths at which the summary tree splits on it).
+        is on it, i.e. at depth 1), ``depth_2`` ... ``depth_<depth>`` (share of draw-trees splitting on it
+        at that depth), ``in_summary`` (the depths at which the summary tree splits on it).
 
         A last row ``NO_SPLIT`` counts draw-trees that do not split at all.
         """
@@ -126,7 +126,7 @@ class StabilityCheck:
         rows = []
         for col in [*self.columns, NO_SPLIT]:
             row = {"covariate": col, "first_split": sum(f == col for f in self.first_split) / n}
-            for d in range(self.depth):
+            for d in range(1, self.depth):  # depth 1 is the first split
                 row[f"depth_{d + 1}"] = (np.nan if col == NO_SPLIT else
                                          sum(any(sd == d and sc == col for sd, sc in sp) for sp in self.splits) / n)
             row["in_summary"] = ", ".join(str(d + 1) for d in sorted({sd for sd, sc in self.summary_splits if sc == col}))
