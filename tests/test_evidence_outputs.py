@@ -12,7 +12,7 @@ from summarize_widgets.export import export_tables, to_latex, to_markdown
 from summarize_widgets.export.report import render_report
 from summarize_widgets.summaries.evidence_set import gather_evidence
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 
 @pytest.fixture(scope="module")

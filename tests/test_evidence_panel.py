@@ -7,7 +7,7 @@ from summarize_widgets.summaries.evidence import heterogeneity_evidence
 from summarize_widgets.widgets import Explorer
 from summarize_widgets.widgets.evidence_panel import EvidencePanel
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 
 @pytest.fixture(scope="module")

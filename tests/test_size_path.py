@@ -6,7 +6,7 @@ import summarize_widgets as sw
 from summarize_widgets.core.design import classify_columns, linear_design
 from summarize_widgets.summaries.size_path import linear_size_path, term_order, tree_size_path
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 
 def _study(S=60, n=400, seed=20):

@@ -6,7 +6,7 @@ from sklearn.metrics import adjusted_rand_score
 import summarize_widgets as sw
 from summarize_widgets.summaries.stability import draw_target, structure_stability
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 
 def _covariates(n, rng):

@@ -5,7 +5,6 @@ The command line, the report folder and the explorer all build their summaries h
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from pathlib import Path
 
 from ..core.validate import SummaryError, check_int
 from .additive import summarize_additive

@@ -1,7 +1,7 @@
 """Is there heterogeneity at all? The posterior of the spread of effects, and a plain verdict.
 
 Three per-draw quantities, each a functional of one posterior draw, so their
-draws are draws from their posterior (METHOD.md section 2):
+draws are draws from their posterior (docs/method.md section 2):
 
 * ``unit_sd_s``: the weighted standard deviation of the unit effects across the
   units, ``sqrt(sum_i w_si (T_si - m_s)^2 / sum_i w_si)`` with
@@ -15,7 +15,7 @@ draws are draws from their posterior (METHOD.md section 2):
   subgroup weighted by its total weight in the draw ``W_sg = sum_{i in g} w_si``.
   For a tree (a partition) this is the between-subgroup part of the variance
   decomposition: ``between_sd_s^2 = R2_s * unit_sd_s^2`` with the tree's summary
-  R^2 (METHOD.md section 3). For overlapping groups it is a descriptive spread.
+  R^2 (docs/method.md section 3). For overlapping groups it is a descriptive spread.
 * ``range_s``: the largest minus the smallest subgroup effect in the draw.
 
 ``P(range > c)`` is the share of draws whose range exceeds ``c``. The default
@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..core.draws import EffectDraws
 from ..core.stats import draw_summary, summary_columns
 from ..core.validate import SummaryError, check_interval, check_level
 
@@ -94,7 +95,6 @@ def between_sd_draws(theta: np.ndarray, weights: np.ndarray) -> np.ndarray:
 
 
 def _check_draws(draws):
-    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")

@@ -6,6 +6,7 @@ from collections.abc import Mapping
 import numpy as np
 import pandas as pd
 
+from ..core.draws import EffectDraws
 from ..core.passes import LinearMap, run_pass
 from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
@@ -75,7 +76,7 @@ class GroupSummary(SummaryResult):
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """Same columns as :meth:`TreeSummary.table`; ``subgroup`` is the label, ``rule`` the query."""
-        cols = self._columns(self.labels, self.group_draws, level=level, interval=interval)
+        cols = self.statistics(self.labels, self.group_draws, level=level, interval=interval)
         return effect_table(cols, self._info(), level=level, interval=interval, uptake=self._uptake,
                             uptake_floor=uptake_floor, attrs=self._attrs())
 
@@ -83,7 +84,7 @@ class GroupSummary(SummaryResult):
         """Every pair of groups (the "All units" row included): difference, interval, P(A > B)."""
         return contrast_table(self.group_draws, self.labels, self.queries, level=level, interval=interval,
                               subgroup=subgroup, attrs=self._attrs(),
-                              stats=lambda keys, diff: self._columns(keys, diff, level=level, interval=interval))
+                              stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     def apply_to(self, draws, *, progress=None) -> "GroupSummary":
         """The same groups (memberships frozen) with effects computed from other draws of the same units.
@@ -92,7 +93,6 @@ class GroupSummary(SummaryResult):
         order, with the same covariate values. Applied to the draws these groups were computed
         from, it reproduces this summary exactly.
         """
-        from ..core.draws import EffectDraws
         from .compare import check_same_units
 
         if not isinstance(draws, EffectDraws):
@@ -121,7 +121,6 @@ def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=N
     GroupSummary
         Its table has a first row for all units.
     """
-    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")

@@ -16,7 +16,7 @@ small Gram matrix: the same spans, no QR of the n x p design.) So the explained 
 of squares of the nested fit is ``SSR_k,s = sum_{j=1..k} z_sj^2`` (coordinate 0 is
 the intercept) and, with the full fit's summary R^2 ``R2_s = SSR_p,s / SST_s``,
 ``R2_k,s = R2_s * SSR_k,s / SSR_p,s``: exactly the R^2 of refitting each nested
-model to each draw (METHOD.md section 2).
+model to each draw (docs/method.md section 2).
 
 Tree: the truncations of the summary tree are nested by construction; the size is
 the number of subgroups at each depth (:meth:`TreeSummary.fit_r2_draws_by_depth`).

@@ -24,9 +24,9 @@ import numpy as np
 import pandas as pd
 from sklearn.tree import DecisionTreeRegressor
 
+from ..core.draws import EffectDraws
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
 from .projection import checked_r2, r2_note
-from ..core.intervals import credible_interval
 from ..core.passes import LeafSums, run_pass
 from ..core.rules import Condition, combine, nice_threshold
 from .base import SummaryResult
@@ -336,8 +336,8 @@ class TreeSummary(SummaryResult):
         })
 
     def _attrs(self):
-        return {"label": self.label, "depth": self._depth, "summary": "tree", "unit": self._draws.unit,
-                "better": self._draws.better}
+        return {"label": self.label, "depth": self._depth, "summary": "tree", "unit": self.draws.unit,
+                "better": self.draws.better}
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """One row per subgroup at the current depth.
@@ -352,7 +352,7 @@ class TreeSummary(SummaryResult):
         complier share below ``uptake_floor``: the subgroup's ratio is unstable).
         """
         ids = self.leaf_ids
-        cols = self._columns([int(i) for i in ids], self.leaf_draws, level=level, interval=interval)
+        cols = self.statistics([int(i) for i in ids], self.leaf_draws, level=level, interval=interval)
         return effect_table(cols, self._info(ids), level=level, interval=interval, uptake=self._uptake(ids),
                             uptake_floor=uptake_floor, attrs=self._attrs())
 
@@ -366,7 +366,7 @@ class TreeSummary(SummaryResult):
         f = self._f
         ids = np.flatnonzero(f.node_depth <= self._depth)
         theta = ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
-        cols = self._columns([int(i) for i in ids], theta, level=level, interval=interval)
+        cols = self.statistics([int(i) for i in ids], theta, level=level, interval=interval)
         leaves = set(self.leaf_ids.tolist())
         out = pd.DataFrame({
             "node": ids.astype(int),
@@ -388,7 +388,7 @@ class TreeSummary(SummaryResult):
         ids = self.leaf_ids
         return contrast_table(self.leaf_draws, [int(i) for i in ids], [self._f.rules[i] for i in ids],
                               level=level, interval=interval, subgroup=subgroup, attrs=self._attrs(),
-                              stats=lambda keys, diff: self._columns(keys, diff, level=level, interval=interval))
+                              stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     # -- summary R^2 ---------------------------------------------------------------------
     def _r2_at(self, depth: int) -> np.ndarray:
@@ -397,7 +397,7 @@ class TreeSummary(SummaryResult):
         ids = f.nodes_at(depth)
         c = d.scan.centre[:, None]
         W = f.W_nodes[:, ids]
-        Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (METHOD.md section 3 numerics)
+        Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (docs/method.md section 3 numerics)
         Wt = f.W_nodes[:, 0]
         Atc = f.A_nodes[:, 0] - d.scan.centre * Wt
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -431,7 +431,7 @@ class TreeSummary(SummaryResult):
         rows = []
         for d, r2 in self.fit_r2_draws_by_depth().items():
             rows.append({"depth": d, "n_subgroups": len(self._f.nodes_at(d)),
-                         **self._r2_columns(("fit_r2", d), r2, level=level, interval=interval)})
+                         **self.r2_statistics(("fit_r2", d), r2, level=level, interval=interval)})
         out = pd.DataFrame(rows)
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
         return out
@@ -468,7 +468,6 @@ class TreeSummary(SummaryResult):
             At the current depth, every depth available; one pass over ``draws``, no refit.
             Applied to the draws the tree was grown on, it reproduces this summary exactly.
         """
-        from ..core.draws import EffectDraws
         from .compare import check_same_units
 
         if not isinstance(draws, EffectDraws):
@@ -560,7 +559,6 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     TreeSummary
         At depth ``max_depth``.
     """
-    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")

@@ -11,7 +11,6 @@ from collections.abc import Callable, Mapping
 import numpy as np
 import pandas as pd
 
-from ..core.validate import SummaryError
 from ..summaries.bundle import summarize_all
 from ..summaries.tree import TreeSummary
 
