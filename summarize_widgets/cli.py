@@ -31,6 +31,21 @@ def _add_summary_options(p: argparse.ArgumentParser) -> None:
                    help="kind of credible interval (default equal-tailed)")
 
 
+def _add_evidence_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("evidence (heterogeneity, structure stability, summary size)")
+    g.add_argument("--evidence", action="store_true",
+                   help="also report whether effects vary at all, whether the tree is stable across posterior draws "
+                        "and how small a summary suffices (tables, report section and printed verdicts)")
+    g.add_argument("--stability-fits", type=int, default=200, metavar="N",
+                   help="with --evidence: posterior draws to refit the tree to (default 200; 0 skips this check, "
+                        "the only slow one)")
+    g.add_argument("--threshold", type=float, default=None, metavar="C",
+                   help="with --evidence: a difference between subgroup effects that matters, on the effect's scale "
+                        "(default: a rule of thumb, a quarter of the average effect or of the sd of unit effects)")
+    g.add_argument("--tolerance", type=float, default=0.05,
+                   help="with --evidence: summary R^2 a smaller summary may give up (default 0.05)")
+
+
 def _add_input_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("draws", metavar="DRAWS",
                    help="draws file: .npy, .npz, .csv, .parquet, .nc (netCDF, groups allowed), a .zarr store, or sampler CSV")
@@ -79,11 +94,13 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--seed", type=int, default=20261201, help="random seed (default 20261201)")
     demo.add_argument("--no-figures", action="store_true", help="skip the SVG/PDF/PNG figure files")
     _add_summary_options(demo)
+    _add_evidence_options(demo)
 
     summ = sub.add_parser("summarize", help="print a summary table of your own draws",
                           description="Summarize your own draws and print one table.")
     _add_input_options(summ)
     _add_summary_options(summ)
+    _add_evidence_options(summ)
     summ.add_argument("--table", choices=_TABLES, default="subgroups", help="which table to print (default subgroups)")
     summ.add_argument("--format", choices=("text", "csv", "markdown", "json"), default="text",
                       help="output format (default text)")
@@ -93,6 +110,7 @@ def build_parser() -> argparse.ArgumentParser:
                                      "figures (SVG, PDF, PNG), report.html and provenance.json into a folder.")
     _add_input_options(rep)
     _add_summary_options(rep)
+    _add_evidence_options(rep)
     rep.add_argument("--out", required=True, metavar="DIR", help="output folder")
     rep.add_argument("--overwrite", action="store_true", help="replace files in an existing non-empty folder")
     rep.add_argument("--group", action="append", default=[], metavar="LABEL=QUERY",
@@ -198,9 +216,21 @@ def _pick_table(bundle, name, level, interval):
 
 def _summaries(draws, args, groups=None, need=("additive", "linear")):
 
+    if args.evidence:
+        need = (*need, "linear")  # the linear summary's size path is part of the evidence
     return summarize_all(draws, depth=args.depth, max_depth=args.max_depth, min_size=args.min_size,
                          columns=_columns(args.columns), groups=groups,
-                         additive="additive" in need, linear="linear" in need)
+                         additive="additive" in need, linear="linear" in need,
+                         evidence=args.evidence, stability_fits=args.stability_fits if args.evidence else 0,
+                         threshold=args.threshold, tolerance=args.tolerance, level=args.level, interval=args.interval)
+
+
+def _print_evidence(bundle) -> None:
+    if bundle.evidence is None:
+        return
+    print("\nEvidence")
+    for heading, message in bundle.evidence.messages:
+        print(f"- {heading}: {message}")
 
 
 def _print_headline(bundle, level, interval) -> None:
@@ -233,6 +263,7 @@ def _cmd_demo(args) -> int:
     print(f"Simulated retrofit study: {draws}")
     bundle = _summaries(draws, args)
     _print_headline(bundle, args.level, args.interval)
+    _print_evidence(bundle)
     files = write_summary_folder(bundle, out, level=args.level, interval=args.interval,
                                  figures=False if args.no_figures else "auto",
                                  inputs={"simulated study (seed {})".format(args.seed): draws.values},
@@ -246,6 +277,12 @@ def _cmd_summarize(args) -> int:
     need = {"linear": ("linear",), "trends": ("additive",)}.get(args.table, ())
     bundle = _summaries(draws, args, need=need)
     print(_render(_pick_table(bundle, args.table, args.level, args.interval), args.format))
+    if bundle.evidence is not None:
+        if args.format == "text":
+            _print_evidence(bundle)
+        else:
+            for name, (df, _) in bundle.evidence.tables(args.level, args.interval).items():
+                print(f"\n{name}\n{_render(df, args.format)}")
     return 0
 
 
@@ -258,6 +295,7 @@ def _cmd_report(args) -> int:
     draws = _load(args)
     bundle = _summaries(draws, args, groups=groups or None)
     _print_headline(bundle, args.level, args.interval)
+    _print_evidence(bundle)
     inputs = [args.draws, args.covariates] + ([args.uptake] if args.uptake else [])
     files = write_summary_folder(bundle, out, level=args.level, interval=args.interval, inputs=inputs,
                                  figures=False if args.no_figures else "auto", overwrite=args.overwrite)

@@ -62,15 +62,16 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
     interval = check_interval(interval)
     out_dir = Path(out_dir)
     check_output_folder(out_dir, overwrite)
-    prov = provenance([bundle.draws, *bundle.results.values()], inputs=inputs,
+    evidence = [bundle.evidence] if bundle.evidence is not None else []
+    prov = provenance([bundle.draws, *bundle.results.values(), *evidence], inputs=inputs,
                       settings={"level": level, "interval": interval, "digits": digits})
     written = list(export_tables(out_dir, tree=bundle.tree, groups=bundle.groups, linear=bundle.linear,
                                  additive=bundle.additive, level=level, interval=interval, digits=digits,
-                                 provenance=prov, overwrite=overwrite).values())
+                                 provenance=prov, overwrite=overwrite, evidence=bundle.evidence).values())
     written.append(write_report(out_dir, tree=bundle.tree, groups=bundle.groups, additive=bundle.additive,
                                 linear=bundle.linear, provenance=prov, level=level, interval=interval,
                                 digits=digits, title=title or f"Posterior summary: {bundle.draws.label}",
-                                overwrite=overwrite))
+                                overwrite=overwrite, evidence=bundle.evidence))
     if figures == "auto":
         try:
             find_browser()

@@ -150,6 +150,9 @@ TABLE_COLUMNS = {
     "linear": ["term", "mean", "lower", "upper", "prob_positive"],
     "curves": ["covariate", "x", "mean", "lower", "upper", "lower_joint", "upper_joint"],
     "fit_r2": ["depth", "n_subgroups", "mean", "lower", "upper"],
+    "evidence": ["quantity", "mean", "lower", "upper", "prob_above"],
+    "size_path": ["step", "size", "added", "mean", "lower", "upper", "shortfall", "prob_within", "chosen"],
+    "stability": ["covariate", "first_split", "in_summary"],
 }
 
 
@@ -164,7 +167,7 @@ def table_type(df, table=None):
         if missing:
             raise SummaryError(f"`df` lacks the columns a {table!r} table needs: {missing}; it has {list(df.columns)}.")
         return table
-    for name in ("contrasts", "curves", "fit_r2", "subgroups", "linear"):
+    for name in ("size_path", "stability", "evidence", "contrasts", "curves", "fit_r2", "subgroups", "linear"):
         if all(c in df.columns for c in TABLE_COLUMNS[name]):
             return name
     raise SummaryError(
@@ -323,6 +326,8 @@ def _layout(df: pd.DataFrame, table: str) -> _Layout:
                          ("ci", (r.lower_joint, r.upper_joint), di)])
         notes.append(_interval_note(df, "the additive summary's effect at each value")
                      + " Simultaneous intervals cover a covariate's whole curve jointly.")
+    elif table in ("evidence", "size_path", "stability"):
+        headers, rows, notes = _evidence_layout(df, table, iv)
     else:  # fit_r2
         headers = [("Depth", "Depth", "r"), ("Subgroups", "Subgroups", "r"), ("Summary R\u00b2", "Summary $R^2$", "r"),
                    (iv, escape_latex(iv), "c")]
@@ -337,6 +342,54 @@ def _layout(df: pd.DataFrame, table: str) -> _Layout:
     if table != "fit_r2" and any(c in df.columns for c in ("mcse_mean",)):
         notes.append("Digits: each column shows no digit finer than its largest Monte Carlo standard error.")
     return _Layout(headers, rows, notes)
+
+
+def _evidence_layout(df: pd.DataFrame, kind: str, iv: str):
+    """Headers, rows and notes of the evidence tables (heterogeneity, size paths, stability)."""
+    rows, notes = [], []
+    if kind == "evidence":
+        c = df.attrs.get("threshold")
+        ptxt = f"P(> {c:.3g})" if c is not None else "P(> c)"
+        headers = [("Quantity", "Quantity", "l"), ("Mean", "Mean", "r"), (iv, escape_latex(iv), "c"),
+                   (ptxt, escape_latex(ptxt), "r")]
+        d, di = _effect_cells(df)
+        for r in df.itertuples(index=False):
+            rows.append([("text", r.quantity), ("est", r.mean, d), ("ci", (r.lower, r.upper), di),
+                         ("prob", r.prob_above, _n_draws(df))])
+        notes.append(_interval_note(df, "each quantity") + f" {ptxt}: posterior probability that it exceeds the threshold.")
+        if df.attrs.get("threshold_rule"):
+            notes.append(f"Threshold: {df.attrs['threshold_rule']}.")
+    elif kind == "size_path":
+        tree = str(df.attrs.get("summary", "")).endswith("tree")
+        size = ("Subgroups", "Subgroups", "r") if tree else ("Terms", "Terms", "r")
+        tol = df.attrs.get("tolerance")
+        within = f"P(shortfall ≤ {tol:g})" if tol is not None else "P(within)"
+        headers = [size, ("Step", "Step", "l"), ("Summary R²", "Summary $R^2$", "r"), (iv, escape_latex(iv), "c"),
+                   ("Shortfall", "Shortfall", "r"), (within, escape_latex(within).replace("≤", "$\\leq$"), "r"),
+                   ("Smallest within tolerance", "Smallest within tolerance", "c")]
+        d, di = _effect_cells(df)
+        for r in df.itertuples(index=False):
+            rows.append([("int", r.size), ("text", r.added), ("est", r.mean, d), ("ci", (r.lower, r.upper), di),
+                         ("est", r.shortfall, d), ("prob", r.prob_within, _n_draws(df)),
+                         ("text", "yes" if r.chosen else "")])
+        notes.append(_interval_note(df, "the summary R² of each nested summary")
+                     + " Shortfall: posterior mean of the largest summary's R² minus this one's, draw by draw.")
+    else:  # stability
+        depths = [c for c in df.columns if str(c).startswith("depth_")]
+        headers = [("Covariate", "Covariate", "l"), ("First split (depth 1)", "First split (depth 1)", "r")]
+        headers += [(f"Depth {c[6:]}", f"Depth {c[6:]}", "r") for c in depths]
+        headers.append(("Summary tree splits at depth", "Summary tree splits at depth", "l"))
+        for r in df.to_dict("records"):
+            cells = [("text", r["covariate"]), ("num", r["first_split"])]
+            cells += [("text", "") if pd.isna(r[c]) else ("num", r[c]) for c in depths]
+            cells.append(("text", r["in_summary"]))
+            rows.append(cells)
+        n = df.attrs.get("n_fits")
+        notes.append(f"Share of {n if n is not None else 'the'} trees refitted to single posterior draws that split on "
+                     "each covariate first, and at each depth.")
+    if df.attrs.get("message"):
+        notes.append(str(df.attrs["message"]))
+    return headers, rows, notes
 
 
 def _num(x, digits: int, minus: str) -> str:

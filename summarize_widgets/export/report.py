@@ -72,6 +72,8 @@ body { margin:0; background:var(--paper); color:var(--ink); font:15px/1.55 var(-
 .sw-table tfoot td { padding-top:6px; }
 .sw-note { margin:2px 0; font-size:12px; color:var(--muted); }
 .sw-scroll { overflow-x:auto; }
+.sw-verdicts { margin:0 0 12px; }
+.sw-verdict { margin:0 0 8px; padding:6px 10px; border-left:3px solid var(--accent); background:#F4F7FA; }
 details summary { cursor:pointer; color:var(--accent); }
 pre.sw-json { background:#F1EFEA; padding:10px 12px; overflow-x:auto; font-size:12px; }
 .sw-foot { color:var(--muted); font-size:12px; margin-top:24px; }
@@ -154,7 +156,8 @@ def _prov_header(prov: Mapping) -> str:
 def _section_of(table_name: str) -> str:
     """Which report section a table from :func:`summary_tables` belongs to."""
     for prefix, section in (("subgroups", "tree"), ("fit_r2", "tree"), ("contrasts", "tree"), ("groups", "groups"),
-                            ("linear", "linear"), ("trends", "additive")):
+                            ("linear", "linear"), ("trends", "additive"), ("heterogeneity", "evidence"),
+                            ("stability", "evidence"), ("size_path", "evidence")):
         if table_name.startswith(prefix):
             return section
     return "extra"
@@ -188,12 +191,13 @@ def _settings_html(prov: Mapping) -> str:
 
 
 _SECTIONS = (("tree", "Subgroups from the summary tree"), ("groups", "Pre-specified groups"),
-             ("additive", "Trends (additive summary)"), ("linear", "Linear summary"), ("extra", "Figures"))
+             ("additive", "Trends (additive summary)"), ("linear", "Linear summary"),
+             ("evidence", "Evidence: heterogeneity, stability and summary size"), ("extra", "Figures"))
 
 
 def render_report(*, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
                   level: float = 0.95, interval: str = "equal-tailed", digits: int = 2, points=None,
-                  title: str = "Posterior summary report") -> str:
+                  title: str = "Posterior summary report", evidence=None) -> str:
     """The report page as a string (see :func:`write_report` for the parameters)."""
     level = check_level(level)
     interval = check_interval(interval)
@@ -205,7 +209,7 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
         results, settings={"level": level, "interval": interval, "digits": digits})
     provenance_lines(prov)  # validates the record's shape
     tables = summary_tables(tree=tree, groups=groups, linear=linear, additive=additive, level=level,
-                            interval=interval, points=points)
+                            interval=interval, points=points, evidence=evidence)
     figs = _normalize_figures(figures, tree, groups, additive, linear, level, interval)
     esc = html.escape
     body, nav, fig_no = [], [], 0
@@ -216,6 +220,9 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
             continue
         nav.append(f'<a href="#sw-{key}">{esc(heading)}</a>')
         parts = [f'<section class="sw-section" id="sw-{key}"><h2>{esc(heading)}</h2>']
+        if key == "evidence" and evidence is not None:
+            parts.append('<div class="sw-verdicts">' + "".join(
+                f'<p class="sw-verdict"><strong>{esc(h)}.</strong> {esc(m)}</p>' for h, m in evidence.messages) + "</div>")
         for fig_title, fig in sec_figs:
             fig_no += 1
             parts.append(f"<h3>{esc(str(fig_title))}</h3>"
@@ -250,7 +257,7 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
 def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
                  level: float = 0.95, interval: str = "equal-tailed", digits: int = 2, points=None,
                  title: str = "Posterior summary report", filename: str = "report.html",
-                 overwrite: bool = False) -> Path:
+                 overwrite: bool = False, evidence=None) -> Path:
     """Write a self-contained ``report.html`` that opens offline in any browser.
 
     Parameters
@@ -275,6 +282,9 @@ def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None,
     filename : str, default "report.html"
     overwrite : bool, default False
         Replace an existing report; without it an existing file is refused (FileExistsError).
+    evidence : EvidenceSet, optional
+        Adds an "Evidence" section: the verdicts in plain language and their tables
+        (:func:`summarize_widgets.summaries.evidence_set.gather_evidence`).
 
     Returns
     -------
@@ -286,6 +296,6 @@ def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None,
     refuse_existing([target], overwrite=overwrite)  # before the (slow) rendering
     page = render_report(tree=tree, groups=groups, additive=additive, linear=linear, figures=figures,
                          provenance=provenance, level=level, interval=interval, digits=digits, points=points,
-                         title=title)
+                         title=title, evidence=evidence)
     out_dir.mkdir(parents=True, exist_ok=True)
     return write_atomic(target, page, overwrite=overwrite)

@@ -382,8 +382,11 @@ def _call(method, level, interval):
 
 
 def summary_tables(*, tree=None, groups=None, linear=None, additive=None, level=0.95, interval="equal-tailed",
-                   contrasts: bool = True, points=None) -> dict[str, tuple[pd.DataFrame, str]]:
-    """Name -> (table, caption) for every summary given, in report order (used by export and the report)."""
+                   contrasts: bool = True, points=None, evidence=None) -> dict[str, tuple[pd.DataFrame, str]]:
+    """Name -> (table, caption) for every summary given, in report order (used by export and the report).
+
+    ``evidence`` (an :class:`~summarize_widgets.summaries.evidence_set.EvidenceSet`) adds its tables last.
+    """
     out: dict[str, tuple[pd.DataFrame, str]] = {}
     if tree is not None:
         d = getattr(tree, "depth", None)
@@ -405,12 +408,14 @@ def summary_tables(*, tree=None, groups=None, linear=None, additive=None, level=
     if additive is not None:
         curves = _call(additive.curves, level, interval)
         out["trends"] = (curve_points(curves, points), "Additive summary at selected covariate values")
+    if evidence is not None:
+        out.update(evidence.tables(level, interval))
     return out
 
 
 def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None, level: float = 0.95,
                   interval: str = "equal-tailed", contrasts: bool = True, points=None, formats=FORMATS,
-                  digits: int | None = None, provenance=None, overwrite: bool = False) -> dict[str, Path]:
+                  digits: int | None = None, provenance=None, overwrite: bool = False, evidence=None) -> dict[str, Path]:
     """Write every summary's table in each format, plus ``provenance.json``.
 
     Parameters
@@ -433,6 +438,9 @@ def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None
         so the report and the tables agree); built from the results and settings when omitted.
     overwrite : bool, default False
         Without it, nothing is written if any target file exists.
+    evidence : EvidenceSet, optional
+        From :func:`summarize_widgets.summaries.evidence_set.gather_evidence`: adds the
+        heterogeneity, size-path and (when computed) stability tables.
 
     Returns
     -------
@@ -447,7 +455,7 @@ def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None
     if not results:
         raise SummaryError("export_tables needs at least one of `tree`, `groups`, `linear`, `additive`.")
     tables = summary_tables(tree=tree, groups=groups, linear=linear, additive=additive, level=level,
-                            interval=interval, contrasts=contrasts, points=points)
+                            interval=interval, contrasts=contrasts, points=points, evidence=evidence)
     prov = provenance if provenance is not None else _make_provenance(
         results, settings={"level": level, "interval": interval, "digits": digits})
     out_dir = Path(out_dir)

@@ -36,6 +36,7 @@ class SummaryBundle:
     additive: object = None
     linear: object = None
     groups: object = None
+    evidence: object = None  # EvidenceSet, only when asked for (summarize_all(evidence=True))
     files: list = field(default_factory=list)
     notes: list = field(default_factory=list)
     errors: dict = field(default_factory=dict)
@@ -48,7 +49,9 @@ class SummaryBundle:
 
 def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = None, min_size=None, columns=None,
                   groups=None, additive: bool = True, linear: bool = True, additive_options=None,
-                  extras: str = "raise", progress=None) -> SummaryBundle:
+                  extras: str = "raise", evidence: bool = False, stability_fits: int = 0, threshold=None,
+                  tolerance: float = 0.05, level: float = 0.95, interval: str = "equal-tailed",
+                  progress=None) -> SummaryBundle:
     """Every summary of one set of draws: the tree (at ``depth``, grown to ``max_depth``), optional
     groups, the linear and the additive summary. The one orchestrator: the command line, the
     report folder and the explorer all call it.
@@ -73,6 +76,7 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         the message in ``bundle.errors`` (the explorer shows it in that summary's tab). The tree
         and the groups always raise.
     progress : callable(stage, stage_index, n_stages, done_blocks, total_blocks), optional
+<<<<<<< HEAD
         Called after each block of the one pass (``stage`` is the first of :data:`STAGES`
         computed, ``stage_index`` 0 of ``n_stages`` 1). Without one, a long pass shows a tqdm bar.
 
@@ -82,6 +86,20 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
     and smoothing) is fitted from the validation scan's posterior mean, then the draws are
     projected onto all of them at once (leaf sums of every depth, group sums, the linear and
     additive maps). With the validation scan, the whole job reads each block of draws twice.
+=======
+        Called after each block of each pass; ``stage`` is one of :data:`STAGES`.
+    evidence : bool, default False
+        Also gather the evidence a referee asks for (heterogeneity, size paths;
+        :func:`~summarize_widgets.summaries.evidence_set.gather_evidence`) into ``bundle.evidence``.
+    stability_fits : int, default 0
+        With ``evidence``: draws to refit the tree to for the structure stability check (0 skips it:
+        it costs one CART fit per draw).
+    threshold, tolerance : float, optional
+        With ``evidence``: the difference ``c`` of ``P(range > c)`` (default: a rule of thumb) and the
+        summary R^2 tolerance of the size paths.
+    level, interval
+        With ``evidence``: credible level and interval kind of its verdicts.
+>>>>>>> main
     """
     depth = check_int(depth, "depth", low=1, high=8)
     max_depth = max(depth, 4) if max_depth is None else check_int(max_depth, "max_depth", low=depth, high=8)
@@ -108,12 +126,22 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         except SummaryError as exc:
             if extras == "raise":
                 raise
+<<<<<<< HEAD
             errors[name] = str(exc)
     # ... then project the draws onto all of them in ONE pass.
     results = dict(zip(plans, project(draws, list(plans.values()), progress=tick)))
     bundle = SummaryBundle(draws=draws, tree=results["tree"].at_depth(depth), groups=results.get("groups"),
                            linear=results.get("linear"), additive=results.get("additive"), errors=errors,
                            notes=list(draws.notes))  # what construction decided (an id column matched or excluded)
+=======
+            bundle.errors[name] = str(exc)
+    if evidence:
+        from .evidence_set import gather_evidence
+
+        bundle.evidence = gather_evidence(draws, bundle.tree, linear=bundle.linear, groups=bundle.groups,
+                                          stability_fits=stability_fits, threshold=threshold, tolerance=tolerance,
+                                          level=level, interval=interval)
+>>>>>>> main
     return bundle
 
 

@@ -39,8 +39,7 @@ import numpy as np
 import pandas as pd
 
 from ..core.draws import EffectDraws
-from ..core.stats import draw_summary
-from ..core.passes import BlockReducer, run_pass
+from ..core.stats import draw_summary, summary_columns
 from ..core.validate import SummaryError, check_interval, check_level
 
 __all__ = ["HeterogeneityEvidence", "heterogeneity_evidence", "unit_sd_draws", "between_sd_draws",
@@ -53,49 +52,22 @@ DEFAULT_FRACTION = 0.25
 SUPPORT_PROB = 0.95
 
 
-class _SpreadSums(BlockReducer):
-    """Reducer: per draw ``W_s = sum_i w_si``, ``A_s = sum_i w_si T_si`` and the centred
-    ``SST_s = sum_i w_si (T_si - A_s / W_s)^2``, centring before squaring (float64)."""
-
-    def start(self, n_draws: int) -> None:
-        self.wsum = np.zeros(n_draws)
-        self.wtsum = np.zeros(n_draws)
-        self.sst = np.zeros(n_draws)
-
-    def partial(self, block):
-        wt = np.asarray(block.wt, dtype=np.float64)
-        if block.w is None:
-            W = np.full(wt.shape[0], float(wt.shape[1]))
-            A = wt.sum(axis=1)
-            m = A / W
-            r = wt - m[:, None]
-            sst = np.einsum("ij,ij->i", r, r)
-        else:
-            w = np.broadcast_to(np.asarray(block.w, dtype=np.float64), wt.shape)
-            W = w.sum(axis=1)
-            A = wt.sum(axis=1)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                m = np.where(W > 0, A / np.where(W > 0, W, 1.0), 0.0)
-                # w (T - m)^2 = (wt - m w)^2 / w, zero where w = 0 (the unit takes no part).
-                r = wt - m[:, None] * w
-                sst = np.where(w > 0, r * r / np.where(w > 0, w, 1.0), 0.0).sum(axis=1)
-        return W, A, sst
-
-    def store(self, rows, part) -> None:
-        self.wsum[rows], self.wtsum[rows], self.sst[rows] = part
-
-
 def unit_sd_draws(draws, *, progress=None) -> np.ndarray:
     """Per draw, the weighted sd of the unit effects across the units, shape (n_draws,).
 
-    One pass over the draws (see the module notes for complier-weighted draws).
+    From the validation scan's per-draw sums (:attr:`EffectDraws.scan`), no pass over the draws:
+    ``SST_s = Q_s - (A_s - c_s W_s)^2 / W_s`` with ``Q_s = sum_i w_si (T_si - c_s)^2``,
+    ``A_s = sum_i w_si T_si`` and ``W_s = sum_i w_si`` (the centring ``c_s`` keeps the digits), and
+    ``unit_sd_s = sqrt(SST_s / W_s)``. ``progress`` is accepted for symmetry with the passes and unused.
     """
     _check_draws(draws)
-    red = _SpreadSums()
-    run_pass(draws, [red], progress=progress)
-    if (red.wsum <= 0).any():
-        raise SummaryError(f"{int((red.wsum <= 0).sum())} draws have zero total weight; the spread of their effects is undefined.")
-    return np.sqrt(np.clip(red.sst, 0.0, None) / red.wsum)
+    scan = draws.scan
+    W = np.asarray(scan.weight_sums, dtype=np.float64)
+    if (W <= 0).any():
+        raise SummaryError(f"{int((W <= 0).sum())} draws have zero total weight; the spread of their effects is undefined.")
+    d = np.asarray(scan.weighted_sums, dtype=np.float64) - np.asarray(scan.centre, dtype=np.float64) * W
+    sst = np.asarray(scan.centred_squares, dtype=np.float64) - d * d / W
+    return np.sqrt(np.clip(sst, 0.0, None) / W)
 
 
 def between_sd_draws(theta: np.ndarray, weights: np.ndarray) -> np.ndarray:
@@ -134,7 +106,7 @@ def _subgroup_draws(summary):
     from .tree import TreeSummary
 
     if isinstance(summary, TreeSummary):
-        d = summary.depth
+        d = int(summary.depth)
         return summary.leaf_draws, summary.leaf_weight_draws, f"the {summary.leaf_draws.shape[1]} subgroups of the tree at depth {d}"
     if isinstance(summary, GroupSummary):
         theta = summary.group_draws[:, 1:]  # the first column is "All units"
@@ -206,7 +178,8 @@ class HeterogeneityEvidence:
     settings: dict = field(default_factory=dict)
 
     def table(self, level: float | None = None, interval: str | None = None) -> pd.DataFrame:
-        """One row per quantity: ``quantity``, ``mean``, ``sd``, ``lower``, ``upper``, ``prob_above``.
+        """One row per quantity: ``quantity``, ``mean``, ``sd``, ``lower``, ``upper``, ``prob_above``, then the
+        Monte Carlo error columns of every table (``ess_bulk`` ... ``mc_warning``, :mod:`summarize_widgets.core.stats`).
 
         ``prob_above`` is ``P(quantity > threshold)`` (the threshold ``c`` for every row).
         ``df.attrs`` holds ``level``, ``interval``, ``label``, ``threshold``, ``verdict``, ``message``.
@@ -214,14 +187,18 @@ class HeterogeneityEvidence:
         level = check_level(self.level if level is None else level)
         interval = check_interval(self.interval if interval is None else interval)
         mat = np.column_stack([self.unit_sd, self.between_sd, self.range])
-        stats = draw_summary(mat, level, interval, threshold=self.threshold)
-        stats["prob_above"] = stats.pop("prob_positive")
+        stats = summary_columns(mat, level=level, interval=interval, n_chains=self.n_chains, threshold=self.threshold)
         out = pd.DataFrame({"quantity": ["sd of unit effects", f"sd between subgroups ({self.subgroups})",
-                                         "largest minus smallest subgroup effect"], **stats})
+                                         "largest minus smallest subgroup effect"], **with_prob_above(stats)})
         out.attrs.update({"level": level, "interval": interval, "label": self.label, "threshold": self.threshold,
                           "threshold_rule": self.threshold_rule, "verdict": self.verdict, "message": self.message,
                           "summary": "heterogeneity"})
         return out
+
+
+def with_prob_above(stats: dict) -> dict:
+    """Statistics columns with ``prob_positive`` renamed ``prob_above`` (a threshold other than 0), in place."""
+    return {("prob_above" if k == "prob_positive" else k): v for k, v in stats.items()}
 
 
 def _fmt(x: float) -> str:

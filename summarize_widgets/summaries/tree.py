@@ -33,7 +33,7 @@ from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
 from ..core.validate import SummaryError, check_columns, check_int, check_level
 
-__all__ = ["summarize_tree", "plan_tree", "TreeSummary", "default_min_size"]
+__all__ = ["summarize_tree", "plan_tree", "TreeSummary", "default_min_size", "fit_cart"]
 
 _MAX_DEPTH_LIMIT = 8
 
@@ -570,6 +570,34 @@ class TreeSummary(SummaryResult):
             anc[node] = k
         return anc
 
+    # -- refitting the same tree to other targets (structure stability) -------------------
+    @property
+    def encoded_covariates(self) -> np.ndarray:
+        """The matrix the tree was fitted on, shape (n_units, n_columns), read-only.
+
+        Numeric columns hold their values (or quantile-bin numbers); categorical columns the
+        rank of each category (see :func:`fit_cart`). Columns in ``columns`` order.
+        """
+        v = self._f.X.view()
+        v.flags.writeable = False
+        return v
+
+    @property
+    def column_types(self) -> list[str]:
+        """``"numeric"`` or ``"categorical"`` for each of ``columns``."""
+        return [s.kind for s in self._f.specs]
+
+    def split_columns(self) -> list[tuple[int, str]]:
+        """``(depth, column)`` of every split above the current depth, in node order (the root's first)."""
+        f = self._f
+        return [(int(f.node_depth[k]), f.specs[f.t.feature[k]].name) for k in range(f.t.node_count)
+                if f.t.children_left[k] >= 0 and f.node_depth[k] < self.depth]
+
+    def unit_subgroups(self) -> np.ndarray:
+        """The subgroup (node id at the current depth) of every unit, shape (n_units,)."""
+        f = self._f
+        return self._ancestor_at_depth()[f.sk_leaves[f.unit_leaf]]
+
     def __repr__(self) -> str:
         tab = self.table()
         lines = [f"TreeSummary of '{self.label}' at depth {self._depth} (max {self.max_depth}), "
@@ -688,3 +716,53 @@ def plan_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns
     unit_leaf = np.searchsorted(sk_leaves, est.apply(X))
 
     return _leaf_plan(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, names_by_rank)
+
+
+def fit_cart(X: np.ndarray, y: np.ndarray, weights: np.ndarray, *, depth: int, min_size: int,
+             categorical) -> DecisionTreeRegressor:
+    """Fit the summary tree's CART to another target, as :func:`summarize_tree` fits the posterior mean.
+
+    Parameters
+    ----------
+    X : ndarray, shape (n_rows, n_columns)
+        Rows of :attr:`TreeSummary.encoded_covariates`.
+    y : ndarray, shape (n_rows,)
+        The target (for example one posterior draw of the unit effects).
+    weights : ndarray, shape (n_rows,)
+        Non-negative sample weights.
+    depth, min_size : int
+        scikit-learn's ``max_depth`` and ``min_samples_leaf``.
+    categorical : sequence of bool, length n_columns
+        Which columns hold category ranks: they are re-ranked by the weighted mean of ``y``
+        within each category first (Fisher 1958, as for the posterior mean), so a threshold
+        split is the best split of the categories into two sets for this target.
+
+    Returns
+    -------
+    DecisionTreeRegressor
+        Fitted on the re-ranked matrix and the centred target; ``random_state=0`` as the summary tree.
+    """
+    X = np.asarray(X, dtype=np.float64)
+    y = np.asarray(y, dtype=np.float64)
+    w = np.asarray(weights, dtype=np.float64)
+    if not (y.shape == w.shape == (X.shape[0],)):
+        raise SummaryError(f"`y` and `weights` must have shape ({X.shape[0]},); got {y.shape} and {w.shape}.")
+    total = w.sum()
+    if not total > 0:
+        raise SummaryError("`weights` sum to zero: there is nothing to fit.")
+    cats = [j for j, c in enumerate(categorical) if c]
+    if cats:
+        X = X.copy()
+        for j in cats:
+            codes = X[:, j].astype(np.int64)
+            k = int(codes.max()) + 1
+            ws = np.bincount(codes, weights=w, minlength=k)
+            ts = np.bincount(codes, weights=w * y, minlength=k)
+            means = np.where(ws > 0, ts / np.where(ws > 0, ws, 1.0), np.inf)
+            order = np.argsort(means, kind="stable")
+            r = np.empty(k)
+            r[order] = np.arange(k)
+            X[:, j] = r[codes]
+    est = DecisionTreeRegressor(max_depth=depth, min_samples_leaf=min_size, random_state=0)
+    est.fit(X, y - (w @ y) / total, sample_weight=w)
+    return est

@@ -29,6 +29,7 @@ from ..core.draws import EffectDraws
 from . import panels as P
 from .results import Results
 from .tree_view import TreeView, node_records
+from .evidence_panel import EvidencePanel
 
 __all__ = ["Explorer"]
 
@@ -272,6 +273,8 @@ class Explorer(widgets.VBox):
         panels.append(_Panel("table", "Table", widgets.VBox([self._table_html])))
         con = fig_widget()
         panels.append(_Panel("contrasts", "Contrasts", widgets.VBox([con]), con))
+        self.evidence_panel = EvidencePanel(self._draws, background=self._background)
+        panels.append(_Panel("evidence", "Evidence", self.evidence_panel))
         self._panels = {p.name: p for p in panels}
         self._tabs = widgets.Tab(children=[p.body for p in panels], titles=[p.title for p in panels])
         self._tabs.observe(self._guard(self._on_tab), names="selected_index")
@@ -472,6 +475,7 @@ class Explorer(widgets.VBox):
             "linear": (s["level"], s["interval"]),
             "table": (*view, s["selected"]),
             "contrasts": (*view, s["selected"]),
+            "evidence": (*view, id(self._res)),
         }[name]
 
     def _draw_panel(self, panel: _Panel) -> None:
@@ -525,6 +529,10 @@ class Explorer(widgets.VBox):
         hit = np.flatnonzero(table["subgroup"].to_numpy() == s["selected"])
         self._table_html.value = P.table_html(table, selected_row=int(hit[0]) if hit.size else None,
                                               css_scope=f"swx-table-{self.model_id[:8]}")
+
+    def _draw_evidence(self, panel):
+        s = self._state
+        self.evidence_panel.show(self.tree, self._res.linear, level=s["level"], interval=s["interval"])
 
     def _draw_contrasts(self, panel):
         s = self._state
