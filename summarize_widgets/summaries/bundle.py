@@ -76,18 +76,8 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         the message in ``bundle.errors`` (the explorer shows it in that summary's tab). The tree
         and the groups always raise.
     progress : callable(stage, stage_index, n_stages, done_blocks, total_blocks), optional
-<<<<<<< HEAD
         Called after each block of the one pass (``stage`` is the first of :data:`STAGES`
         computed, ``stage_index`` 0 of ``n_stages`` 1). Without one, a long pass shows a tqdm bar.
-
-    Notes
-    -----
-    ONE pass over the draws, whatever is asked for: every structure (tree, groups, designs
-    and smoothing) is fitted from the validation scan's posterior mean, then the draws are
-    projected onto all of them at once (leaf sums of every depth, group sums, the linear and
-    additive maps). With the validation scan, the whole job reads each block of draws twice.
-=======
-        Called after each block of each pass; ``stage`` is one of :data:`STAGES`.
     evidence : bool, default False
         Also gather the evidence a referee asks for (heterogeneity, size paths;
         :func:`~summarize_widgets.summaries.evidence_set.gather_evidence`) into ``bundle.evidence``.
@@ -99,7 +89,14 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         summary R^2 tolerance of the size paths.
     level, interval
         With ``evidence``: credible level and interval kind of its verdicts.
->>>>>>> main
+
+    Notes
+    -----
+    ONE pass over the draws, whatever is asked for: every structure (tree, groups, designs
+    and smoothing) is fitted from the validation scan's posterior mean, then the draws are
+    projected onto all of them at once (leaf sums of every depth, group sums, the linear and
+    additive maps). With the validation scan, the whole job reads each block of draws twice
+    (``evidence=True`` adds its own passes).
     """
     depth = check_int(depth, "depth", low=1, high=8)
     max_depth = max(depth, 4) if max_depth is None else check_int(max_depth, "max_depth", low=depth, high=8)
@@ -126,22 +123,18 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         except SummaryError as exc:
             if extras == "raise":
                 raise
-<<<<<<< HEAD
             errors[name] = str(exc)
     # ... then project the draws onto all of them in ONE pass.
     results = dict(zip(plans, project(draws, list(plans.values()), progress=tick)))
     bundle = SummaryBundle(draws=draws, tree=results["tree"].at_depth(depth), groups=results.get("groups"),
                            linear=results.get("linear"), additive=results.get("additive"), errors=errors,
                            notes=list(draws.notes))  # what construction decided (an id column matched or excluded)
-=======
-            bundle.errors[name] = str(exc)
     if evidence:
         from .evidence_set import gather_evidence
 
         bundle.evidence = gather_evidence(draws, bundle.tree, linear=bundle.linear, groups=bundle.groups,
                                           stability_fits=stability_fits, threshold=threshold, tolerance=tolerance,
                                           level=level, interval=interval)
->>>>>>> main
     return bundle
 
 
