@@ -10,6 +10,8 @@ scheduler decides where that runs: Dask's threaded scheduler by default, a
 """
 from __future__ import annotations
 
+import uuid
+
 import numpy as np
 
 from .validate import SummaryError
@@ -155,8 +157,10 @@ def run_lazy_pass(draws, reducers, *, progress=None) -> None:
     v_parts = vals.to_delayed().ravel()
     d_parts = den.to_delayed().ravel() if den is not None else [None] * len(v_parts)
     edges = np.concatenate([[0], np.cumsum(vals.chunks[0])]).astype(int)
-    red = delayed(reducers, traverse=False)
-    w = delayed(draws.weights, traverse=False) if draws.weights is not None else None
+    # Named explicitly: hashing the reducers' maps (n_units x k) to name them would cost a copy.
+    token = uuid.uuid4().hex
+    red = delayed(reducers, traverse=False, name=f"pass-reducers-{token}")
+    w = delayed(draws.weights, traverse=False, name=f"pass-weights-{token}") if draws.weights is not None else None
     summed = [bool(getattr(r, "summed", False)) for r in reducers]
     per_draw = [not s for s in summed]
     parts = [delayed(_reduce_block, pure=True)(red, w, int(edges[k]), int(edges[k + 1]), v_parts[k], d_parts[k])

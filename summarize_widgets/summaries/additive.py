@@ -345,7 +345,7 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
 #: Units pygam sees when it compiles the terms on millions of units (knots, categories); the
 #: subsample always holds each numeric feature's smallest and largest value and one unit of
 #: every category, so the compiled terms are those of all units (see :func:`plan_additive`).
-COMPILE_UNITS = 200_000
+COMPILE_UNITS = 20_000
 
 
 def _compile_rows(X: np.ndarray, size: int) -> np.ndarray:
