@@ -274,7 +274,7 @@ def test_demo_and_complier_tables_fit_a_plain_article(tmp_path):
     for draws in (study.effect_draws(), study.complier_draws()):
         tree = summarize_tree(draws, max_depth=3)
         groups = summarize_groups(draws, {"owners": "tenure == 'owner'", "older homes": "dwelling_age > 60"})
-        for name, (df, caption) in ex.summary_tables(tree=tree, groups=groups, linear=summarize_linear(draws)).items():
+        for df, caption in ex.summary_tables(tree=tree, groups=groups, linear=summarize_linear(draws)).values():
             body.append(ex.to_latex(df, caption=caption, provenance=ex.provenance([tree])))
     tex = "".join(body)
     assert "ratio of sums" in tex and "Share of compliers" in tex and "Made with" not in tex.replace("% Made with", "")

@@ -2,7 +2,6 @@
 import numpy as np
 import pandas as pd
 import pytest
-import xarray as xr
 
 from builders import SamplerResults, household_study, posterior_dataset, write_sampler_netcdf, write_sampler_zarr
 from summarize_widgets import EffectDraws, SummaryError, load_draws, summarize_groups, summarize_tree
