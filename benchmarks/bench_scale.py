@@ -206,11 +206,11 @@ def main(argv=None):
 
                 path = folder / "draws.zarr"
                 write_zarr(path, f, S)
-                opener = lambda: da.from_zarr(str(path))  # noqa: E731
+                opener = lambda path=path: da.from_zarr(str(path))  # noqa: E731
             else:
                 path = folder / "draws.npy"
                 write_npy(path, f, S)
-                opener = lambda: np.load(path, mmap_mode="r")  # noqa: E731
+                opener = lambda path=path: np.load(path, mmap_mode="r")  # noqa: E731
             print(f"wrote {fmt} in {time.perf_counter() - t:.0f} s")
             read = plain_read(opener)
             with PeakAnon() as mem:
