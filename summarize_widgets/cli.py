@@ -11,6 +11,8 @@ import sys
 from datetime import datetime
 from pathlib import Path
 
+from .summaries.bundle import DEFAULT_DEPTH
+
 __all__ = ["main"]
 
 _TABLES = ("subgroups", "contrasts", "fit", "linear", "trends")
@@ -18,7 +20,8 @@ _TABLES = ("subgroups", "contrasts", "fit", "linear", "trends")
 
 def _add_summary_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("summary settings")
-    g.add_argument("--depth", type=int, default=3, help="depth of the reported subgroup tree (default 3)")
+    g.add_argument("--depth", type=int, default=DEFAULT_DEPTH,
+                   help=f"depth of the reported subgroup tree (default {DEFAULT_DEPTH})")
     g.add_argument("--max-depth", type=int, default=None, help="depth the tree is grown to (default max(depth, 4))")
     g.add_argument("--min-size", type=int, default=None, help="smallest subgroup in units (default 5%% of units, at most 1000)")
     g.add_argument("--columns", default=None, help="comma-separated covariates to use (default: all)")

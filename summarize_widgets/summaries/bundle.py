@@ -9,7 +9,10 @@ from pathlib import Path
 
 from ..core.validate import SummaryError, check_int, check_interval, check_level
 
-__all__ = ["SummaryBundle", "summarize_all"]
+__all__ = ["SummaryBundle", "summarize_all", "DEFAULT_DEPTH"]
+
+#: Depth of the subgroups reported and shown first, the same in the command line and the explorer.
+DEFAULT_DEPTH = 3
 
 @dataclass
 class SummaryBundle:
@@ -29,14 +32,14 @@ class SummaryBundle:
                                   ("groups", self.groups)) if v is not None}
 
 
-def summarize_all(draws, *, depth: int = 3, max_depth: int | None = None, min_size=None, columns=None,
+def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = None, min_size=None, columns=None,
                   groups=None, additive: bool = True, linear: bool = True, progress=None) -> SummaryBundle:
     """Tree (at ``depth``, grown to ``max_depth``), additive and linear summaries, and optional groups.
 
     Parameters
     ----------
     draws : EffectDraws
-    depth : int, default 3
+    depth : int, default DEFAULT_DEPTH (3)
         Depth of the reported subgroups.
     max_depth : int, optional
         Depth the tree is grown to (default ``max(depth, 4)``), so summary R^2 is shown for every depth.
