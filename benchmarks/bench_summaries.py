@@ -100,7 +100,7 @@ def main(argv=None):
           f"; the rest is CART on the posterior mean ({t_tree - t_leafpass:.2f} s, independent of the number of draws)")
 
     def depth_change():
-        t = tree.depth(3)
+        t = tree.at_depth(3)
         t.table()
         t.fit_r2
         return t
@@ -166,7 +166,7 @@ def main(argv=None):
         t_start, ex = timed(lambda: Explorer(draws, max_depth=6, depth=2, background=False,
                                               additive_options={"lam": lam} if lam else None))
         print(f"\nwidget start-up (tree, linear, additive with lam fixed) {t_start:8.2f} s")
-        leaves = list(ex.tree.depth(3).leaf_ids)
+        leaves = list(ex.tree.at_depth(3).leaf_ids)
         changes = {
             "depth 2 -> 3": lambda: (ex.apply(depth=2), ex.apply(depth=3)),
             "level 0.95 -> 0.90": lambda: (ex.apply(level=0.95), ex.apply(level=0.9)),

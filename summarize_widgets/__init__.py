@@ -11,6 +11,7 @@ from ._version import __version__
 from .core.validate import SummaryError
 from .summaries.additive import AdditiveSummary, summarize_additive
 from .core.draws import EffectDraws
+from .summaries.compare import Comparison, compare_posteriors, side_by_side
 from .summaries.groups import GroupSummary, summarize_groups
 from .io.load import load_draws
 from .summaries.linear import LinearSummary, summarize_linear
@@ -29,6 +30,9 @@ __all__ = [
     "LinearSummary",
     "summarize_groups",
     "GroupSummary",
+    "compare_posteriors",
+    "Comparison",
+    "side_by_side",
     "simulate_retrofit_study",
     "summarize_all",
     "write_summary_folder",

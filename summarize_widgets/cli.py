@@ -173,8 +173,8 @@ def _print_headline(bundle, level, interval) -> None:
     print(_text_table(tree.table(level=level, interval=interval)))
     try:
         r2 = tree.fit_r2_by_depth(level=level, interval=interval)
-        row = r2[r2["depth"] == tree.current_depth].iloc[0]
-        print(f"\nSummary R^2 at depth {tree.current_depth}: {row['mean']:.2f} "
+        row = r2[r2["depth"] == tree.depth].iloc[0]
+        print(f"\nSummary R^2 at depth {tree.depth}: {row['mean']:.2f} "
               f"[{row['lower']:.2f}, {row['upper']:.2f}] (share of each draw's heterogeneity the subgroups capture)")
     except Exception as exc:  # noqa: BLE001 - R^2 can be undefined (constant effects); say so, go on
         print(f"\nSummary R^2: {exc}")

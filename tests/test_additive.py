@@ -174,14 +174,13 @@ def test_curves_table_against_numpy(kind):
     T, X = _data()
     add = summarize_additive(sw.EffectDraws(T, X), lam=LAM)
     tab = add.curves(level=0.9, interval=kind)
-    assert list(tab.columns) == ["covariate", "kind", "x", "mean", "lower", "upper", "lower_joint", "upper_joint"]
     assert tab.attrs["level"] == 0.9 and tab.attrs["interval"] == kind
     # grids: 1st-99th percentile for age, the unique values of rooms, every fuel category
     lo, hi = np.percentile(X["age"], [1, 99])
     np.testing.assert_allclose(tab.loc[tab.covariate == "age", "x"].astype(float), np.linspace(lo, hi, 50))
     assert tab.loc[tab.covariate == "rooms", "x"].tolist() == [2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0]
     assert tab.loc[tab.covariate == "fuel", "x"].tolist() == ["gas", "heat pump", "oil"]
-    assert set(tab.loc[tab.covariate == "fuel", "kind"]) == {"categorical"}
+    assert set(tab.loc[tab.covariate == "fuel", "covariate_type"]) == {"categorical"}
     for name in ("age", "fuel", "rooms"):
         cd = add.curve_draws(name)
         part = tab[tab.covariate == name]
@@ -230,7 +229,7 @@ def test_settings_and_progress():
     add = summarize_additive(sw.EffectDraws(T, X), lam=LAM, grid_size=7, n_splines=6,
                              progress=lambda k, n: calls.append((k, n)))
     st = add.settings
-    assert st["kind"] == "additive" and st["lam"] == LAM and st["lam_source"] == "given"
+    assert st["summary"] == "additive" and st["lam"] == LAM and st["lam_source"] == "given"
     assert st["n_splines"] == 6 and st["grid_size"] == 7 and st["columns"] == ["age", "fuel", "rooms"]
     assert len(add.grids["age"]) == 7 and add.coef_draws.shape == (20, 6 + 3 + 6 + 1 + 1)
     assert calls and calls[-1][0] == calls[-1][1]

@@ -65,9 +65,9 @@ def linear_table() -> pd.DataFrame:
 
 def curves_table() -> pd.DataFrame:
     x = np.linspace(50, 300, 11)
-    rows = [{"covariate": "baseline_bill", "kind": "numeric", "x": v, "mean": -v / 10, "lower": -v / 10 - 1,
+    rows = [{"covariate": "baseline_bill", "covariate_type": "numeric", "x": v, "mean": -v / 10, "lower": -v / 10 - 1,
              "upper": -v / 10 + 1, "lower_joint": -v / 10 - 2, "upper_joint": -v / 10 + 2} for v in x]
-    rows += [{"covariate": "fuel", "kind": "categorical", "x": c, "mean": m, "lower": m - 1, "upper": m + 1,
+    rows += [{"covariate": "fuel", "covariate_type": "categorical", "x": c, "mean": m, "lower": m - 1, "upper": m + 1,
               "lower_joint": m - 2, "upper_joint": m + 2} for c, m in (("gas", -3.0), ("oil", -8.0), ('a&b "q"', 1.0))]
     df = pd.DataFrame(rows)
     df.attrs["level"] = 0.95
@@ -86,7 +86,7 @@ def real():
     })
     mu = -0.08 * cov["baseline_bill"].to_numpy() + np.where(cov["<script>alert(1)</script>"] == 'a&b "q"', -9.0, 0.0)
     draws = EffectDraws(mu + rng.normal(0, 2.0, (S, n)), cov, label="bill change")
-    tree = summarize_tree(draws, max_depth=3).depth(2)
+    tree = summarize_tree(draws, max_depth=3).at_depth(2)
     groups = summarize_groups(draws, {"big & <b>bills</b>": "baseline_bill > 200", "small": "baseline_bill <= 100"})
     return draws, tree, groups
 
@@ -188,9 +188,9 @@ def test_latex_label_and_kind_errors():
     with pytest.raises(SummaryError, match=r"`df` is not a summary table.*Got \['a'\]"):
         ex.to_latex(pd.DataFrame({"a": [1]}))
     with pytest.raises(SummaryError, match=r"`df` lacks the columns a 'linear' table needs: \['term'\]"):
-        ex.to_latex(subgroup_table(), kind="linear")
-    with pytest.raises(SummaryError, match=r"`kind` must be one of"):
-        ex.to_latex(subgroup_table(), kind="pie")
+        ex.to_latex(subgroup_table(), table="linear")
+    with pytest.raises(SummaryError, match=r"`table` must be one of"):
+        ex.to_latex(subgroup_table(), table="pie")
     with pytest.raises(SummaryError, match=r"`df` must be a pandas DataFrame"):
         ex.to_latex([1, 2])
 
@@ -378,7 +378,7 @@ def test_provenance_from_results(real):
     assert prov["draws"]["n_draws"] == 120 and prov["draws"]["n_units"] == 240
     assert prov["summaries"]["tree"]["depth"] == 2 and prov["summaries"]["tree"]["min_size"] == tree.min_size
     assert prov["summaries"]["tree"]["columns"] == tree.columns
-    assert prov["summaries"]["groups"]["kind"] == "groups"
+    assert prov["summaries"]["groups"]["summary"] == "groups"
     assert "other_draws" not in prov  # shared draws hashed once
 
 

@@ -284,7 +284,7 @@ def test_builders_name_missing_columns_and_empty_tables():
 
 
 def test_plot_subgroups_on_a_real_tree(tree):
-    t2 = tree.depth(2)
+    t2 = tree.at_depth(2)
     tab = t2.table(level=0.9)
     leaf = int(tab["subgroup"].iloc[0])
     fig = F.plot_subgroups(t2, level=0.9, highlight=np.int64(leaf), show_draws=True)
@@ -325,7 +325,7 @@ def test_plot_functions_reject_wrong_result_types(tree):
 
 # -- summary R^2 by depth --------------------------------------------------------------------
 def test_fit_by_depth_on_a_real_tree(tree):
-    t2 = tree.depth(2)
+    t2 = tree.at_depth(2)
     fig = F.plot_fit_by_depth(t2, level=0.8)
     summary = tree.fit_r2_by_depth(level=0.8)
     tr = _trace(fig, "summary R²")
@@ -368,9 +368,9 @@ def test_fit_by_depth_errors():
 # -- additive curves -------------------------------------------------------------------------
 def _curves():
     x = np.linspace(20, 80, 30)
-    rows = [dict(covariate="age", kind="numeric", x=v, mean=-0.1 * v, lower=-0.1 * v - 1, upper=-0.1 * v + 1,
+    rows = [dict(covariate="age", covariate_type="numeric", x=v, mean=-0.1 * v, lower=-0.1 * v - 1, upper=-0.1 * v + 1,
                  lower_joint=-0.1 * v - 2, upper_joint=-0.1 * v + 2) for v in x[::-1]]
-    rows += [dict(covariate="heating", kind="categorical", x=c, mean=m, lower=m - 1, upper=m + 1,
+    rows += [dict(covariate="heating", covariate_type="categorical", x=c, mean=m, lower=m - 1, upper=m + 1,
                   lower_joint=m - 2, upper_joint=m + 2) for c, m in [("gas", -1.0), ("heat <pump>", 2.0)]]
     df = pd.DataFrame(rows)
     df.attrs.update(level=0.9, label="Change in winter bill")
@@ -421,8 +421,8 @@ def test_trends_errors(kwargs, match):
 
 def test_trends_rejects_unknown_kind():
     df = _curves()
-    df.loc[df.covariate == "heating", "kind"] = "ordinal"
-    with pytest.raises(SummaryError, match=r"column 'kind' for covariate 'heating' must be one of"):
+    df.loc[df.covariate == "heating", "covariate_type"] = "ordinal"
+    with pytest.raises(SummaryError, match=r"column 'covariate_type' for covariate 'heating' must be one of"):
         F.curves_figure(df)
 
 
@@ -497,7 +497,7 @@ def test_contrasts_orient_subgroup_as_a_whichever_column_it_is_in():
 
 
 def test_plot_contrasts_on_a_real_tree_against_numpy(tree):
-    t2 = tree.depth(2)
+    t2 = tree.at_depth(2)
     ids = [int(i) for i in t2.leaf_ids]
     a = ids[1]
     fig = F.plot_contrasts(t2, np.int64(a), level=0.9)

@@ -134,7 +134,7 @@ def test_float32_and_float64_give_the_same_summary(name):
 def test_every_summary_records_its_settings(name):
     d, _, _ = _draws("plain", S=20)
     s = SUMMARIES[name](d)
-    assert s.settings["kind"] == name and s.settings["n_draws"] == 20
+    assert s.settings["summary"] == name and s.settings["n_draws"] == 20
 
 
 @pytest.mark.parametrize("name", SUMMARIES)

@@ -7,7 +7,7 @@ import summarize_widgets as sw
 from helpers import household_covariates
 from summarize_widgets import SummaryError
 from summarize_widgets.core.design import classify_columns, linear_design
-from summarize_widgets.summaries.linear import summarize_linear
+from summarize_widgets.summaries.linear import LINEAR_COLUMNS, summarize_linear
 
 
 def _data(n=500, S=200, seed=3, dtype=np.float64, offset=0.0):
@@ -147,7 +147,7 @@ def test_table_intervals_against_numpy(kind):
     T, X = _data()
     lin = summarize_linear(sw.EffectDraws(T, X))
     tab = lin.table(level=0.9, interval=kind)
-    assert list(tab.columns) == ["term", "mean", "sd", "lower", "upper", "prob_positive"]
+    assert list(tab.columns) == list(LINEAR_COLUMNS)
     assert tab.attrs["level"] == 0.9 and tab.attrs["interval"] == kind
     assert tab.attrs["reference"] == {"fuel": "gas"}
     G = lin.coef_draws
@@ -176,7 +176,7 @@ def test_settings_columns_and_progress():
     calls = []
     lin = summarize_linear(sw.EffectDraws(T, X), columns=["age", "fuel"], progress=lambda k, n: calls.append((k, n)))
     assert lin.terms == ["(intercept)", "age", "fuel = heat pump", "fuel = oil"]
-    assert lin.settings["kind"] == "linear" and lin.settings["columns"] == ["age", "fuel"]
+    assert lin.settings["summary"] == "linear" and lin.settings["columns"] == ["age", "fuel"]
     assert calls and calls[-1][0] == calls[-1][1]
     assert lin.fill == {}
     assert "rooms" in summarize_linear(sw.EffectDraws(T, X)).fill

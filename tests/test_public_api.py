@@ -11,6 +11,8 @@ MODULES = ["summarize_widgets", "summarize_widgets.core", "summarize_widgets.cor
            "summarize_widgets.core.intervals", "summarize_widgets.io", "summarize_widgets.summaries",
            "summarize_widgets.summaries.tree", "summarize_widgets.summaries.groups",
            "summarize_widgets.summaries.linear", "summarize_widgets.summaries.additive",
+           "summarize_widgets.summaries.compare",
+           "summarize_widgets.summaries.evidence",
            "summarize_widgets.datasets", "summarize_widgets.figures", "summarize_widgets.export",
            "summarize_widgets.cli", "summarize_widgets.widgets"]
 

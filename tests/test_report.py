@@ -126,9 +126,9 @@ def test_write_report_refuses_then_overwrites(tmp_path, results):
     assert path == tmp_path / "report.html"
     first = path.read_text()
     with pytest.raises(FileExistsError, match=r"report\.html.*already exists.*overwrite=True.*--overwrite"):
-        rp.write_report(tmp_path, tree=tree.depth(1), figures=None)
+        rp.write_report(tmp_path, tree=tree.at_depth(1), figures=None)
     assert path.read_text() == first
-    rp.write_report(tmp_path, tree=tree.depth(1), figures=None, overwrite=True)
+    rp.write_report(tmp_path, tree=tree.at_depth(1), figures=None, overwrite=True)
     assert path.read_text() != first
     assert os.listdir(tmp_path) == ["report.html"]  # no temporary files left
 

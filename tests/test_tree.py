@@ -58,7 +58,7 @@ def test_fit_r2_equals_definition_from_residuals_at_every_depth():
     tree = summarize_tree(d, max_depth=4, min_size=40)
     by_depth = tree.fit_r2_draws_by_depth()
     for depth in range(1, 5):
-        groups = tree.depth(depth).assign(X).to_numpy()
+        groups = tree.at_depth(depth).assign(X).to_numpy()
         r2 = np.empty(T.shape[0])
         for s in range(T.shape[0]):
             fitted = pd.Series(T[s] * w).groupby(groups).transform("sum") / pd.Series(w).groupby(groups).transform("sum")
@@ -78,11 +78,11 @@ def test_depth_truncation_equals_tree_grown_to_that_depth():
     deep = summarize_tree(d, max_depth=4, min_size=50)
     for depth in (1, 2, 3):
         direct = summarize_tree(d, max_depth=depth, min_size=50).table()
-        trunc = deep.depth(depth).table()
+        trunc = deep.at_depth(depth).table()
         assert direct["rule"].tolist() == trunc["rule"].tolist()
         np.testing.assert_allclose(trunc[["n_units", "mean", "lower", "upper"]].to_numpy(float),
                                    direct[["n_units", "mean", "lower", "upper"]].to_numpy(float), rtol=1e-12)
-        np.testing.assert_allclose(deep.depth(depth).fit_r2, summarize_tree(d, max_depth=depth, min_size=50).fit_r2, rtol=1e-12)
+        np.testing.assert_allclose(deep.at_depth(depth).fit_r2, summarize_tree(d, max_depth=depth, min_size=50).fit_r2, rtol=1e-12)
 
 
 @pytest.mark.parametrize("kind", ["equal-tailed", "highest-density"])
@@ -188,7 +188,7 @@ def test_large_offset_does_not_lose_r2_to_cancellation():
 
 def test_nodes_describe_every_node_to_the_current_depth():
     T, X = _data(S=50)
-    tree = summarize_tree(sw.EffectDraws(T, X), max_depth=3, min_size=80).depth(2)
+    tree = summarize_tree(sw.EffectDraws(T, X), max_depth=3, min_size=80).at_depth(2)
     nodes = tree.nodes()
     assert nodes["depth"].max() == 2 and nodes.iloc[0]["parent"] == -1
     assert nodes.loc[nodes.is_leaf, "node"].tolist() == tree.leaf_ids.tolist()
@@ -219,7 +219,7 @@ def test_bad_covariates_are_named():
         summarize_tree(T)
     tree = summarize_tree(sw.EffectDraws(T, X), max_depth=2)
     with pytest.raises(SummaryError, match=r"`depth` must be between 1 and 2; got 3"):
-        tree.depth(3)
+        tree.at_depth(3)
     with pytest.raises(SummaryError, match=r"`level` must be a number strictly between 0 and 1"):
         tree.table(level=95)
     with pytest.raises(SummaryError, match=r"`interval` must be one of"):

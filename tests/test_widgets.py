@@ -172,7 +172,7 @@ def test_table_html_escapes_and_marks_the_selected_row():
     tab = pd.DataFrame({"subgroup": [1, 2], "rule": ["x < 1 & <b>bold</b>", "x >= 1"], "n_units": [5, 6],
                         "share": [0.4, 0.6], "mean": [1.0, 2.0], "sd": [0.1, 0.1], "lower": [0.8, 1.8],
                         "upper": [1.2, 2.2], "prob_positive": [1.0, 1.0]})
-    tab.attrs.update(level=0.95, interval="equal-tailed", label="effect", kind="tree")
+    tab.attrs.update(level=0.95, interval="equal-tailed", label="effect", summary="tree")
     out = P.table_html(tab, selected_rows=[1], css_scope="scope-x")
     assert "<b>bold</b>" not in out and "&lt;b&gt;bold&lt;/b&gt;" in out
     assert ".scope-x tbody tr:nth-child(2)" in out and "nth-child(1)" not in out
@@ -197,9 +197,9 @@ def test_estimate_text_matches_the_tree_view(tmp_path):
 
 
 def test_status_html_escapes_and_checks_kind():
-    assert "&lt;script&gt;" in P.status_html("<script>", kind="error")
-    with pytest.raises(ValueError, match=r"`kind` must be one of \['busy', 'error', 'info'\]; got 'loud'"):
-        P.status_html("x", kind="loud")
+    assert "&lt;script&gt;" in P.status_html("<script>", tone="error")
+    with pytest.raises(ValueError, match=r"`tone` must be one of \['busy', 'error', 'info'\]; got 'loud'"):
+        P.status_html("x", tone="loud")
 
 
 # -- the Explorer ------------------------------------------------------------------------------------
@@ -217,7 +217,7 @@ def test_explorer_rejects_bad_arguments(draws):
 
 
 def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
-    reference = summarize_tree(draws, max_depth=3).depth(2)
+    reference = summarize_tree(draws, max_depth=3).at_depth(2)
     assert explorer.tree_view.leaf_ids == [int(i) for i in reference.leaf_ids]
     assert explorer.tree_view.nodes == node_records(reference.nodes())
     tab = reference.table()
@@ -251,7 +251,7 @@ def _plain(rule):
 
 def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     effects = explorer._panels["effects"].figure
-    leaves3 = summarize_tree(draws, max_depth=3).depth(3)
+    leaves3 = summarize_tree(draws, max_depth=3).at_depth(3)
     explorer.apply(depth=3)
     assert len(explorer.tree_view.leaf_ids) == len(leaves3.leaf_ids)
     assert explorer.depth_control.value == 3
@@ -288,7 +288,7 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     explorer.apply(depth=2)
     parent = {r["node"]: r["parent"] for r in node_records(leaves3.nodes())}
     assert explorer.tree_view.selected == parent[leaf]
-    assert _highlighted_rule(effects) == _plain(leaves3.depth(2).table().set_index("subgroup").loc[parent[leaf], "rule"])
+    assert _highlighted_rule(effects) == _plain(leaves3.at_depth(2).table().set_index("subgroup").loc[parent[leaf], "rule"])
     # ...and comes back to the picked subgroup when the tree is deep enough again.
     explorer.apply(depth=1)
     explorer.apply(depth=3)
@@ -304,7 +304,7 @@ def _highlighted_rules(fig_widget):
 
 
 def test_selecting_an_inner_node_highlights_its_subgroups_everywhere(explorer, draws):
-    tree = summarize_tree(draws, max_depth=3).depth(2)
+    tree = summarize_tree(draws, max_depth=3).at_depth(2)
     nodes = tree.nodes()
     inner = int(nodes.loc[(nodes["depth"] == 1) & ~nodes["is_leaf"], "node"].iloc[0])
     inside = nodes.loc[(nodes["parent"] == inner) & nodes["is_leaf"]]
@@ -403,7 +403,7 @@ def test_min_size_and_covariates_recompute_on_a_worker_thread(draws, monkeypatch
     ex.min_size_control.value = 150
     assert ex.wait(timeout=60)
     assert ex.tree.min_size == 150
-    reference = summarize_tree(draws, max_depth=3, min_size=150).depth(2)
+    reference = summarize_tree(draws, max_depth=3, min_size=150).at_depth(2)
     assert ex.tree_view.leaf_ids == [int(i) for i in reference.leaf_ids]
     assert seen and max(seen) > 0 and ex.progress.layout.display == "none"
     ex.columns_control.value = ("tenure", "baseline_bill")
@@ -432,13 +432,13 @@ def test_the_widget_stays_usable_while_a_recompute_runs(draws, monkeypatch):
     assert started.wait(30)
     assert "swx-status-busy" in ex.status.value
     ex.apply(depth=3)  # served from the previous results while the worker waits
-    assert len(ex.tree_view.leaf_ids) == len(summarize_tree(draws, max_depth=3).depth(3).leaf_ids)
+    assert len(ex.tree_view.leaf_ids) == len(summarize_tree(draws, max_depth=3).at_depth(3).leaf_ids)
     ex.min_size_control.value = 120  # overtakes the first request: only its result is shown
     gate.set()
     assert ex.wait(timeout=60)
     assert ex.tree.min_size == 120 and ex.min_size_control.value == 120
     assert ex.settings["depth"] == 3
-    assert ex.tree_view.leaf_ids == [int(i) for i in summarize_tree(draws, max_depth=3, min_size=120).depth(3).leaf_ids]
+    assert ex.tree_view.leaf_ids == [int(i) for i in summarize_tree(draws, max_depth=3, min_size=120).at_depth(3).leaf_ids]
 
 
 def test_recompute_api_raises_and_keeps_the_view(explorer, draws):

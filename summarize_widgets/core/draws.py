@@ -15,7 +15,7 @@ import pandas as pd
 
 from .validate import SummaryError, check_covariates, check_int, describe_nonfinite
 
-__all__ = ["EffectDraws"]
+__all__ = ["EffectDraws", "DrawBlock", "ScanRecord", "DIRECTIONS"]
 
 # Rows per block in a pass: about 8 MB of float64 at 100,000 units.
 _BLOCK_BYTES = 8 * 2**20
@@ -42,6 +42,52 @@ class DrawBlock:
     rows: slice
     wt: np.ndarray
     w: np.ndarray | None
+
+
+@dataclass(frozen=True)
+class ScanRecord:
+    """What the validation scan measured, per draw (read-only arrays of shape (n_draws,)).
+
+    Attributes
+    ----------
+    centre : ndarray
+        A centring constant ``c_s`` per draw (a typical value of the draw; any constant is exact,
+        a typical one avoids cancellation, docs/method.md section 3).
+    centred_squares : ndarray
+        ``sum_i w_si (T_si - c_s)^2`` (for complier-weighted draws
+        ``sum_i v_i (ITT_y,si - c_s pi_si)^2 / pi_si``).
+    weight_sums : ndarray
+        ``sum_i w_si``.
+    weighted_sums : ndarray
+        ``sum_i w_si T_si``.
+    """
+
+    centre: np.ndarray
+    centred_squares: np.ndarray
+    weight_sums: np.ndarray
+    weighted_sums: np.ndarray
+
+    def __post_init__(self):
+        for name in ("centre", "centred_squares", "weight_sums", "weighted_sums"):
+            getattr(self, name).flags.writeable = False
+
+
+#: Allowed values of ``EffectDraws(better=...)``.
+DIRECTIONS = ("higher", "lower")
+
+
+def _check_better(better) -> str:
+    if better not in DIRECTIONS:
+        raise SummaryError(f"`better` must be 'higher' or 'lower' (which direction of the effect is good); got {better!r}.")
+    return better
+
+
+def _check_unit(unit) -> str:
+    if unit is None:
+        return ""
+    if not isinstance(unit, str):
+        raise SummaryError(f"`unit` must be a string such as 'kWh per month'; got {type(unit).__name__}.")
+    return unit.strip()
 
 
 def _as_matrix(values, name: str):
@@ -129,6 +175,18 @@ def _check_weights(weights, n_draws: int, n_units: int, name: str = "weights"):
     return w
 
 
+def _check_source(source, arr) -> str:
+    """The given run name, or an id of the memory behind ``arr`` (shared by views of one array)."""
+    if source is None:
+        base = arr
+        while isinstance(getattr(base, "base", None), np.ndarray):
+            base = base.base
+        return f"memory:{base.__array_interface__['data'][0]:x}:{arr.shape[0]}"
+    if not isinstance(source, str) or not source.strip():
+        raise SummaryError(f"`source` must be a non-empty string naming the sampler run; got {source!r}.")
+    return source
+
+
 class EffectDraws:
     """Posterior draws of unit-level effects, with the units' covariates.
 
@@ -150,6 +208,17 @@ class EffectDraws:
         Taken from the input's dims when it has a ``chain`` dim; 1 otherwise.
     label : str, default "effect"
         What the values are (used in tables and figure titles).
+    unit : str, optional
+        The effect's unit, for example ``"kWh per month"`` (axis titles and table notes).
+    better : {"higher", "lower"}, default "higher"
+        Which direction of the effect is good: "largest benefit" and colour scales follow it.
+    source : str, optional
+        Names the sampler run the draws come from (for example a file name). Two draw
+        sets with the same ``source`` and the same number of draws are taken as paired
+        (draw ``s`` of one and draw ``s`` of the other come from the same sampler state)
+        when two posteriors are compared. Default: an id of the array's memory, so draws
+        built on the very same array (for example the outcome ITT of complier-weighted
+        draws and the plain ITT draws) are recognised as paired.
 
     Notes
     -----
@@ -159,20 +228,25 @@ class EffectDraws:
     used by every summary R^2 (METHOD.md section 3).
     """
 
-    def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect"):
+    def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect", unit: str | None = None,
+                 better: str = "higher", source=None):
         arr, dim_chains = _as_matrix(values, "values")
         cov = check_covariates(covariates)
         _check_shape(arr, cov.shape[0], "values")
         w = _check_weights(weights, arr.shape[0], arr.shape[1])
-        self._init(arr, None, w, cov, chains if chains is not None else dim_chains, label, "values")
+        self._source = _check_source(source, arr)
+        self._unit_ids = covariates.index.copy() if isinstance(covariates, pd.DataFrame) else None
+        self._init(arr, None, w, cov, chains if chains is not None else dim_chains, label, "values", unit, better)
 
     # -- construction ---------------------------------------------------------------
-    def _init(self, values, denominator, weights, covariates, chains, label, name):
+    def _init(self, values, denominator, weights, covariates, chains, label, name, unit=None, better="higher"):
         self._values = values  # (S, n): effects, or outcome ITT for complier-weighted draws
         self._den = denominator  # None, or (S, n) uptake ITT
         self._weights = weights  # None, (n,) or (S, n) (for complier-weighted: unit weights only)
         self.covariates = covariates
         self.label = str(label)
+        self.unit = _check_unit(unit)
+        self.better = _check_better(better)
         n_draws = values.shape[0]
         if chains is None:
             chains = 1
@@ -186,7 +260,8 @@ class EffectDraws:
         self._scan(name)
 
     @classmethod
-    def from_itt(cls, outcome_itt, uptake_itt, covariates, *, weights=None, chains=None, label: str = "LATE"):
+    def from_itt(cls, outcome_itt, uptake_itt, covariates, *, weights=None, chains=None, label: str = "LATE",
+                 unit: str | None = None, better: str = "higher", source=None):
         """Complier-weighted draws for an encouragement (instrument) design.
 
         Parameters
@@ -196,8 +271,8 @@ class EffectDraws:
         uptake_itt : array-like, shape (n_draws, n_units)
             Per-draw unit-level effect of the offer on uptake (the complier share,
             non-negative under monotonicity).
-        covariates, chains, label
-            As for :class:`EffectDraws`.
+        covariates, chains, label, unit, better, source
+            As for :class:`EffectDraws` (the default ``source`` is that of ``outcome_itt``).
         weights : None or array-like, shape (n_units,)
             Fixed unit weights ``v_i``, multiplying both sums.
 
@@ -221,7 +296,9 @@ class EffectDraws:
             )
         w = _check_weights(weights, num.shape[0], num.shape[1])
         self = cls.__new__(cls)
-        self._init(num, den, w, cov, chains if chains is not None else (c1 or c2), label, "outcome_itt")
+        self._source = _check_source(source, num)
+        self._unit_ids = covariates.index.copy() if isinstance(covariates, pd.DataFrame) else None
+        self._init(num, den, w, cov, chains if chains is not None else (c1 or c2), label, "outcome_itt", unit, better)
         return self
 
     def _scan(self, name):
@@ -243,7 +320,7 @@ class EffectDraws:
         self._bad_rows = []
         self._uptake_min, self._uptake_neg = np.inf, 0
         self._lock = threading.Lock()
-        blocks = list(self.blocks())
+        blocks = list(self.blocks())  # public block iteration, as every pass
         # Overflow (finite values whose weighted sums exceed float64) is detected below and reported, not warned.
         with np.errstate(over="ignore", invalid="ignore"):
             if len(blocks) == 1:
@@ -263,6 +340,7 @@ class EffectDraws:
             self._mean = np.where(colsum_w > 0, colsum_wt / np.where(colsum_w > 0, colsum_w, 1.0), np.nan)
         if not (colsum_w > 0).any():
             raise SummaryError("Every unit has zero total weight; nothing to summarize.")
+        self._scan_record = ScanRecord(self._centre, self._q, self._wsum, self._wtsum)
 
     def _scan_block(self, block):
         r = block.rows
@@ -376,9 +454,10 @@ class EffectDraws:
         step = rows_per_block or self.block_rows()
         for start in range(0, self.n_draws, step):
             r = slice(start, min(start + step, self.n_draws))
-            yield self._block(r)
+            yield self.block(r)
 
-    def _block(self, r: slice) -> DrawBlock:
+    def block(self, r: slice) -> DrawBlock:
+        """The :class:`DrawBlock` of draws ``r`` (a slice of rows), as every pass reads it."""
         vals = self._values[r]
         # Products that overflow float64 are caught by the validation scan and reported as an error.
         with np.errstate(over="ignore", invalid="ignore"):
@@ -432,6 +511,30 @@ class EffectDraws:
         return self._weights
 
     @property
+    def unit_weights(self) -> np.ndarray | None:
+        """Fixed weight of each unit, shape (n_units,): the given per-unit weights, ones when none
+        were given. For complier-weighted draws the unit weights ``v_i`` that multiply both sums.
+        None when the weights vary by draw (plain draws with per-draw weights).
+        """
+        if self._weights is None:
+            return np.ones(self.n_units)
+        if self._weights.ndim == 2:
+            return None
+        return self._weights
+
+    @property
+    def weights_description(self) -> str:
+        """"none", "per unit" or "per draw and unit", for provenance and settings."""
+        if self._weights is None:
+            return "none"
+        return "per unit" if self._weights.ndim == 1 else "per draw and unit"
+
+    @property
+    def scan(self) -> ScanRecord:
+        """The validation scan's per-draw sums (frozen); see :class:`ScanRecord`."""
+        return self._scan_record
+
+    @property
     def is_complier_weighted(self) -> bool:
         """True for draws built with :meth:`from_itt`."""
         return self._den is not None
@@ -461,6 +564,16 @@ class EffectDraws:
         return self._wtsum / self._wsum
 
     @property
+    def source(self) -> str:
+        """Which sampler run the draws come from (given, or an id of the array's memory); read-only."""
+        return self._source
+
+    @property
+    def unit_ids(self) -> pd.Index:
+        """The index of the covariate table as given (``covariates`` itself is renumbered 0..n-1)."""
+        return self._unit_ids
+
+    @property
     def draws_per_chain(self) -> int:
         return self.n_draws // self.n_chains
 
@@ -473,7 +586,9 @@ class EffectDraws:
             "n_chains": self.n_chains,
             "dtype": str(self.dtype),
             "complier_weighted": self.is_complier_weighted,
-            "weights": None if self._weights is None else ("per unit" if self._weights.ndim == 1 else "per draw and unit"),
+            "weights": None if self._weights is None else self.weights_description,
+            "unit": self.unit,
+            "better": self.better,
             "covariates": list(self.covariates.columns),
         }
 

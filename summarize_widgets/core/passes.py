@@ -59,7 +59,7 @@ def run_pass(draws, reducers: Sequence[Reducer], *, progress: Callable[[int, int
     total = len(starts)
 
     def work(start):
-        block = draws._block(slice(start, min(start + step, draws.n_draws)))
+        block = draws.block(slice(start, min(start + step, draws.n_draws)))
         for r in reducers:
             r.consume(block)
 

@@ -44,13 +44,13 @@ def check_level(level) -> float:
     return float(level)
 
 
-INTERVAL_KINDS = ("equal-tailed", "highest-density")
+INTERVAL_TYPES = ("equal-tailed", "highest-density")
 
 
-def check_interval(kind) -> str:
-    if kind not in INTERVAL_KINDS:
-        raise SummaryError(f"`interval` must be one of {_fmt_names(INTERVAL_KINDS)}; got {kind!r}.")
-    return kind
+def check_interval(interval) -> str:
+    if interval not in INTERVAL_TYPES:
+        raise SummaryError(f"`interval` must be one of {_fmt_names(INTERVAL_TYPES)}; got {interval!r}.")
+    return interval
 
 
 def check_columns(columns, available: Sequence[str], name: str = "columns") -> list[str]:

@@ -704,7 +704,7 @@ def simulate_retrofit_study(
         "posterior_complier": shares["complier"].mean(axis=0),
     })
     settings = {
-        "kind": "retrofit demo", "n_households": n, "n_draws": n_draws, "seed": seed, "dtype": str(dt),
+        "study": "retrofit demo", "n_households": n, "n_draws": n_draws, "seed": seed, "dtype": str(dt),
         "outcome_law": outcome_law, "coef_prior_sd": float(coef_prior_sd), "noise_prior": "reference, 1/sigma^2 (n - p degrees of freedom)",
         "uptake_prior": "Dirichlet(1, 1, 1) per tenure x fuel cell",
     }

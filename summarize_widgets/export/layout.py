@@ -14,7 +14,7 @@ import pandas as pd
 
 from ..core.validate import SummaryError, check_int
 
-__all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_kind", "format_cell"]
+__all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_type", "TABLE_COLUMNS", "format_cell"]
 
 WEAK_MARK = "\u2020"  # dagger: the weak-uptake footnote symbol
 
@@ -135,7 +135,8 @@ class _Layout:
         self.notes = notes
 
 
-_KINDS = {
+#: The columns each table type needs (what the exporters lay out).
+TABLE_COLUMNS = {
     "subgroups": ["subgroup", "rule", "n_units", "share", "mean", "lower", "upper", "prob_positive"],
     "contrasts": ["subgroup_a", "subgroup_b", "rule_a", "rule_b", "difference", "lower", "upper", "prob_a_greater"],
     "linear": ["term", "mean", "lower", "upper", "prob_positive"],
@@ -144,22 +145,23 @@ _KINDS = {
 }
 
 
-def table_kind(df, kind):
+def table_type(df, table=None):
+    """The table type of ``df`` ("subgroups", "contrasts", "linear", "curves", "fit_r2"): ``table`` checked, or guessed from the columns."""
     if not isinstance(df, pd.DataFrame):
         raise SummaryError(f"`df` must be a pandas DataFrame from a summary's .table()/.contrasts()/.curves(); got {type(df).__name__}.")
-    if kind is not None:
-        if kind not in _KINDS:
-            raise SummaryError(f"`kind` must be one of {sorted(_KINDS)}; got {kind!r}.")
-        missing = [c for c in _KINDS[kind] if c not in df.columns]
+    if table is not None:
+        if table not in TABLE_COLUMNS:
+            raise SummaryError(f"`table` must be one of {sorted(TABLE_COLUMNS)}; got {table!r}.")
+        missing = [c for c in TABLE_COLUMNS[table] if c not in df.columns]
         if missing:
-            raise SummaryError(f"`df` lacks the columns a {kind!r} table needs: {missing}; it has {list(df.columns)}.")
-        return kind
+            raise SummaryError(f"`df` lacks the columns a {table!r} table needs: {missing}; it has {list(df.columns)}.")
+        return table
     for name in ("contrasts", "curves", "fit_r2", "subgroups", "linear"):
-        if all(c in df.columns for c in _KINDS[name]):
+        if all(c in df.columns for c in TABLE_COLUMNS[name]):
             return name
     raise SummaryError(
         "`df` is not a summary table: expected the columns of one of "
-        + "; ".join(f"{k} ({', '.join(v)})" for k, v in _KINDS.items())
+        + "; ".join(f"{k} ({', '.join(v)})" for k, v in TABLE_COLUMNS.items())
         + f". Got {list(df.columns)}."
     )
 
@@ -170,16 +172,16 @@ def _level_text(df) -> str:
 
 
 def _interval_note(df, what: str) -> str:
-    level, kind = df.attrs.get("level"), df.attrs.get("interval", "equal-tailed")
+    level, interval = df.attrs.get("level"), df.attrs.get("interval", "equal-tailed")
     lev = f"{100 * float(level):g}% " if level is not None else ""
-    return f"Intervals: {lev}{kind} posterior credible intervals of {what}, written [lower, upper]."
+    return f"Intervals: {lev}{interval} posterior credible intervals of {what}, written [lower, upper]."
 
 
-def _layout(df: pd.DataFrame, kind: str) -> _Layout:
+def _layout(df: pd.DataFrame, table: str) -> _Layout:
     iv = _level_text(df)
     notes: list[str] = []
     rows = []
-    if kind == "subgroups":
+    if table == "subgroups":
         by_id = pd.api.types.is_integer_dtype(df["subgroup"])
         weak = df["weak_uptake"].astype(bool).to_numpy() if "weak_uptake" in df.columns else np.zeros(len(df), bool)
         headers = ([("Subgroup", "Subgroup", "r"), ("Rule", "Rule", "l")] if by_id
@@ -196,7 +198,7 @@ def _layout(df: pd.DataFrame, kind: str) -> _Layout:
             below = f" below {floor:g}" if floor is not None else " near zero"
             notes.append(f"{WEAK_MARK} Weak uptake: the interval of this subgroup's complier share reaches{below}, "
                          "so its ratio (LATE) estimate is unstable.")
-    elif kind == "contrasts":
+    elif table == "contrasts":
         by_id = pd.api.types.is_integer_dtype(df["subgroup_a"])
         a, b = ("rule_a", "rule_b") if by_id else ("subgroup_a", "subgroup_b")
         headers = [("Subgroup A", "Subgroup A", "l"), ("Subgroup B", "Subgroup B", "l"),
@@ -208,7 +210,7 @@ def _layout(df: pd.DataFrame, kind: str) -> _Layout:
                          ("interval", (r.lower, r.upper)), ("num", r.prob_a_greater)])
         notes.append(_interval_note(df, "each difference, computed draw by draw")
                      + " P(A > B): posterior probability that A's effect exceeds B's.")
-    elif kind == "linear":
+    elif table == "linear":
         headers = [("Term", "Term", "l"), ("Coefficient", "Coefficient", "r"), (iv, escape_latex(iv), "c"),
                    ("P(>0)", "$P(>0)$", "r")]
         for r in df.itertuples(index=False):
@@ -218,7 +220,7 @@ def _layout(df: pd.DataFrame, kind: str) -> _Layout:
         reference = df.attrs.get("reference")
         if reference:
             notes.append("Reference categories: " + "; ".join(f"{k} = {v}" for k, v in dict(reference).items()) + ".")
-    elif kind == "curves":
+    elif table == "curves":
         headers = [("Covariate", "Covariate", "l"), ("Value", "Value", "r"), ("Mean", "Mean", "r"),
                    (f"{iv} (pointwise)", escape_latex(f"{iv} (pointwise)"), "c"),
                    (f"{iv} (simultaneous)", escape_latex(f"{iv} (simultaneous)"), "c")]
@@ -270,8 +272,8 @@ def format_cell(cell, digits: int, fmt: str) -> str:
     return escape_latex(value) if fmt == "tex" else str(value)
 
 
-def table_layout(df, kind=None, digits: int = 2):
+def table_layout(df, table=None, digits: int = 2):
     """Validate a summary table and return (its layout, checked digits)."""
-    kind = table_kind(df, kind)
+    table = table_type(df, table)
     digits = check_int(digits, "digits", low=0, high=15)
-    return _layout(df, kind), digits
+    return _layout(df, table), digits

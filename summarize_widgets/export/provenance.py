@@ -163,7 +163,7 @@ def provenance(draws_or_results=None, *, inputs=None, settings=None) -> dict:
             continue
         if hasattr(obj, "settings"):
             s = dict(obj.settings)
-            key = name or str(s.get("kind", type(obj).__name__))
+            key = name or str(s.get("summary", type(obj).__name__))
             while key in record["summaries"]:
                 key += "_"
             record["summaries"][key] = jsonable(s)

@@ -1,7 +1,7 @@
 """Paper-ready tables, provenance files and atomic file writes.
 
 Every summary's ``.table()`` / ``.contrasts()`` / ``.curves()`` returns a DataFrame of
-raw numbers. :func:`summarize_widgets._table_layout.table_layout` decides, per kind of
+raw numbers. :func:`summarize_widgets.export.layout.table_layout` decides, per type of
 table, which columns a reader sees and how each cell is typed (text, rule, count,
 number, interval); the renderers here only add markup: LaTeX (booktabs), Markdown,
 HTML. CSV keeps every column at full precision.
@@ -28,7 +28,7 @@ import pandas as pd
 from ..core.files import refuse_existing, write_atomic
 from .provenance import hash_array, hash_file, jsonable, provenance, provenance_lines
 from .provenance import provenance as _make_provenance  # export_tables' `provenance` argument shadows the name
-from .layout import (WEAK_MARK, escape_latex, format_cell, rule_to_latex, rule_to_text, table_kind,
+from .layout import (WEAK_MARK, escape_latex, format_cell, rule_to_latex, rule_to_text, table_type,
                             table_layout)
 from ..core.validate import SummaryError, check_int
 
@@ -61,7 +61,7 @@ FORMATS = ("tex", "md", "csv", "html")
 _LABEL_RE = re.compile(r"^[A-Za-z0-9:._\-]+$")
 
 
-def to_latex(df, *, caption=None, label=None, digits: int = 2, provenance=None, kind=None) -> str:
+def to_latex(df, *, caption=None, label=None, digits: int = 2, provenance=None, table=None) -> str:
     """A booktabs LaTeX table (``\\toprule``, ``\\midrule``, ``\\bottomrule``; needs ``\\usepackage{booktabs}``).
 
     Parameters
@@ -78,7 +78,7 @@ def to_latex(df, *, caption=None, label=None, digits: int = 2, provenance=None, 
         Decimals for every non-integer number.
     provenance : dict, optional
         From :func:`provenance`: written as ``%`` comment lines above the table and a short note below it.
-    kind : {"subgroups", "contrasts", "linear", "curves", "fit_r2"}, optional
+    table : {"subgroups", "contrasts", "linear", "curves", "fit_r2"}, optional
         Detected from the columns when omitted.
 
     Returns
@@ -86,7 +86,7 @@ def to_latex(df, *, caption=None, label=None, digits: int = 2, provenance=None, 
     str
         A ``table`` float holding the tabular and its notes.
     """
-    lay, digits = table_layout(df, kind, digits)
+    lay, digits = table_layout(df, table, digits)
     if label is not None and not _LABEL_RE.match(str(label)):
         raise SummaryError(f"`label` must use only letters, digits and ': . _ -' (a LaTeX \\label key); got {label!r}.")
     lines = []
@@ -136,12 +136,12 @@ def _md_code(s: str) -> str:
     return f"{fence}{pad}{s}{pad}{fence}" if s else ""
 
 
-def to_markdown(df, *, caption=None, digits: int = 2, provenance=None, kind=None) -> str:
+def to_markdown(df, *, caption=None, digits: int = 2, provenance=None, table=None) -> str:
     """A pipe table (GitHub / pandoc Markdown) with the caption above and notes below.
 
     Parameters are those of :func:`to_latex`; rules are written as code spans, other text backslash-escaped.
     """
-    lay, digits = table_layout(df, kind, digits)
+    lay, digits = table_layout(df, table, digits)
     align = {"l": ":---", "r": "---:", "c": ":---:"}
     out = []
     if caption is not None:
@@ -172,12 +172,12 @@ def to_csv(df, **to_csv_kwargs) -> str:
     return df.to_csv(index=False, lineterminator="\n", **to_csv_kwargs)
 
 
-def to_html(df, *, caption=None, digits: int = 2, provenance=None, kind=None, css_class: str = "sw-table") -> str:
+def to_html(df, *, caption=None, digits: int = 2, provenance=None, table=None, css_class: str = "sw-table") -> str:
     """An HTML ``<table class="sw-table">`` with ``<caption>``, header, body and a notes footer; all text escaped.
 
     Parameters are those of :func:`to_latex`; ``css_class`` names the table's class.
     """
-    lay, digits = table_layout(df, kind, digits)
+    lay, digits = table_layout(df, table, digits)
     esc = html.escape
     align = {"l": "sw-l", "r": "sw-r", "c": "sw-c"}
     out = [f'<table class="{esc(css_class)}">']
@@ -220,7 +220,7 @@ def curve_points(curves, points=None, *, n_points: int = 5) -> pd.DataFrame:
     DataFrame
         The selected rows (same columns and attrs as ``curves``).
     """
-    table_kind(curves, "curves")
+    table_type(curves, "curves")
     n_points = check_int(n_points, "n_points", low=1)
     known = list(dict.fromkeys(curves["covariate"]))
     if points is not None:
@@ -232,7 +232,7 @@ def curve_points(curves, points=None, *, n_points: int = 5) -> pd.DataFrame:
     keep = []
     for cov in (known if points is None else list(points)):
         sub = curves[curves["covariate"] == cov]
-        numeric = sub["kind"].iloc[0] == "numeric" if "kind" in sub.columns else pd.api.types.is_numeric_dtype(sub["x"])
+        numeric = sub["covariate_type"].iloc[0] == "numeric" if "covariate_type" in sub.columns else pd.api.types.is_numeric_dtype(sub["x"])
         if points is None:
             idx = (sub.index[np.unique(np.linspace(0, len(sub) - 1, min(n_points, len(sub))).round().astype(int))]
                    if numeric else sub.index)
@@ -273,7 +273,7 @@ def summary_tables(*, tree=None, groups=None, linear=None, additive=None, level=
     """Name -> (table, caption) for every summary given, in report order (used by export and the report)."""
     out: dict[str, tuple[pd.DataFrame, str]] = {}
     if tree is not None:
-        d = getattr(tree, "current_depth", None)
+        d = getattr(tree, "depth", None)
         tag = f"_depth{d}" if d is not None else ""
         lab = getattr(tree, "label", "effect")
         out[f"subgroups{tag}"] = (_call(tree.table, level, interval), f"Subgroups of the {lab} (tree depth {d})")

@@ -517,12 +517,12 @@ def plot_fit_by_depth(tree, *, level: float = 0.95, interval: str = "equal-taile
     summary = tree.fit_r2_by_depth(level=level, interval=interval)
     draws = tree.fit_r2_draws_by_depth() if show_draws else None
     if current_depth is None:
-        current_depth = getattr(tree, "current_depth", None)
+        current_depth = getattr(tree, "depth", None)
     return fit_by_depth_figure(summary, draws, current_depth=current_depth, title=title)
 
 
 # -- additive curves -------------------------------------------------------------------------
-_CURVE_COLS = ["covariate", "kind", "x", "mean", "lower", "upper", "lower_joint", "upper_joint"]
+_CURVE_COLS = ["covariate", "covariate_type", "x", "mean", "lower", "upper", "lower_joint", "upper_joint"]
 # Pointwise band over the simultaneous band: the two alphas stack to a visibly darker core.
 _POINTWISE_FILL = _rgba(BAND, 0.30)
 _JOINT_FILL = _rgba(BAND, 0.13)
@@ -608,9 +608,9 @@ def curves_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, effe
     for j, name in enumerate(chosen):
         d = curves[curves["covariate"] == name]
         row_col = dict(row=j // cols + 1, col=j % cols + 1)
-        kinds = set(d["kind"])
+        kinds = set(d["covariate_type"])
         if kinds - {"numeric", "categorical"} or len(kinds) != 1:
-            raise SummaryError(f"`curves` column 'kind' for covariate {name!r} must be one of "
+            raise SummaryError(f"`curves` column 'covariate_type' for covariate {name!r} must be one of "
                                f"'numeric' or 'categorical'; got {sorted(map(str, kinds))}.")
         add = _add_curve if kinds == {"numeric"} else _add_categories
         add(fig, d, row_col=row_col)

@@ -4,7 +4,7 @@ A penalized additive model (pygam's ``LinearGAM``) is fitted once to the weighte
 posterior mean, its smoothing chosen by pygam's grid search (GCV, its default
 criterion for a Gaussian model of unknown scale) unless given. Its model matrix
 and penalty are then frozen and the linear smoother is applied to every draw in
-one pass (METHOD.md sections 2 and 4): with the smoothing fixed this is exactly
+one pass (docs/method.md sections 2 and 4): with the smoothing fixed this is exactly
 what refitting the same model to each draw would give. Weights: see
 :mod:`summarize_widgets.linear` (fixed weights ``wbar_i``, pseudo-values
 ``Y_si = w_si T_si / wbar_i``; per-draw weights enter the numerator only).
@@ -23,12 +23,18 @@ import pandas as pd
 
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
 from ..core.validate import SummaryError, check_columns, check_int
-from ..core.intervals import interval as credible_interval
-from ..core.intervals import simultaneous_band, summarize_draws
+from ..core.intervals import simultaneous_band
+from ..core.stats import MC_COLUMNS, STAT_COLUMNS
+from .base import SummaryResult
 from .projection import ProjectedFit
 from .linear import FrozenProjection, check_draws
 
-__all__ = ["summarize_additive", "AdditiveSummary"]
+__all__ = ["summarize_additive", "AdditiveSummary", "CURVE_COLUMNS", "MISSING_COLUMNS"]
+
+#: Columns of the additive summary's curves table, in order.
+CURVE_COLUMNS = ("covariate", "covariate_type", "x", *STAT_COLUMNS, "lower_joint", "upper_joint", *MC_COLUMNS)
+#: Columns of the table of effects at a missing value.
+MISSING_COLUMNS = ("covariate", *STAT_COLUMNS, *MC_COLUMNS)
 
 # pygam adds sqrt(machine epsilon) to the diagonal of every penalty "to improve condition"
 # (pygam/pygam.py, GAM._pirls: S = sp.sparse.diags(np.ones(m) * np.sqrt(EPS))); the frozen
@@ -112,7 +118,7 @@ def _grid(obs: np.ndarray, grid_size: int) -> np.ndarray:
     return np.linspace(lo, hi, grid_size)
 
 
-class AdditiveSummary(ProjectedFit):
+class AdditiveSummary(SummaryResult, ProjectedFit):
     """Posterior of an additive summary ``f_0 + sum_j f_j(x_j)`` of the effect.
 
     Build it with :func:`summarize_additive`.
@@ -120,7 +126,7 @@ class AdditiveSummary(ProjectedFit):
     Attributes
     ----------
     columns : list of str
-    kinds : dict
+    covariate_types : dict
         Covariate -> "numeric" or "categorical".
     grids : dict
         Covariate -> grid values (numeric) or category labels (categorical).
@@ -134,11 +140,14 @@ class AdditiveSummary(ProjectedFit):
     settings : dict
     """
 
-    def __init__(self, coef, r2, info, C, C_missing, design, keep, bbar, lam, label, settings):
+    summary_type = "additive"
+
+    def __init__(self, draws, coef, r2, info, C, C_missing, design, keep, bbar, lam, settings):
+        super().__init__(draws, settings)
         self.coef_draws = coef
         self._r2 = r2
         self.columns = [it["spec"].name for it in info]
-        self.kinds = {it["spec"].name: it["spec"].kind for it in info}
+        self.covariate_types = {it["spec"].name: it["spec"].kind for it in info}
         self.grids = {k: v[0] for k, v in C.items()}
         self._C = {k: v[1] for k, v in C.items()}
         self._C_missing = C_missing
@@ -147,8 +156,14 @@ class AdditiveSummary(ProjectedFit):
         self._keep = keep
         self._bbar = bbar
         self.lam = lam
-        self.label = label
-        self.settings = settings
+
+    @property
+    def kinds(self) -> dict:
+        """Deprecated name of :attr:`covariate_types`."""
+        import warnings
+
+        warnings.warn("AdditiveSummary.kinds is now AdditiveSummary.covariate_types.", DeprecationWarning, stacklevel=2)
+        return dict(self.covariate_types)
 
     @property
     def overall_draws(self) -> np.ndarray:
@@ -173,44 +188,73 @@ class AdditiveSummary(ProjectedFit):
     def curves(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """Every covariate's curve with pointwise and simultaneous bands.
 
-        Columns: ``covariate``, ``kind``, ``x`` (grid value or category label), ``mean``,
-        ``lower``, ``upper`` (pointwise credible interval at ``level``), ``lower_joint``,
-        ``upper_joint`` (simultaneous band over that covariate's grid,
-        :func:`~summarize_widgets.intervals.simultaneous_band`). ``df.attrs`` holds ``level``,
-        ``interval``, ``label``, ``kind``.
+        Columns (:data:`CURVE_COLUMNS`): ``covariate``, ``covariate_type`` ("numeric" or
+        "categorical"), ``x`` (grid value or category label), the statistics core's ``mean``,
+        ``sd``, ``lower``, ``upper`` (pointwise credible interval at ``level``),
+        ``prob_positive``, then ``lower_joint``, ``upper_joint`` (simultaneous band over that
+        covariate's grid, :func:`~summarize_widgets.core.intervals.simultaneous_band`) and the
+        Monte Carlo error columns. ``df.attrs`` holds ``level``, ``interval``, ``label``,
+        ``summary``.
         """
         frames = []
         for name in self.columns:
             cd = self.curve_draws(name)
-            lo, hi = credible_interval(cd, level, interval)
-            jlo, jhi = simultaneous_band(cd, level)
             x = self.grids[name]
-            frames.append(pd.DataFrame({
+            cols = self._columns([("curve", name, k) for k in range(cd.shape[1])], cd, level=level, interval=interval)
+            jlo, jhi = simultaneous_band(cd, level)
+            frame = pd.DataFrame({
                 "covariate": name,
-                "kind": self.kinds[name],
+                "covariate_type": self.covariate_types[name],
                 "x": pd.Series(list(x), dtype=object),
-                "mean": cd.mean(axis=0),
-                "lower": lo,
-                "upper": hi,
+                **{k: cols[k] for k in STAT_COLUMNS},
                 "lower_joint": jlo,
                 "upper_joint": jhi,
-            }))
+                **{k: cols[k] for k in MC_COLUMNS},
+            })
+            frames.append(frame)
         out = pd.concat(frames, ignore_index=True)
-        out.attrs.update({"level": float(level), "interval": interval, "label": self.label, "kind": "additive"})
+        out.attrs.update({"level": float(level), "interval": interval, "label": self.label, "unit": self.draws.unit,
+                          "better": self.draws.better, "summary": "additive"})
         return out
 
     def missing_effects(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """For numeric covariates with missing values: the effect if every unit's value were missing.
 
         Same scale as :meth:`curves` (``overall_s + f_j,s(fill) + beta_j,s - avg_i(...)``).
-        Columns ``covariate``, ``mean``, ``sd``, ``lower``, ``upper``, ``prob_positive``;
+        Columns (:data:`MISSING_COLUMNS`): ``covariate`` and the statistics core's columns;
         empty when no summarized numeric covariate has missing values.
         """
         names = list(self._C_missing)
         if not names:
-            return pd.DataFrame(columns=["covariate", "mean", "sd", "lower", "upper", "prob_positive"])
+            return pd.DataFrame(columns=list(MISSING_COLUMNS))
         draws = self.coef_draws @ np.column_stack([self._C_missing[k] for k in names])
-        return pd.DataFrame({"covariate": names, **summarize_draws(draws, level, interval)})
+        cols = self._columns([("missing", k) for k in names], draws, level=level, interval=interval)
+        return pd.DataFrame({"covariate": names, **cols})
+
+    def apply_to(self, draws, *, progress=None) -> "AdditiveSummary":
+        """The same smooth terms (basis, smoothing and grids frozen) projected from other draws.
+
+        ``draws`` (EffectDraws) must describe the same units (same covariate index, order and
+        values in this summary's columns) and give positive weight to the same units. The
+        smoothing chosen on the first posterior mean is kept (not searched again), so the
+        frozen smoother is the same; applied to the draws summarized, this reproduces the
+        summary exactly.
+        """
+        from .compare import check_same_units
+
+        keep = check_draws(draws)
+        check_same_units(self.draws, draws, self.columns)
+        if not np.array_equal(keep, self._keep):
+            raise SummaryError(
+                f"`draws` gives zero weight to {int((~keep).sum())} units and this summary to {int((~self._keep).sum())} "
+                "(not the same units); the frozen basis needs the same units with positive weight."
+            )
+        out = summarize_additive(draws, columns=self.columns, n_splines=self.settings["n_splines"], lam=dict(self.lam),
+                                 grid_size=self.settings["grid_size"], progress=progress)
+        for key in ("lam_source", "criterion"):
+            out.settings[key] = self.settings[key]
+        out.settings["structure_from"] = self.settings.get("structure_from", self.label)
+        return out
 
     def __repr__(self) -> str:
         return f"AdditiveSummary('{self.label}': {len(self.columns)} covariates, {self.coef_draws.shape[0]} draws)"
@@ -364,8 +408,6 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
         C[name] = (values, rows)
 
     settings = {
-        "kind": "additive",
-        "label": draws.label,
         "columns": cols,
         "n_splines": n_splines,
         "lam": dict(lam_used),
@@ -376,7 +418,8 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
         "n_units": draws.n_units,
         "n_units_used": int(keep.sum()),
         "weights": "posterior-mean weight per unit (per-draw weights enter the numerator only)"
-        if draws.has_draw_weights else ("per unit" if draws._weights is not None else "none"),
+        if draws.has_draw_weights else draws.weights_description,
         "complier_weighted": draws.is_complier_weighted,
+        "structure_from": draws.label,
     }
-    return AdditiveSummary(coef, r2, info, C, C_missing, design, keep, bbar, lam_used, draws.label, settings)
+    return AdditiveSummary(draws, coef, r2, info, C, C_missing, design, keep, bbar, lam_used, settings)

@@ -55,7 +55,7 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
 
     depth = check_int(depth, "depth", low=1, high=8)
     max_depth = max(depth, 4) if max_depth is None else check_int(max_depth, "max_depth", low=depth, high=8)
-    tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=progress).depth(depth)
+    tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=progress).at_depth(depth)
     return SummaryBundle(
         draws=draws,
         tree=tree,

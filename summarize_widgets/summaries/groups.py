@@ -7,6 +7,7 @@ import numpy as np
 import pandas as pd
 
 from ..core.passes import LinearMap, run_pass
+from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
 from ..core.validate import SummaryError
 
@@ -34,22 +35,34 @@ def _mask(covariates: pd.DataFrame, label: str, query: str) -> np.ndarray:
     return sel.to_numpy()
 
 
-class GroupSummary:
-    """Posterior of the effect in each pre-specified group (groups may overlap)."""
+class GroupSummary(SummaryResult):
+    """Posterior of the effect in each pre-specified group (groups may overlap).
 
-    def __init__(self, draws, labels, queries, masks, theta, uptake):
-        self.draws = draws
+    Attributes
+    ----------
+    labels : list of str
+        Group labels, ``"All units"`` first.
+    queries : list of str
+        The query of each group (``"all units"`` first).
+    group_draws : ndarray, shape (n_draws, 1 + n_groups)
+        Per-draw effect of each group, columns in ``labels`` order.
+    """
+
+    summary_type = "groups"
+
+    def __init__(self, draws, labels, queries, masks, theta, uptake, weights=None):
+        super().__init__(draws, {"groups": dict(zip(labels[1:], queries[1:])), "n_draws": draws.n_draws,
+                                 "n_units": draws.n_units, "complier_weighted": draws.is_complier_weighted})
         self.labels = labels
         self.queries = queries
         self._masks = masks
         self.group_draws = theta  # (n_draws, 1 + n_groups): "All units" first
         self._uptake = uptake
+        #: Per-draw total weight of each group, shape (n_draws, 1 + n_groups), "All units" first.
+        self.group_weight_draws = np.broadcast_to(weights, theta.shape) if weights is not None else None
 
-    @property
-    def settings(self) -> dict:
-        return {"kind": "groups", "label": self.draws.label, "groups": dict(zip(self.labels[1:], self.queries[1:])),
-                "n_draws": self.draws.n_draws, "n_units": self.draws.n_units,
-                "complier_weighted": self.draws.is_complier_weighted}
+    def _attrs(self) -> dict:
+        return {"label": self.label, "summary": "groups", "unit": self.draws.unit, "better": self.draws.better}
 
     def _info(self) -> pd.DataFrame:
         wbar = self.draws.mean_weights
@@ -62,20 +75,36 @@ class GroupSummary:
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """Same columns as :meth:`TreeSummary.table`; ``subgroup`` is the label, ``rule`` the query."""
-        return effect_table(self.group_draws, self._info(), level=level, kind=interval, n_chains=self.draws.n_chains,
-                            uptake=self._uptake, uptake_floor=uptake_floor,
-                            attrs={"label": self.draws.label, "kind": "groups"})
+        cols = self._columns(self.labels, self.group_draws, level=level, interval=interval)
+        return effect_table(cols, self._info(), level=level, interval=interval, uptake=self._uptake,
+                            uptake_floor=uptake_floor, attrs=self._attrs())
 
     def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
         """Every pair of groups (the "All units" row included): difference, interval, P(A > B)."""
-        return contrast_table(self.group_draws, self.labels, self.queries, level=level, kind=interval,
-                              subgroup=subgroup, attrs={"label": self.draws.label, "kind": "groups"})
+        return contrast_table(self.group_draws, self.labels, self.queries, level=level, interval=interval,
+                              subgroup=subgroup, attrs=self._attrs(),
+                              stats=lambda keys, diff: self._columns(keys, diff, level=level, interval=interval))
+
+    def apply_to(self, draws, *, progress=None) -> "GroupSummary":
+        """The same groups (memberships frozen) with effects computed from other draws of the same units.
+
+        ``draws`` (EffectDraws) must describe the same units: same covariate index, in the same
+        order, with the same covariate values. Applied to the draws these groups were computed
+        from, it reproduces this summary exactly.
+        """
+        from ..core.draws import EffectDraws
+        from .compare import check_same_units
+
+        if not isinstance(draws, EffectDraws):
+            raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
+        check_same_units(self.draws, draws, None)
+        return _project(draws, list(self.labels), list(self.queries), self._masks.astype(np.float64), progress)
 
     def __repr__(self) -> str:
-        return f"GroupSummary of '{self.draws.label}': {', '.join(self.labels)}"
+        return f"GroupSummary of '{self.label}': {', '.join(self.labels)}"
 
 
-def summarize_groups(draws, groups: Mapping[str, str], level: float = 0.95, *, progress=None) -> GroupSummary:
+def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=None) -> GroupSummary:
     """Effects of pre-specified subgroups, one pass over the draws.
 
     Parameters
@@ -84,8 +113,8 @@ def summarize_groups(draws, groups: Mapping[str, str], level: float = 0.95, *, p
     groups : mapping of label -> pandas query string
         For example ``{"older owners": "age >= 65 and tenure == 'owner'"}``; evaluated
         with ``DataFrame.eval`` on ``draws.covariates``. Groups may overlap.
-    level : float, default 0.95
-        Checked here; pass a level to ``.table()`` to change it later.
+    level : deprecated
+        Ignored (it never changed the result); pass ``level`` to ``.table()`` instead.
 
     Returns
     -------
@@ -93,11 +122,14 @@ def summarize_groups(draws, groups: Mapping[str, str], level: float = 0.95, *, p
         Its table has a first row for all units.
     """
     from ..core.draws import EffectDraws
-    from ..core.validate import check_level
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
-    check_level(level)
+    if level is not None:
+        import warnings
+
+        warnings.warn("summarize_groups(level=...) is ignored and will be removed; pass level to .table().",
+                      DeprecationWarning, stacklevel=2)
     if not isinstance(groups, Mapping) or not groups:
         raise SummaryError("`groups` must be a non-empty mapping of label -> pandas query, e.g. {'older': 'age >= 65'}.")
     labels, queries, masks = [ALL_UNITS], ["all units"], [np.ones(draws.n_units, bool)]
@@ -111,17 +143,21 @@ def summarize_groups(draws, groups: Mapping[str, str], level: float = 0.95, *, p
         labels.append(label)
         queries.append(query)
         masks.append(m)
-    M = np.column_stack(masks).astype(np.float64)
+    return _project(draws, labels, queries, np.column_stack(masks).astype(np.float64), progress)
+
+
+def _project(draws, labels, queries, M, progress=None) -> GroupSummary:
+    """One pass: every group's per-draw effect from the membership matrix ``M`` (n_units, n_groups)."""
     red = LinearMap(M, with_weights=draws.has_draw_weights)
     run_pass(draws, [red], progress=progress)
     if draws.has_draw_weights:
         W = red.weights_out
     else:
-        w = draws._weights if draws._weights is not None else np.ones(draws.n_units)
+        w = draws.unit_weights
         W = w @ M
     theta = ratio_draws(red.out, W, labels)
     uptake = None
     if draws.is_complier_weighted:
-        v = draws._weights if draws._weights is not None else np.ones(draws.n_units)
+        v = draws.unit_weights
         uptake = W / (v @ M)
-    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake)
+    return GroupSummary(draws, labels, queries, M.astype(bool), theta, uptake, W)

@@ -7,7 +7,7 @@ Both the linear and the additive summary project each draw onto a FIXED design
     gamma_s = (B' Wbar B + P)^{-1} B' (w_s * T_s),
 
 the weighted (penalized) least-squares fit of the pseudo-values
-``Y_si = w_si T_si / wbar_i`` with weights ``wbar_i`` (METHOD.md sections 2 and 4;
+``Y_si = w_si T_si / wbar_i`` with weights ``wbar_i`` (docs/method.md sections 2 and 4;
 ``P = 0`` here, a spline penalty in :mod:`summarize_widgets.additive`). With fixed
 per-unit weights ``Y = T`` and this is the plain weighted projection. With per-draw
 weights (including complier-weighted draws from :meth:`EffectDraws.from_itt`,
@@ -26,9 +26,14 @@ from ..core.design import classify_columns, linear_design
 from ..core.passes import LinearMap, run_pass
 from .projection import ProjectedFit
 from ..core.validate import SummaryError, check_columns
-from ..core.intervals import summarize_draws
+from ..core.draws import EffectDraws
+from ..core.stats import MC_COLUMNS, STAT_COLUMNS
+from .base import SummaryResult
 
-__all__ = ["summarize_linear", "LinearSummary"]
+__all__ = ["summarize_linear", "LinearSummary", "FrozenProjection", "LINEAR_COLUMNS"]
+
+#: Columns of the linear summary's table, in order.
+LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS)
 
 # A draw whose centred total sum of squares is below this share of W * c^2 has no heterogeneity
 # (rounding level; the same rule as the tree summary).
@@ -38,7 +43,7 @@ _NO_HETEROGENEITY = 1e-20
 class _PseudoSquares:
     """Reducer: per draw ``sum_i wbar_i (Y_si - c_s)^2 = sum_i (wt_si - c_s wbar_i)^2 / wbar_i``.
 
-    Needed only with per-draw weights (with fixed weights this is ``draws._q``).
+    Needed only with per-draw weights (with fixed weights this is ``draws.scan.centred_squares``).
     Centring by ``c_s`` happens before squaring, in float64, to avoid cancellation.
     """
 
@@ -150,13 +155,13 @@ class FrozenProjection:
         reducers = [lmap]
         squares = None
         if draws.has_draw_weights:
-            squares = _PseudoSquares(draws.mean_weights, self.keep, draws._centre)
+            squares = _PseudoSquares(draws.mean_weights, self.keep, draws.scan.centre)
             reducers.append(squares)
         run_pass(draws, reducers, progress=progress)
         self.H = None  # the n x p map is not needed after the pass
         z = lmap.out
-        q = squares.out if squares is not None else draws._q
-        c = draws._centre
+        q = squares.out if squares is not None else draws.scan.centred_squares
+        c = draws.scan.centre
         coef = z @ self.coef_map.T
         zc = z - c[:, None] * self.q1
         dc = coef.copy()
@@ -172,20 +177,19 @@ class FrozenProjection:
 
 
 def check_draws(draws):
-    from ..core.draws import EffectDraws
-
+    """Raise unless ``draws`` is an EffectDraws; return the mask of units with positive mean weight."""
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")
     keep = draws.mean_weights > 0
     return keep
 
 
-class LinearSummary(ProjectedFit):
+class LinearSummary(SummaryResult, ProjectedFit):
     """Posterior of the best linear approximation ``B gamma`` of the effect, ``B = [1, X]``.
 
     Build it with :func:`summarize_linear`. The coefficients' posterior is the posterior
     of the best linear approximation over this sample, not of a "true" linear model
-    (METHOD.md section 4).
+    (docs/method.md section 4).
 
     Attributes
     ----------
@@ -201,7 +205,10 @@ class LinearSummary(ProjectedFit):
     settings : dict
     """
 
-    def __init__(self, coef, r2, terms, specs, fill, design, keep, label, settings):
+    summary_type = "linear"
+
+    def __init__(self, draws, coef, r2, terms, specs, fill, design, keep, settings):
+        super().__init__(draws, settings)
         self.coef_draws = coef
         self._r2 = r2
         self.terms = list(terms)
@@ -210,20 +217,35 @@ class LinearSummary(ProjectedFit):
         self.fill = {k: v for k, v in fill.items() if any(s.name == k and s.n_missing for s in specs)}
         self._design = design
         self._keep = keep
-        self.label = label
-        self.settings = settings
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """One row per coefficient.
 
-        Columns: ``term``, ``mean``, ``sd``, ``lower``, ``upper`` (credible interval at
-        ``level``), ``prob_positive`` (share of draws above 0). ``df.attrs`` holds ``level``,
-        ``interval``, ``label``, ``reference`` (reference categories) and ``kind``.
+        Columns (:data:`LINEAR_COLUMNS`): ``term``, then the statistics core's ``mean``, ``sd``,
+        ``lower``, ``upper`` (credible interval at ``level``), ``prob_positive`` (share of draws
+        above 0) and Monte Carlo error columns. ``df.attrs`` holds ``level``, ``interval``,
+        ``label``, ``reference`` (reference categories) and ``summary``.
         """
-        stats = summarize_draws(self.coef_draws, level, interval)
-        out = pd.DataFrame({"term": self.terms, **stats})
-        out.attrs.update({"level": float(level), "interval": interval, "label": self.label,
-                          "reference": dict(self.reference), "kind": "linear"})
+        cols = self._columns(self.terms, self.coef_draws, level=level, interval=interval)
+        out = pd.DataFrame({"term": self.terms, **cols})
+        out.attrs.update({"level": float(level), "interval": interval, "label": self.label, "unit": self.draws.unit,
+                          "better": self.draws.better, "reference": dict(self.reference), "summary": "linear"})
+        return out
+
+    def apply_to(self, draws, *, progress=None) -> "LinearSummary":
+        """The same linear terms (design frozen) projected from other draws of the same units.
+
+        ``draws`` (EffectDraws) must describe the same units: same covariate index, in the same
+        order, with the same values in this summary's columns. The design (terms, reference
+        categories, fill values of missing numerics) depends on the covariates only, so it is
+        the same design; applied to the draws summarized, this reproduces the summary exactly.
+        """
+        from .compare import check_same_units
+
+        check_draws(draws)
+        check_same_units(self.draws, draws, self.columns)
+        out = summarize_linear(draws, columns=self.columns, progress=progress)
+        out.settings["structure_from"] = self.settings.get("structure_from", self.label)
         return out
 
     def __repr__(self) -> str:
@@ -263,15 +285,14 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
     proj = FrozenProjection(draws, Bk, keep, intercept=0, terms=terms)
     coef, r2 = proj.run(draws, progress=progress)
     settings = {
-        "kind": "linear",
-        "label": draws.label,
         "columns": cols,
         "terms": list(terms),
         "n_draws": draws.n_draws,
         "n_units": draws.n_units,
         "n_units_used": int(keep.sum()),
         "weights": "posterior-mean weight per unit (per-draw weights enter the numerator only)"
-        if draws.has_draw_weights else ("per unit" if draws._weights is not None else "none"),
+        if draws.has_draw_weights else draws.weights_description,
         "complier_weighted": draws.is_complier_weighted,
+        "structure_from": draws.label,
     }
-    return LinearSummary(coef, r2, terms, specs, fill, Bk, keep, draws.label, settings)
+    return LinearSummary(draws, coef, r2, terms, specs, fill, Bk, keep, settings)

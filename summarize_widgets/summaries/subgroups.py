@@ -3,7 +3,7 @@
 Tree leaves and pre-specified groups both reduce to two per-draw sums per
 subgroup: ``A_sg = sum_{i in g} w_si T_si`` and ``W_sg = sum_{i in g} w_si``.
 The subgroup effect in draw s is their ratio (for complier-weighted draws this
-is the Wald ratio of METHOD.md section 5). This module turns the sums into the
+is the Wald ratio of docs/method.md section 5). This module turns the sums into the
 shared table columns, so the tree and group summaries cannot drift apart.
 """
 from __future__ import annotations
@@ -12,13 +12,23 @@ import numpy as np
 import pandas as pd
 
 from ..core.validate import SummaryError, check_interval, check_level
-from ..core.intervals import ess_bulk, interval, prob_above
+from ..core.intervals import credible_interval
+from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 
-__all__ = ["ratio_draws", "effect_table", "contrast_table", "UPTAKE_FLOOR"]
+__all__ = ["ratio_draws", "effect_table", "contrast_table", "UPTAKE_FLOOR", "SUBGROUP_COLUMNS", "CONTRAST_COLUMNS",
+           "UPTAKE_COLUMNS"]
 
 #: A complier-weighted subgroup is flagged when the lower credible limit of its
 #: complier share is below this value (its Wald ratio is then unstable).
 UPTAKE_FLOOR = 0.05
+
+#: Columns of every subgroup table (tree leaves and groups), in order.
+SUBGROUP_COLUMNS = ("subgroup", "rule", "n_units", "share", *STAT_COLUMNS, *MC_COLUMNS)
+#: Columns complier-weighted subgroup tables add.
+UPTAKE_COLUMNS = ("uptake_share", "uptake_lower", "uptake_upper", "weak_uptake")
+#: Columns of every contrast table, in order.
+CONTRAST_COLUMNS = ("subgroup_a", "subgroup_b", "rule_a", "rule_b", "difference", "sd", "lower", "upper",
+                    "prob_a_greater", *MC_COLUMNS)
 
 
 def ratio_draws(A: np.ndarray, W: np.ndarray, names) -> np.ndarray:
@@ -34,49 +44,47 @@ def ratio_draws(A: np.ndarray, W: np.ndarray, names) -> np.ndarray:
     return A / W
 
 
-def effect_table(theta: np.ndarray, info: pd.DataFrame, *, level: float, kind: str, n_chains: int,
+def effect_table(columns: dict, info: pd.DataFrame, *, level: float, interval: str,
                  uptake: np.ndarray | None = None, uptake_floor: float = UPTAKE_FLOOR, attrs: dict | None = None) -> pd.DataFrame:
-    """The shared subgroup table.
+    """The shared subgroup table (:data:`SUBGROUP_COLUMNS`, then :data:`UPTAKE_COLUMNS` for
+    complier-weighted draws).
 
     Parameters
     ----------
-    theta : ndarray, shape (n_draws, n_groups)
-        Per-draw subgroup effects.
+    columns : dict
+        The statistics core's columns of the per-draw subgroup effects
+        (:meth:`~summarize_widgets.summaries.base.SummaryResult._columns`).
     info : DataFrame
-        One row per group with at least ``subgroup``, ``rule``, ``n_units``, ``share``.
+        One row per group with ``subgroup``, ``rule``, ``n_units``, ``share``.
     uptake : ndarray, shape (n_draws, n_groups), optional
         Per-draw complier share of each group (complier-weighted draws only).
     """
     level = check_level(level)
-    kind = check_interval(kind)
-    lo, hi = interval(theta, level, kind)
+    interval = check_interval(interval)
     out = info.reset_index(drop=True).copy()
-    out["mean"] = theta.mean(axis=0)
-    out["sd"] = theta.std(axis=0, ddof=1)
-    out["lower"] = lo
-    out["upper"] = hi
-    out["prob_positive"] = prob_above(theta, 0.0)
-    ess = ess_bulk(theta, n_chains)
-    out["ess"] = ess
-    out["mcse"] = out["sd"] / np.sqrt(ess)
+    for name in (*STAT_COLUMNS, *MC_COLUMNS):
+        out[name] = columns[name]
     if uptake is not None:
-        ulo, _ = interval(uptake, level, kind)
+        ulo, uhi = credible_interval(uptake, level, interval)
         out["uptake_share"] = uptake.mean(axis=0)
         out["uptake_lower"] = ulo
+        out["uptake_upper"] = uhi
         out["weak_uptake"] = ulo < uptake_floor
-    out.attrs.update({"level": level, "interval": kind, **(attrs or {})})
+    out.attrs.update({"level": level, "interval": interval, **(attrs or {})})
     if uptake is not None:
         out.attrs["uptake_floor"] = uptake_floor
     return out
 
 
-def contrast_table(theta: np.ndarray, ids, rules, *, level: float, kind: str, subgroup=None, attrs=None) -> pd.DataFrame:
-    """Every pair (a, b) of subgroups: posterior of ``theta_a - theta_b`` per draw (METHOD.md section 6).
+def contrast_table(theta: np.ndarray, ids, rules, *, level: float, interval: str, stats, subgroup=None,
+                   attrs=None) -> pd.DataFrame:
+    """Every pair (a, b) of subgroups: posterior of ``theta_a - theta_b`` per draw (docs/method.md section 6).
 
-    With ``subgroup`` given, only the pairs (subgroup, other) are returned.
+    With ``subgroup`` given, only the pairs (subgroup, other) are returned. ``stats(keys, diff)``
+    turns per-draw differences into the statistics core's columns (the result's ``_columns``).
     """
     level = check_level(level)
-    kind = check_interval(kind)
+    interval = check_interval(interval)
     ids = list(ids)
     rules = list(rules)
     if subgroup is not None:
@@ -87,21 +95,23 @@ def contrast_table(theta: np.ndarray, ids, rules, *, level: float, kind: str, su
     else:
         pairs = [(a, b) for a in range(len(ids)) for b in range(a + 1, len(ids))]
     if not pairs:
-        out = pd.DataFrame(columns=["subgroup_a", "subgroup_b", "rule_a", "rule_b", "difference", "lower", "upper", "prob_a_greater"])
+        out = pd.DataFrame(columns=list(CONTRAST_COLUMNS))
     else:
         ia = np.array([p[0] for p in pairs])
         ib = np.array([p[1] for p in pairs])
         diff = theta[:, ia] - theta[:, ib]
-        lo, hi = interval(diff, level, kind)
+        cols = stats([("contrast", ids[i], ids[j]) for i, j in pairs], diff)
         out = pd.DataFrame({
             "subgroup_a": [ids[i] for i in ia],
             "subgroup_b": [ids[i] for i in ib],
             "rule_a": [rules[i] for i in ia],
             "rule_b": [rules[i] for i in ib],
-            "difference": diff.mean(axis=0),
-            "lower": lo,
-            "upper": hi,
-            "prob_a_greater": prob_above(diff, 0.0),
+            "difference": cols["mean"],
+            "sd": cols["sd"],
+            "lower": cols["lower"],
+            "upper": cols["upper"],
+            "prob_a_greater": cols["prob_positive"],
+            **{name: cols[name] for name in MC_COLUMNS},
         })
-    out.attrs.update({"level": level, "interval": kind, **(attrs or {})})
+    out.attrs.update({"level": level, "interval": interval, **(attrs or {})})
     return out

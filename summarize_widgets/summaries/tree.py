@@ -1,7 +1,7 @@
 """Summary trees: CART fitted to the posterior mean, every draw projected onto its leaves.
 
 One tree is grown on the weighted posterior mean to ``max_depth``; shallower
-trees are its truncations (METHOD.md section 3). One pass over the draws gives
+trees are its truncations (docs/method.md section 3). One pass over the draws gives
 the per-draw sums of every deepest leaf; any node at any depth is a union of
 deepest leaves, so a depth change costs O(n_draws x n_leaves) and never reads
 the draws again.
@@ -26,11 +26,12 @@ from sklearn.tree import DecisionTreeRegressor
 
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
 from .projection import checked_r2, r2_note
+from ..core.intervals import credible_interval
 from ..core.passes import LeafSums, run_pass
 from ..core.rules import Condition, combine, nice_threshold
+from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
 from ..core.validate import SummaryError, check_columns, check_int, check_level
-from ..core import intervals
 
 __all__ = ["summarize_tree", "TreeSummary", "default_min_size"]
 
@@ -78,8 +79,10 @@ def _bin_edges(x: np.ndarray, n_bins: int) -> np.ndarray | None:
 class _Fitted:
     """Everything shared by a tree and its truncations (computed once)."""
 
-    def __init__(self, draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, A, W_draw, W_fixed, names_by_rank):
+    def __init__(self, draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, A, W_draw, W_fixed,
+                 names_by_rank, grown_on=None):
         self.draws = draws
+        self.grown_on = draws.label if grown_on is None else grown_on  # label of the draws the tree was grown on
         self.specs = specs
         self.est = est
         self.X = X
@@ -119,9 +122,10 @@ class _Fitted:
             self.W_nodes = np.broadcast_to(W_fixed @ M, self.A_nodes.shape)
         self.unit_w_node = None
         if draws.is_complier_weighted:
-            v = draws._weights if draws._weights is not None else np.ones(draws.n_units)
+            v = draws.unit_weights
             self.unit_w_node = np.bincount(unit_leaf, weights=v, minlength=L) @ M
         self.names_by_rank = names_by_rank
+        self.diagnostics: dict = {}  # Monte Carlo diagnostics per node, shared by every truncation
         self.conditions = self._conditions()
         self.rules = self._rules()
 
@@ -200,18 +204,66 @@ class _Fitted:
         return np.flatnonzero(sel)
 
 
-class TreeSummary:
+class _DepthNumber(int):
+    """The current depth (an int). Calling it, as in ``tree.depth(2)``, is the old spelling of
+    :meth:`TreeSummary.at_depth` and still works, with a deprecation warning."""
+
+    def __new__(cls, value, tree):
+        self = super().__new__(cls, value)
+        self._tree = tree
+        return self
+
+    def __call__(self, d):
+        import warnings
+
+        warnings.warn("TreeSummary.depth(d) is now TreeSummary.at_depth(d); `depth` is the current depth (an int).",
+                      DeprecationWarning, stacklevel=2)
+        return self._tree.at_depth(d)
+
+
+class TreeSummary(SummaryResult):
     """A summary tree and the posterior of its subgroup effects at one depth.
 
-    Build it with :func:`summarize_tree`; ``.depth(d)`` gives the truncation at depth d
+    Build it with :func:`summarize_tree`; ``.at_depth(d)`` gives the truncation at depth d
     without touching the draws. See DEVELOPERS.md for the columns of every table.
+
+    Attributes
+    ----------
+    depth : int
+        The depth this object describes (its subgroups are the nodes at this depth, or leaves above it).
     """
+
+    summary_type = "tree"
 
     def __init__(self, fitted: _Fitted, depth: int):
         self._f = fitted
-        self.current_depth = int(depth)
+        self._depth = int(depth)
+        super().__init__(fitted.draws, {
+            "depth": self._depth,
+            "max_depth": fitted.max_depth,
+            "min_size": fitted.min_size,
+            "columns": [s.name for s in fitted.specs],
+            "n_draws": fitted.draws.n_draws,
+            "n_units": fitted.draws.n_units,
+            "complier_weighted": fitted.draws.is_complier_weighted,
+            "structure_from": fitted.grown_on,
+        })
+        self._diagnostics = fitted.diagnostics
 
     # -- structure ----------------------------------------------------------------------
+    @property
+    def depth(self) -> int:
+        """The current depth (an int)."""
+        return _DepthNumber(self._depth, self)
+
+    @property
+    def current_depth(self) -> int:
+        """Deprecated name of :attr:`depth`."""
+        import warnings
+
+        warnings.warn("TreeSummary.current_depth is now TreeSummary.depth.", DeprecationWarning, stacklevel=2)
+        return self._depth
+
     @property
     def max_depth(self) -> int:
         return self._f.max_depth
@@ -222,10 +274,6 @@ class TreeSummary:
         return int(self._f.node_depth.max())
 
     @property
-    def label(self) -> str:
-        return self._f.draws.label
-
-    @property
     def columns(self) -> list[str]:
         return [s.name for s in self._f.specs]
 
@@ -233,25 +281,7 @@ class TreeSummary:
     def min_size(self) -> int:
         return self._f.min_size
 
-    @property
-    def draws(self):
-        return self._f.draws
-
-    @property
-    def settings(self) -> dict:
-        return {
-            "kind": "tree",
-            "label": self.label,
-            "depth": self.current_depth,
-            "max_depth": self.max_depth,
-            "min_size": self.min_size,
-            "columns": self.columns,
-            "n_draws": self._f.draws.n_draws,
-            "n_units": self._f.draws.n_units,
-            "complier_weighted": self._f.draws.is_complier_weighted,
-        }
-
-    def depth(self, d: int) -> "TreeSummary":
+    def at_depth(self, d: int) -> "TreeSummary":
         """The truncation at depth ``d`` (1 to ``max_depth``), from stored sums only."""
         d = check_int(d, "depth", low=1, high=self.max_depth)
         return TreeSummary(self._f, d)
@@ -259,7 +289,7 @@ class TreeSummary:
     @cached_property
     def leaf_ids(self) -> np.ndarray:
         """Node ids of the subgroups at the current depth."""
-        return self._f.nodes_at(self.current_depth)
+        return self._f.nodes_at(self._depth)
 
     @cached_property
     def leaf_draws(self) -> np.ndarray:
@@ -267,6 +297,16 @@ class TreeSummary:
         f = self._f
         ids = self.leaf_ids
         return ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
+
+    @cached_property
+    def leaf_weight_draws(self) -> np.ndarray:
+        """Per-draw total weight of each subgroup ``W_sl = sum_{i in l} w_si``, shape (n_draws, n_subgroups).
+
+        Columns in ``leaf_ids`` order; constant over draws unless the weights vary by draw (for
+        complier-weighted draws: the subgroup's summed uptake effect).
+        """
+        f = self._f
+        return np.array(f.W_nodes[:, self.leaf_ids], dtype=np.float64)
 
     def fitted_values(self, rows=None) -> np.ndarray:
         """Projected draws: each unit's subgroup effect, shape (n_rows, n_units).
@@ -296,34 +336,37 @@ class TreeSummary:
         })
 
     def _attrs(self):
-        return {"label": self.label, "depth": self.current_depth, "kind": "tree"}
+        return {"label": self.label, "depth": self._depth, "summary": "tree", "unit": self._draws.unit,
+                "better": self._draws.better}
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """One row per subgroup at the current depth.
 
-        Columns: ``subgroup`` (node id), ``rule``, ``n_units``, ``share`` (weighted share of
-        units), ``mean``, ``sd``, ``lower``, ``upper`` (credible interval at ``level``),
-        ``prob_positive``, ``ess`` (bulk effective sample size), ``mcse`` (Monte Carlo
-        standard error of the mean); complier-weighted draws add ``uptake_share``,
-        ``uptake_lower`` and ``weak_uptake`` (lower credible limit of the complier share
-        below ``uptake_floor``: the subgroup's ratio is unstable).
+        Columns (:data:`~summarize_widgets.summaries.subgroups.SUBGROUP_COLUMNS`): ``subgroup``
+        (node id), ``rule``, ``n_units``, ``share`` (weighted share of units), then the
+        statistics core's ``mean``, ``sd``, ``lower``, ``upper`` (credible interval at
+        ``level``), ``prob_positive`` and Monte Carlo error columns ``ess_bulk``, ``ess_tail``,
+        ``rhat``, ``mcse_mean``, ``mcse_lower``, ``mcse_upper``, ``mc_warning``
+        (:mod:`summarize_widgets.core.stats`); complier-weighted draws add ``uptake_share``,
+        ``uptake_lower``, ``uptake_upper`` and ``weak_uptake`` (lower credible limit of the
+        complier share below ``uptake_floor``: the subgroup's ratio is unstable).
         """
         ids = self.leaf_ids
-        return effect_table(self.leaf_draws, self._info(ids), level=level, kind=interval,
-                            n_chains=self._f.draws.n_chains, uptake=self._uptake(ids), uptake_floor=uptake_floor,
-                            attrs=self._attrs())
+        cols = self._columns([int(i) for i in ids], self.leaf_draws, level=level, interval=interval)
+        return effect_table(cols, self._info(ids), level=level, interval=interval, uptake=self._uptake(ids),
+                            uptake_floor=uptake_floor, attrs=self._attrs())
 
     def nodes(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """Every node down to the current depth (the one description core for every renderer).
 
         Columns: ``node``, ``parent`` (-1 for the root), ``depth``, ``split`` (condition on the
         edge from the parent), ``rule`` (the full path), ``is_leaf`` (a subgroup at the current
-        depth), ``n_units``, ``share``, ``mean``, ``lower``, ``upper``, ``prob_positive``.
+        depth), ``n_units``, ``share``, then the statistics core's columns (as in :meth:`table`).
         """
         f = self._f
-        ids = np.flatnonzero(f.node_depth <= self.current_depth)
+        ids = np.flatnonzero(f.node_depth <= self._depth)
         theta = ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
-        lo, hi = intervals.interval(theta, level, interval)  # the module: `interval` is the argument
+        cols = self._columns([int(i) for i in ids], theta, level=level, interval=interval)
         leaves = set(self.leaf_ids.tolist())
         out = pd.DataFrame({
             "node": ids.astype(int),
@@ -334,10 +377,7 @@ class TreeSummary:
             "is_leaf": [int(i) in leaves for i in ids],
             "n_units": f.n_units_node[ids].astype(int),
             "share": f.wbar_node[ids] / f.wbar_node[0],
-            "mean": theta.mean(axis=0),
-            "lower": lo,
-            "upper": hi,
-            "prob_positive": (theta > 0).mean(axis=0),
+            **cols,
         })
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
         return out
@@ -347,22 +387,23 @@ class TreeSummary:
         its interval and ``P(A > B)``; never two marginal intervals combined."""
         ids = self.leaf_ids
         return contrast_table(self.leaf_draws, [int(i) for i in ids], [self._f.rules[i] for i in ids],
-                              level=level, kind=interval, subgroup=subgroup, attrs=self._attrs())
+                              level=level, interval=interval, subgroup=subgroup, attrs=self._attrs(),
+                              stats=lambda keys, diff: self._columns(keys, diff, level=level, interval=interval))
 
     # -- summary R^2 ---------------------------------------------------------------------
     def _r2_at(self, depth: int) -> np.ndarray:
         f = self._f
         d = f.draws
         ids = f.nodes_at(depth)
-        c = d._centre[:, None]
+        c = d.scan.centre[:, None]
         W = f.W_nodes[:, ids]
         Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (METHOD.md section 3 numerics)
         Wt = f.W_nodes[:, 0]
-        Atc = f.A_nodes[:, 0] - d._centre * Wt
+        Atc = f.A_nodes[:, 0] - d.scan.centre * Wt
         with np.errstate(divide="ignore", invalid="ignore"):
-            sse = d._q - np.where(W > 0, Ac * Ac / np.where(W > 0, W, 1.0), 0.0).sum(axis=1)
-            sst = d._q - Atc * Atc / Wt
-            none = _no_heterogeneity(sst, Wt, d._centre)
+            sse = d.scan.centred_squares - np.where(W > 0, Ac * Ac / np.where(W > 0, W, 1.0), 0.0).sum(axis=1)
+            sst = d.scan.centred_squares - Atc * Atc / Wt
+            none = _no_heterogeneity(sst, Wt, d.scan.centre)
             r2 = np.where(none, np.nan, 1.0 - np.clip(sse, 0.0, None) / np.where(none, 1.0, sst))
         return np.clip(r2, 0.0, 1.0)
 
@@ -372,25 +413,25 @@ class TreeSummary:
 
         NaN for draws with no heterogeneity (see ``fit_r2_note``); raises when every draw has none.
         """
-        return checked_r2(self._r2_at(self.current_depth))
+        return checked_r2(self._r2_at(self._depth))
 
     @property
     def fit_r2_note(self) -> str:
         """How many draws had no heterogeneity (their R^2 is undefined), or ""."""
-        return r2_note(self._r2_at(self.current_depth))
+        return r2_note(self._r2_at(self._depth))
 
     def fit_r2_draws_by_depth(self) -> dict[int, np.ndarray]:
         """Depth -> per-draw summary R^2 (n_draws,), for every depth 1..max_depth."""
         return {d: checked_r2(self._r2_at(d)) for d in range(1, self.max_depth + 1)}
 
     def fit_r2_by_depth(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
-        """Posterior of summary R^2 at every depth: ``depth``, ``n_subgroups``, ``mean``, ``lower``, ``upper``."""
+        """Posterior of summary R^2 at every depth: ``depth``, ``n_subgroups``, then
+        :data:`~summarize_widgets.summaries.base.FIT_COLUMNS` (``mean``, ``sd``, ``lower``,
+        ``upper`` and the Monte Carlo error columns)."""
         rows = []
         for d, r2 in self.fit_r2_draws_by_depth().items():
-            ok = r2[~np.isnan(r2)]
-            lo, hi = intervals.interval(ok[:, None], level, interval)
-            rows.append({"depth": d, "n_subgroups": len(self._f.nodes_at(d)), "mean": ok.mean(),
-                         "lower": float(lo[0]), "upper": float(hi[0])})
+            rows.append({"depth": d, "n_subgroups": len(self._f.nodes_at(d)),
+                         **self._r2_columns(("fit_r2", d), r2, level=level, interval=interval)})
         out = pd.DataFrame(rows)
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
         return out
@@ -410,19 +451,53 @@ class TreeSummary:
         anc = self._ancestor_at_depth()
         return pd.Series(anc[f.sk_leaves[pos]], index=covariates.index, name="subgroup")
 
+    def apply_to(self, draws, *, progress=None) -> "TreeSummary":
+        """The same subgroups (this tree, frozen) with effects computed from other draws of the same units.
+
+        Parameters
+        ----------
+        draws : EffectDraws
+            Another posterior for the same units: a second outcome, a second model, the
+            intention-to-treat draws beside complier-weighted ones. Its covariates must have
+            the same index, in the same order, and the same values in the tree's columns.
+        progress : callable(done, total), optional
+
+        Returns
+        -------
+        TreeSummary
+            At the current depth, every depth available; one pass over ``draws``, no refit.
+            Applied to the draws the tree was grown on, it reproduces this summary exactly.
+        """
+        from ..core.draws import EffectDraws
+        from .compare import check_same_units
+
+        if not isinstance(draws, EffectDraws):
+            raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")
+        f = self._f
+        check_same_units(f.draws, draws, self.columns)
+        sums = LeafSums(f.unit_leaf, len(f.sk_leaves))
+        run_pass(draws, [sums], progress=progress)
+        W_fixed = None
+        if sums.weights is None:
+            w = draws.weights if draws.weights is not None else np.ones(draws.n_units)
+            W_fixed = np.bincount(f.unit_leaf, weights=w, minlength=len(f.sk_leaves))
+        fitted = _Fitted(draws, f.specs, f.est, f.X, f.X_raw, f.rank, f.edges, f.max_depth, f.min_size, f.unit_leaf,
+                         sums.sums, sums.weights, W_fixed, f.names_by_rank, grown_on=f.grown_on)
+        return TreeSummary(fitted, self._depth)
+
     def _ancestor_at_depth(self) -> np.ndarray:
         f = self._f
         anc = np.arange(f.t.node_count)
         for node in range(f.t.node_count):
             k = node
-            while f.node_depth[k] > self.current_depth:
+            while f.node_depth[k] > self._depth:
                 k = f.parent[k]
             anc[node] = k
         return anc
 
     def __repr__(self) -> str:
         tab = self.table()
-        lines = [f"TreeSummary of '{self.label}' at depth {self.current_depth} (max {self.max_depth}), "
+        lines = [f"TreeSummary of '{self.label}' at depth {self._depth} (max {self.max_depth}), "
                  f"{len(tab)} subgroups, min size {self.min_size}:"]
         for r in tab.itertuples():
             lines.append(f"  [{r.subgroup}] {r.rule}: n={r.n_units}, mean {r.mean:.4g} [{r.lower:.4g}, {r.upper:.4g}]")
@@ -437,7 +512,7 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     ----------
     draws : EffectDraws
     max_depth : int, default 4
-        Deepest tree offered (1 to 8); every shallower depth is available via ``.depth(d)``.
+        Deepest tree offered (1 to 8); every shallower depth is available via ``.at_depth(d)``.
     min_size : int, optional
         Smallest subgroup, in units (scikit-learn's ``min_samples_leaf``); default
         :func:`default_min_size` (5% of the units, at most 1,000).
@@ -510,7 +585,7 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     W_draw = sums.weights
     W_fixed = None
     if W_draw is None:
-        w = draws._weights if draws._weights is not None else np.ones(n)
+        w = draws.unit_weights
         W_fixed = np.bincount(unit_leaf, weights=w, minlength=len(sk_leaves))
     fitted = _Fitted(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, sums.sums, W_draw, W_fixed, names_by_rank)
     return TreeSummary(fitted, max_depth)

@@ -3,7 +3,7 @@
 Two kinds of change, two costs:
 
 * depth, interval level, interval type and the selected subgroup only re-read
-  stored results (``TreeSummary.depth(d)`` and per-draw subgroup effects), never
+  stored results (``TreeSummary.at_depth(d)`` and per-draw subgroup effects), never
   the draws: :meth:`Explorer.apply` does it and returns;
 * the smallest subgroup size and the covariates used change the summaries
   themselves: one pass over the draws per summary, run on a worker thread (the
@@ -373,7 +373,7 @@ class Explorer(widgets.VBox):
 
     def _regroup(self, min_size, columns, *, progress, stale=lambda: False, raise_errors=False):
         before = {"min_size": self._res.tree.min_size, "columns": self._res.tree.columns}
-        self.status.value = P.status_html("Recomputing the summaries (one pass over the draws each)\u2026", kind="busy")
+        self.status.value = P.status_html("Recomputing the summaries (one pass over the draws each)\u2026", tone="busy")
         try:
             min_size = check_int(min_size, "min_size", low=1, high=self._draws.n_units)
             previous = self._anchor_rule()
@@ -436,7 +436,7 @@ class Explorer(widgets.VBox):
         return str(hit.iloc[0]) if len(hit) else None
 
     def _show_error(self, text: str) -> None:
-        self.status.value = P.status_html(text, kind="error")
+        self.status.value = P.status_html(text, tone="error")
 
     def _selection_text(self) -> str:
         s = self._state

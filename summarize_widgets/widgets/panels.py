@@ -165,14 +165,14 @@ def table_html(table: pd.DataFrame, *, selected_rows=(), css_scope: str) -> str:
     return f'<div class="{scope}"><style>{" ".join(style)}</style>{body}</div>'
 
 
-def status_html(text: str, *, kind: str = "info") -> str:
-    """One escaped status line; ``kind`` is "info", "busy" or "error"."""
+def status_html(text: str, *, tone: str = "info") -> str:
+    """One escaped status line; ``tone`` is "info", "busy" or "error"."""
     colours = {"info": "#444444", "busy": _fig.BAND, "error": "#9b1c1c"}
-    if kind not in colours:
-        raise ValueError(f"`kind` must be one of {sorted(colours)}; got {kind!r}.")
-    weight = "600" if kind == "error" else "400"
-    role = ' role="alert"' if kind == "error" else ""
-    return (f'<div class="swx-status swx-status-{kind}"{role} style="color:{colours[kind]};font-weight:{weight};'
+    if tone not in colours:
+        raise ValueError(f"`tone` must be one of {sorted(colours)}; got {tone!r}.")
+    weight = "600" if tone == "error" else "400"
+    role = ' role="alert"' if tone == "error" else ""
+    return (f'<div class="swx-status swx-status-{tone}"{role} style="color:{colours[tone]};font-weight:{weight};'
             f'font-size:13px;line-height:1.4">{html.escape(text)}</div>')
 
 

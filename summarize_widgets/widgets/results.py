@@ -83,7 +83,7 @@ class Results:
 
     def at(self, depth: int) -> TreeSummary:
         """The tree truncated at ``depth`` (no pass over the draws)."""
-        return self._cached(("tree", depth), lambda: self.tree.depth(depth))
+        return self._cached(("tree", depth), lambda: self.tree.at_depth(depth))
 
     def nodes(self, depth: int, level: float, interval: str) -> pd.DataFrame:
         return self._cached(("nodes", depth, level, interval),

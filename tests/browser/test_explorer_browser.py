@@ -20,7 +20,7 @@ EXPECT_CELL = """\
 import json as _json
 _ref = sw.summarize_tree(draws, max_depth=4)
 print("EXPECTED " + _json.dumps({
-    str(d): {str(int(s)): r for s, r in zip(_ref.depth(d).table()["subgroup"], _ref.depth(d).table()["rule"])}
+    str(d): {str(int(s)): r for s, r in zip(_ref.at_depth(d).table()["subgroup"], _ref.at_depth(d).table()["rule"])}
     for d in (1, 2, 3, 4)
 }))
 """
