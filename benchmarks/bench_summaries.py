@@ -117,7 +117,7 @@ def main(argv=None):
         print(f"linear summary (one pass)                          {t_lin:8.3f} s   = {t_lin / ref:5.2f} passes")
         results.update(additive=t_add, linear=t_lin)
     except AttributeError as exc:  # the additive/linear summaries are not there yet
-        additive = linear = None
+        additive = None
         print(f"additive/linear: not available ({exc})")
 
     # -- naive route: a loop over draws, scaled to all draws --------------------------------------

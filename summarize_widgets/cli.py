@@ -11,7 +11,7 @@ import sys
 from datetime import datetime
 from pathlib import Path
 
-from .summaries.bundle import DEFAULT_DEPTH
+from .summaries.bundle import DEFAULT_DEPTH, summarize_all
 
 __all__ = ["main"]
 
@@ -161,7 +161,6 @@ def _pick_table(bundle, name, level, interval):
 
 
 def _summaries(draws, args, groups=None, need=("additive", "linear")):
-    from .summaries.bundle import summarize_all
 
     return summarize_all(draws, depth=args.depth, max_depth=args.max_depth, min_size=args.min_size,
                          columns=_columns(args.columns), groups=groups,

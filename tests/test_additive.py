@@ -5,7 +5,7 @@ import pytest
 from pygam import LinearGAM, f, l, s
 
 import summarize_widgets as sw
-from helpers import household_covariates
+from conftest import draws_around, household_covariates
 from summarize_widgets import SummaryError
 from summarize_widgets.summaries.additive import summarize_additive
 
@@ -18,8 +18,7 @@ def _data(n=500, S=200, seed=11, dtype=np.float64):
     X = household_covariates(n, rng)
     age = X["age"].to_numpy()
     f_ = -0.8 * np.sin(age / 12) - 0.6 * (X["fuel"] == "oil").to_numpy() - 0.05 * np.nan_to_num(X["rooms"].to_numpy(), nan=7)
-    T = f_ + rng.normal(0, 0.5, (S, n)) + rng.normal(0, 0.3, (S, 1))
-    return T.astype(dtype), X
+    return draws_around(f_, S, rng, dtype=dtype), X
 
 
 def _reference_inputs(X, keep=None):
@@ -118,7 +117,7 @@ def test_smoothing_is_chosen_like_pygam_gridsearch():
 
 
 def test_fit_r2_equals_definition_and_is_between_zero_and_one():
-    # Definition (METHOD.md section 3): 1 - sum (T - fit)^2 / sum (T - mean T)^2 per draw, from residuals.
+    # Definition (docs/method.md section 3): 1 - sum (T - fit)^2 / sum (T - mean T)^2 per draw, from residuals.
     T, X = _data(S=80)
     add = summarize_additive(sw.EffectDraws(T, X), lam=LAM)
     fit = add.fitted_values()
@@ -282,3 +281,35 @@ def test_constant_effect_has_undefined_r2():
         add.fit_r2
     # the curves of a constant effect are flat at that constant
     np.testing.assert_allclose(add.curve_draws("age"), const[:, :50], atol=1e-9)
+
+
+def test_pygam_internals_we_use_are_present():
+    # summaries/pygam_bridge.py reads pygam's private model matrix and penalty. If a pygam release
+    # moves or changes them, this fails loudly (and pyproject.toml pins the checked releases).
+    import re
+    from importlib.metadata import version
+    from pathlib import Path
+
+    from pygam import LinearGAM, s as spline
+    from summarize_widgets.summaries.pygam_bridge import CHECKED_VERSIONS, model_matrix, penalty_matrix
+
+    rng = np.random.default_rng(3)
+    x = rng.uniform(0, 1, (300, 1))
+    y = np.sin(6 * x[:, 0]) + rng.normal(0, 0.1, 300)
+    gam = LinearGAM(spline(0, n_splines=8, lam=0.7)).fit(x, y)
+    B = model_matrix(gam, x)
+    # pygam's own prediction is the model matrix times its coefficients (Gaussian, identity link).
+    np.testing.assert_allclose(B @ gam.coef_, gam.predict(x), rtol=1e-10, atol=1e-12)
+    P = penalty_matrix(gam)
+    assert P.shape == (B.shape[1], B.shape[1])
+    np.testing.assert_allclose(P, P.T, atol=1e-12)
+    assert np.linalg.eigvalsh(P).min() > -1e-8
+    # The penalty is lam times the unscaled term penalty: doubling lam doubles it.
+    gam2 = LinearGAM(spline(0, n_splines=8, lam=1.4)).fit(x, y)
+    np.testing.assert_allclose(penalty_matrix(gam2), 2 * P, rtol=1e-10, atol=1e-12)
+    # The installed pygam is one of the checked releases, and pyproject.toml pins the same range.
+    low, high = re.match(r">=([\d.]+),<([\d.]+)", CHECKED_VERSIONS).groups()
+    as_tuple = lambda v: tuple(int(p) for p in v.split(".")[:2])  # noqa: E731
+    assert as_tuple(low) <= as_tuple(version("pygam")) < as_tuple(high)
+    pyproject = (Path(__file__).resolve().parents[1] / "pyproject.toml").read_text()
+    assert f'"pygam{CHECKED_VERSIONS}"' in pyproject

@@ -127,7 +127,7 @@ def test_from_itt_is_a_ratio_of_sums(tau, households, block_rows):
     v = np.array([1.0, 2.0, 1.0, 0.5, 1.0])
     d = EffectDraws.from_itt(outcome, uptake, households, weights=v)
     assert d.is_complier_weighted and d.has_draw_weights and d.label == "LATE"
-    # METHOD.md section 5: per unit, the ratio of sums over draws (v_i cancels)
+    # docs/method.md section 5: per unit, the ratio of sums over draws (v_i cancels)
     np.testing.assert_allclose(d.posterior_mean, outcome.sum(axis=0) / uptake.sum(axis=0), rtol=1e-13)
     # per draw, the Wald ratio over all units == numpy's uptake-weighted mean of the unit CLATEs
     np.testing.assert_allclose(d.overall, (v * outcome).sum(axis=1) / (v * uptake).sum(axis=1), rtol=1e-13)

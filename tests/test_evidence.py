@@ -1,12 +1,11 @@
 """Heterogeneity evidence: the posterior of the spread of effects and its verdict (invented data)."""
 import numpy as np
-import pandas as pd
 import pytest
 
 import summarize_widgets as sw
 from summarize_widgets.summaries.evidence import between_sd_draws, heterogeneity_evidence, unit_sd_draws
 
-from helpers import household_covariates
+from conftest import household_covariates
 
 
 def _flat(S=400, n=600, seed=1):
@@ -92,7 +91,7 @@ def test_complier_weighted_spread_is_uptake_weighted():
     ref_b = np.array([np.sqrt(np.average((fit[s] - np.average(fit[s], weights=w[s])) ** 2, weights=w[s]))
                       for s in range(S)])
     np.testing.assert_allclose(ev.between_sd, ref_b, rtol=1e-9)
-    # Variance decomposition of a partition: between^2 = R^2 x unit^2 (METHOD.md section 3).
+    # Variance decomposition of a partition: between^2 = R^2 x unit^2 (docs/method.md section 3).
     np.testing.assert_allclose(ev.between_sd ** 2, tree.fit_r2 * ev.unit_sd ** 2, rtol=1e-8)
     assert ev.verdict == "supported"  # oil-heated homes save 8 more
 

@@ -519,7 +519,3 @@ def test_export_tables_all_four_summaries(tmp_path, real, smooth):
     assert saved["created_utc"] == prov["created_utc"] and set(saved["summaries"]) == {"tree", "groups", "linear", "additive"}
     assert all(prov["created_utc"] in (tmp_path / f).read_text() for f in files if f.endswith(".md"))
 
-
-def test_public_names_resolve():
-    for name in ex.__all__:
-        assert getattr(ex, name) is not None

@@ -1,13 +1,14 @@
 """One suite of invariants run over every summary type (tree, additive, linear; groups where they apply).
 
 Each invariant follows from the summary being a fixed projection applied to every draw
-(METHOD.md section 2): properties of least squares, not of any implementation.
+(docs/method.md section 2): properties of least squares, not of any implementation.
 """
 import numpy as np
 import pandas as pd
 import pytest
 
 import summarize_widgets as sw
+from conftest import WEIGHT_DESIGNS, draws_around, weighted_draws
 
 SUMMARIES = {
     "tree": lambda d: sw.summarize_tree(d, max_depth=3, min_size=40),
@@ -31,20 +32,11 @@ def _draws(kind="plain", S=120, n=400, seed=0, dtype=np.float64):
     rng = np.random.default_rng(seed)
     X = _covariates(n, rng)
     f = np.sin(X["age"].to_numpy() / 12) + np.where(X["fuel"] == "oil", 1.0, 0.0) + 0.5 * X["owner"].to_numpy()
-    T = (f + rng.normal(0, 0.5, (S, n)) + rng.normal(0, 0.3, (S, 1))).astype(dtype)
-    if kind == "plain":
-        return sw.EffectDraws(T, X), T, None
-    if kind == "unit-weights":
-        w = rng.uniform(0.2, 3.0, n)
-        return sw.EffectDraws(T, X, weights=w), T, w
-    if kind == "draw-weights":
-        w = rng.uniform(0.2, 3.0, (S, n))
-        return sw.EffectDraws(T, X, weights=w), T, w
-    pi = rng.uniform(0.1, 0.9, (S, n))
-    return sw.EffectDraws.from_itt(T * pi, pi, X), T, pi
+    T = draws_around(f, S, rng, dtype=dtype)
+    return weighted_draws(kind, T, X, rng)
 
 
-KINDS = ["plain", "unit-weights", "draw-weights", "complier"]
+KINDS = list(WEIGHT_DESIGNS)
 
 
 @pytest.mark.parametrize("name", SUMMARIES)

@@ -4,7 +4,7 @@ import pytest
 import statsmodels.api as sm
 
 import summarize_widgets as sw
-from helpers import household_covariates
+from conftest import draws_around, household_covariates
 from summarize_widgets import SummaryError
 from summarize_widgets.core.design import classify_columns, linear_design
 from summarize_widgets.summaries.linear import LINEAR_COLUMNS, summarize_linear
@@ -15,8 +15,7 @@ def _data(n=500, S=200, seed=3, dtype=np.float64, offset=0.0):
     rng = np.random.default_rng(seed)
     X = household_covariates(n, rng)
     f = -0.02 * X["age"].to_numpy() - 0.6 * (X["fuel"] == "oil").to_numpy() - 0.1 * np.nan_to_num(X["rooms"].to_numpy(), nan=4)
-    T = offset + f + rng.normal(0, 0.5, (S, n)) + rng.normal(0, 0.3, (S, 1))
-    return T.astype(dtype), X
+    return draws_around(offset + f, S, rng, dtype=dtype), X
 
 
 def _design(X, columns=None):
@@ -87,7 +86,7 @@ def test_complier_weighted_draws_use_outcome_itt_over_mean_uptake():
 
 
 def test_fit_r2_equals_definition_from_residuals():
-    # Definition (METHOD.md section 3, pseudo-values): R2 = 1 - sum wbar (Y - fit)^2 / sum wbar (Y - Ybar)^2,
+    # Definition (docs/method.md section 3, pseudo-values): R2 = 1 - sum wbar (Y - fit)^2 / sum wbar (Y - Ybar)^2,
     # computed here directly from numpy residuals, with per-draw weights.
     T, X = _data(S=60)
     W = np.random.default_rng(1).uniform(0.5, 1.5, T.shape)

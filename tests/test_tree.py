@@ -50,7 +50,7 @@ def test_leaf_effects_equal_pandas_groupby_over_sklearn_apply(with_weights):
 
 
 def test_fit_r2_equals_definition_from_residuals_at_every_depth():
-    # Definition (METHOD.md section 3; Woody, Carvalho & Murray 2021): R2_s = 1 - SSE_s / SST_s with
+    # Definition (docs/method.md section 3; Woody, Carvalho & Murray 2021): R2_s = 1 - SSE_s / SST_s with
     # residuals from each draw's own subgroup means, computed directly here.
     T, X = _data(S=120)
     w = np.random.default_rng(2).uniform(0.2, 3.0, T.shape[1])
@@ -179,7 +179,7 @@ def test_float32_and_float64_agree():
 
 
 def test_large_offset_does_not_lose_r2_to_cancellation():
-    # Effects of size 1e7 with spread 1: centring before squaring (METHOD.md section 3) keeps R^2 exact.
+    # Effects of size 1e7 with spread 1: centring before squaring (docs/method.md section 3) keeps R^2 exact.
     T, X = _data(S=50)
     base = summarize_tree(sw.EffectDraws(T, X), max_depth=2, min_size=100).fit_r2
     shifted = summarize_tree(sw.EffectDraws(T + 1e7, X), max_depth=2, min_size=100).fit_r2

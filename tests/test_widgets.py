@@ -52,7 +52,7 @@ def _leaf_draws_by_groupby(draws_values, covariates, tree):
 # -- front-end files and the tree view -------------------------------------------------------------
 def test_asset_path_finds_the_repository_js_in_an_editable_install():
     js = asset_path("tree_view.js")
-    assert js == REPO / "js" / "tree_view.js" or js.parent.name == "_static"
+    assert js.resolve() == (REPO / "js" / "tree_view.js").resolve() and js.parent.name == "_static"
     assert "export default { render }" in js.read_text()
     assert asset_path("tree_view.css").read_text().count(".swtv-") > 5
     with pytest.raises(FileNotFoundError, match=r"front-end file 'nope.js' not found"):
@@ -562,3 +562,14 @@ def test_one_default_depth_for_the_command_line_and_the_explorer(draws):
     assert ex.settings["depth"] == DEFAULT_DEPTH == ex.depth_control.value
     args = build_parser().parse_args(["summarize", "x.npy", "--covariates", "c.csv"])
     assert args.depth == DEFAULT_DEPTH
+
+
+def test_plotly_widget_internals_we_use_are_present():
+    # widgets/panels.py keeps a FigureWidget's saved state in step through plotly internals
+    # (_layout_obj._props, _data, _widget_layout, _widget_data); fail loudly if plotly moves them.
+    import plotly.graph_objects as go
+
+    w = go.FigureWidget(go.Figure(go.Scatter(x=[1, 2], y=[3, 4])))
+    assert isinstance(w._layout_obj._props, dict)
+    assert isinstance(w._data, list) and w._data[0]["x"] == [1, 2] or list(w._data[0]["x"]) == [1, 2]
+    assert hasattr(w, "_widget_layout") and hasattr(w, "_widget_data")

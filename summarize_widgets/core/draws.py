@@ -225,7 +225,7 @@ class EffectDraws:
     Construction makes one pass over the draws: it checks that every value is
     finite and stores, per unit, the weighted posterior mean (the target every
     summary is fitted to) and, per draw, the centred weighted sum of squares
-    used by every summary R^2 (METHOD.md section 3).
+    used by every summary R^2 (docs/method.md section 3).
     """
 
     def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect", unit: str | None = None,
@@ -279,7 +279,7 @@ class EffectDraws:
         Notes
         -----
         Every subgroup effect is the ratio of sums ``sum v ITT_y / sum v pi`` per
-        draw (the Wald ratio inside the subgroup, METHOD.md section 5), i.e. the
+        draw (the Wald ratio inside the subgroup, docs/method.md section 5), i.e. the
         uptake-weighted mean of unit CLATEs; nothing is divided unit by unit.
         """
         num, c1 = _as_matrix(outcome_itt, "outcome_itt")
@@ -380,7 +380,7 @@ class EffectDraws:
         Fast route: ``sum w T^2 - 2 c sum w T + c^2 sum w`` from one product. When that
         would lose more than six of float64's sixteen digits to cancellation (effects large
         relative to their spread), the rows are recomputed by centring before squaring
-        (METHOD.md section 3).
+        (docs/method.md section 3).
         """
         k = min(_CENTRE_UNITS, self.n_units)
         if self._den is None:

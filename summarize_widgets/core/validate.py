@@ -10,12 +10,15 @@ from numbers import Integral, Real
 import numpy as np
 import pandas as pd
 
+__all__ = ["SummaryError", "format_names", "check_int", "check_level", "INTERVAL_TYPES", "check_interval",
+           "check_columns", "check_covariates", "describe_nonfinite"]
+
 
 class SummaryError(ValueError):
     """Raised for input that cannot be summarized (a ValueError, so callers can catch either)."""
 
 
-def _fmt_names(names: Iterable[object], limit: int = 12) -> str:
+def format_names(names: Iterable[object], limit: int = 12) -> str:
     names = [str(n) for n in names]
     shown = ", ".join(repr(n) for n in names[:limit])
     if len(names) > limit:
@@ -49,7 +52,7 @@ INTERVAL_TYPES = ("equal-tailed", "highest-density")
 
 def check_interval(interval) -> str:
     if interval not in INTERVAL_TYPES:
-        raise SummaryError(f"`interval` must be one of {_fmt_names(INTERVAL_TYPES)}; got {interval!r}.")
+        raise SummaryError(f"`interval` must be one of {format_names(INTERVAL_TYPES)}; got {interval!r}.")
     return interval
 
 
@@ -66,12 +69,12 @@ def check_columns(columns, available: Sequence[str], name: str = "columns") -> l
     missing = [c for c in columns if c not in available]
     if missing:
         raise SummaryError(
-            f"`{name}` names covariates that are not in the covariate table: {_fmt_names(missing)}. "
-            f"Available: {_fmt_names(available)}."
+            f"`{name}` names covariates that are not in the covariate table: {format_names(missing)}. "
+            f"Available: {format_names(available)}."
         )
     if len(set(columns)) != len(columns):
         dup = sorted({str(c) for c in columns if columns.count(c) > 1})
-        raise SummaryError(f"`{name}` lists some covariates more than once: {_fmt_names(dup)}.")
+        raise SummaryError(f"`{name}` lists some covariates more than once: {format_names(dup)}.")
     return columns
 
 
@@ -84,7 +87,7 @@ def check_covariates(covariates, n_units: int | None = None, name: str = "covari
     cols = [str(c) for c in covariates.columns]
     dup = sorted({c for c in cols if cols.count(c) > 1})
     if dup:
-        raise SummaryError(f"`{name}` has duplicated column names: {_fmt_names(dup)}. Rename them so each is unique.")
+        raise SummaryError(f"`{name}` has duplicated column names: {format_names(dup)}. Rename them so each is unique.")
     if covariates.shape[1] == 0:
         raise SummaryError(f"`{name}` has no columns; summaries need at least one covariate.")
     if n_units is not None and covariates.shape[0] != n_units:

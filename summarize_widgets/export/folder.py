@@ -4,6 +4,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..core.validate import SummaryError, check_interval, check_level
+from ..summaries.bundle import SummaryBundle
 
 __all__ = ["write_summary_folder", "check_output_folder", "FIGURE_FORMATS"]
 

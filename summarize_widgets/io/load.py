@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ..core.validate import SummaryError, _fmt_names
+from ..core.validate import SummaryError, format_names
 from ..core.draws import EffectDraws
 
 __all__ = ["load_draws", "DRAW_FORMATS"]
@@ -145,7 +145,7 @@ def load_draws(
     paths = _as_paths(path)
     fmt = _resolve_format(paths, format, variable)
     if layout is not None and layout not in _LAYOUTS:
-        raise SummaryError(f"`layout` must be one of {_fmt_names(_LAYOUTS)} or None; got {layout!r}.")
+        raise SummaryError(f"`layout` must be one of {format_names(_LAYOUTS)} or None; got {layout!r}.")
     if layout is not None and fmt not in ("csv", "parquet"):
         raise SummaryError(f"`layout` applies to CSV and Parquet tables only; the draws are read as {fmt!r}.")
     if len(paths) > 1 and fmt != "sampler-csv":
@@ -195,13 +195,13 @@ def _as_paths(path) -> list[Path]:
 
 def _supported() -> str:
     exts = [e for f in DRAW_FORMATS.values() for e in f]
-    return f"extensions {', '.join(exts)}; formats {_fmt_names(DRAW_FORMATS)}"
+    return f"extensions {', '.join(exts)}; formats {format_names(DRAW_FORMATS)}"
 
 
 def _resolve_format(paths: list[Path], format, variable) -> str:
     if format is not None:
         if format not in DRAW_FORMATS:
-            raise SummaryError(f"`format` must be one of {_fmt_names(DRAW_FORMATS)}; got {format!r}.")
+            raise SummaryError(f"`format` must be one of {format_names(DRAW_FORMATS)}; got {format!r}.")
         return format
     suffixes = {p.suffix.lower() for p in paths}
     if len(suffixes) > 1:
@@ -278,7 +278,7 @@ def _match_units(read: _Read, cov: pd.DataFrame, unit_column):
     keys = [str(v) for v in ids]
     dup = sorted({k for k, c in pd.Series(keys).value_counts().items() if c > 1})
     if dup:
-        raise SummaryError(f"`covariates` column {unit_column!r} (unit ids) repeats ids: {_fmt_names(dup, 5)}.")
+        raise SummaryError(f"`covariates` column {unit_column!r} (unit ids) repeats ids: {format_names(dup, 5)}.")
     cov = cov.drop(columns=[unit_column])
     if read.unit_ids is None:
         return read.values, cov
@@ -289,9 +289,9 @@ def _match_units(read: _Read, cov: pd.DataFrame, unit_column):
     if missing or extra:
         parts = []
         if missing:
-            parts.append(f"{len(missing)} covariate unit ids have no draws (e.g. {_fmt_names(missing, 5)})")
+            parts.append(f"{len(missing)} covariate unit ids have no draws (e.g. {format_names(missing, 5)})")
         if extra:
-            parts.append(f"{len(extra)} units in the draws are not in the covariates (e.g. {_fmt_names(extra, 5)})")
+            parts.append(f"{len(extra)} units in the draws are not in the covariates (e.g. {format_names(extra, 5)})")
         raise SummaryError(
             f"`covariates` column {unit_column!r} does not match the draws' units: {'; '.join(parts)}. "
             "Ids are compared as text; pass unit_column=None to match by position instead."
@@ -350,11 +350,11 @@ def _read_npz(path: Path, variable) -> _Read:
             if variable is None:
                 if len(names) != 1:
                     raise SummaryError(
-                        f"`variable`: {str(path)!r} holds {len(names)} arrays; name one of {_fmt_names(names)}."
+                        f"`variable`: {str(path)!r} holds {len(names)} arrays; name one of {format_names(names)}."
                     )
                 variable = names[0]
             elif variable not in names:
-                raise SummaryError(f"`variable` {variable!r} is not in {str(path)!r}; available: {_fmt_names(names)}.")
+                raise SummaryError(f"`variable` {variable!r} is not in {str(path)!r}; available: {format_names(names)}.")
             arr = archive[variable]
     except SummaryError:
         raise
@@ -386,7 +386,7 @@ def _read_table(path: Path, fmt: str, variable, layout) -> _Read:
             hint = " nor a prefix of unit columns like 'tau.1', 'tau[1]' or 'tau_1' (sampler output)"
         raise SummaryError(
             f"`variable` {variable!r} matches no column of {str(path)!r}: it is neither the value column of a "
-            f"long table{hint}. Columns seen: {_fmt_names(cols, 8)}."
+            f"long table{hint}. Columns seen: {format_names(cols, 8)}."
         )
     long_cols = ["draw", "unit", value_col]
     if layout is None:
@@ -395,8 +395,8 @@ def _read_table(path: Path, fmt: str, variable, layout) -> _Read:
         missing = [c for c in long_cols if c not in cols]
         if missing:
             raise SummaryError(
-                f"`layout`='long' needs columns {_fmt_names(long_cols)} (and optionally 'chain') in {str(path)!r}; "
-                f"missing {_fmt_names(missing)}. Columns seen: {_fmt_names(cols, 8)}."
+                f"`layout`='long' needs columns {format_names(long_cols)} (and optionally 'chain') in {str(path)!r}; "
+                f"missing {format_names(missing)}. Columns seen: {format_names(cols, 8)}."
             )
         return _long_to_matrix(df, value_col, path)
     return _wide_to_matrix(df, path)
@@ -440,7 +440,7 @@ def _wide_to_matrix(df: pd.DataFrame, path: Path) -> _Read:
     if bad:
         raise SummaryError(
             f"`path`: a wide table has one numeric column per unit, but these columns of {str(path)!r} are not "
-            f"numeric: {_fmt_names(bad, 5)}. For a long table use columns 'draw', 'unit', 'value'."
+            f"numeric: {format_names(bad, 5)}. For a long table use columns 'draw', 'unit', 'value'."
         )
     return _Read(df[units].to_numpy(), chains=chains, unit_ids=units)
 
@@ -503,10 +503,10 @@ def _read_netcdf(path: Path, variable, group) -> _Read:
         names = [str(v) for v in ds.data_vars]
         if variable is None:
             if len(names) != 1:
-                raise SummaryError(f"`variable`: {str(path)!r} holds {len(names)} variables; name one of {_fmt_names(names)}.")
+                raise SummaryError(f"`variable`: {str(path)!r} holds {len(names)} variables; name one of {format_names(names)}.")
             variable = names[0]
         elif variable not in names:
-            raise SummaryError(f"`variable` {variable!r} is not in {str(path)!r}; available: {_fmt_names(names)}.")
+            raise SummaryError(f"`variable` {variable!r} is not in {str(path)!r}; available: {format_names(names)}.")
         try:
             da = ds[variable].load()
         except Exception as exc:  # noqa: BLE001 - a damaged data section shows up only when read
@@ -566,7 +566,7 @@ def _read_sampler_csv(paths: list[Path], variable) -> _Read:
         if not found:
             raise SummaryError(
                 f"`variable` prefix {variable!r} matches no column of {str(path)!r} (looked for {variable}.1, "
-                f"{variable}[1] or {variable}_1). Columns seen: {_fmt_names(header, 8)}."
+                f"{variable}[1] or {variable}_1). Columns seen: {format_names(header, 8)}."
             )
         idx = sorted(found)  # integer order: tau.10 comes after tau.9
         gaps = sorted(set(range(idx[0], idx[-1] + 1)) - set(idx))
@@ -574,7 +574,7 @@ def _read_sampler_csv(paths: list[Path], variable) -> _Read:
             raise SummaryError(
                 f"`variable` {variable!r}: the unit indices in {str(path)!r} must run 1..n (or 0..n-1) without "
                 f"gaps; found {len(idx)} columns from {idx[0]} to {idx[-1]}"
-                + (f", missing {_fmt_names(gaps, 5)}." if gaps else ".")
+                + (f", missing {format_names(gaps, 5)}." if gaps else ".")
             )
         names = [found[k] for k in idx]
         try:

@@ -26,6 +26,8 @@ from ..core.validate import SummaryError, check_columns, check_int
 from ..core.intervals import simultaneous_band
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 from .base import SummaryResult
+from .pygam_bridge import PYGAM_RIDGE as _PYGAM_RIDGE
+from .pygam_bridge import model_matrix, penalty_matrix
 from .projection import ProjectedFit
 from .linear import FrozenProjection, check_draws
 
@@ -36,10 +38,6 @@ CURVE_COLUMNS = ("covariate", "covariate_type", "x", *STAT_COLUMNS, "lower_joint
 #: Columns of the table of effects at a missing value.
 MISSING_COLUMNS = ("covariate", *STAT_COLUMNS, *MC_COLUMNS)
 
-# pygam adds sqrt(machine epsilon) to the diagonal of every penalty "to improve condition"
-# (pygam/pygam.py, GAM._pirls: S = sp.sparse.diags(np.ones(m) * np.sqrt(EPS))); the frozen
-# smoother adds the same ridge so it equals pygam's own fit exactly.
-_PYGAM_RIDGE = float(np.sqrt(np.finfo(np.float64).eps))
 
 
 def _check_lam(lam, columns):
@@ -143,17 +141,14 @@ class AdditiveSummary(SummaryResult, ProjectedFit):
     summary_type = "additive"
 
     def __init__(self, draws, coef, r2, info, C, C_missing, design, keep, bbar, lam, settings):
-        super().__init__(draws, settings)
-        self.coef_draws = coef
-        self._r2 = r2
+        SummaryResult.__init__(self, draws, settings)
+        ProjectedFit.__init__(self, coef, r2, design, keep)
         self.columns = [it["spec"].name for it in info]
         self.covariate_types = {it["spec"].name: it["spec"].kind for it in info}
         self.grids = {k: v[0] for k, v in C.items()}
         self._C = {k: v[1] for k, v in C.items()}
         self._C_missing = C_missing
         self.fill = {it["spec"].name: it["fill"] for it in info if it.get("fill") is not None}
-        self._design = design
-        self._keep = keep
         self._bbar = bbar
         self.lam = lam
 
@@ -200,7 +195,7 @@ class AdditiveSummary(SummaryResult, ProjectedFit):
         for name in self.columns:
             cd = self.curve_draws(name)
             x = self.grids[name]
-            cols = self._columns([("curve", name, k) for k in range(cd.shape[1])], cd, level=level, interval=interval)
+            cols = self.statistics([("curve", name, k) for k in range(cd.shape[1])], cd, level=level, interval=interval)
             jlo, jhi = simultaneous_band(cd, level)
             frame = pd.DataFrame({
                 "covariate": name,
@@ -228,7 +223,7 @@ class AdditiveSummary(SummaryResult, ProjectedFit):
         if not names:
             return pd.DataFrame(columns=list(MISSING_COLUMNS))
         draws = self.coef_draws @ np.column_stack([self._C_missing[k] for k in names])
-        cols = self._columns([("missing", k) for k in names], draws, level=level, interval=interval)
+        cols = self.statistics([("missing", k) for k in names], draws, level=level, interval=interval)
         return pd.DataFrame({"covariate": names, **cols})
 
     def apply_to(self, draws, *, progress=None) -> "AdditiveSummary":
@@ -244,9 +239,9 @@ class AdditiveSummary(SummaryResult, ProjectedFit):
 
         keep = check_draws(draws)
         check_same_units(self.draws, draws, self.columns)
-        if not np.array_equal(keep, self._keep):
+        if not np.array_equal(keep, self.kept_units):
             raise SummaryError(
-                f"`draws` gives zero weight to {int((~keep).sum())} units and this summary to {int((~self._keep).sum())} "
+                f"`draws` gives zero weight to {int((~keep).sum())} units and this summary to {int((~self.kept_units).sum())} "
                 "(not the same units); the frozen basis needs the same units with positive weight."
             )
         out = summarize_additive(draws, columns=self.columns, n_splines=self.settings["n_splines"], lam=dict(self.lam),
@@ -359,19 +354,19 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
     with warnings.catch_warnings(), contextlib.redirect_stdout(io.StringIO()):
         warnings.simplefilter("ignore", RuntimeWarning)
         gam.fit(X, target, weights=wk)  # one fit: compiles the terms and sets pygam's fitted state
-    design = gam._modelmat(X).tocsr()
+    design = model_matrix(gam, X)
     p = design.shape[1]
     sw = np.sqrt(wk)
     Q, R = np.linalg.qr(sw[:, None] * design.toarray())
     if lam is None:
         # pygam's gridsearch criterion, computed from one QR instead of one pygam fit per candidate.
-        best = _gcv_search(R, Q.T @ (sw * target), float(wk @ (target * target)), gam._P().toarray(), target.size)
+        best = _gcv_search(R, Q.T @ (sw * target), float(wk @ (target * target)), penalty_matrix(gam), target.size)
         lam_used = {c: best for c in cols}
-        penalty = best * gam._P().toarray()
+        penalty = best * penalty_matrix(gam)
         source = "GCV grid search (pygam's default grid and criterion, one lam for all terms)"
     else:
         lam_used = {it["spec"].name: float(gam.lam[j][0]) for j, it in enumerate(info)}
-        penalty = gam._P().toarray()
+        penalty = penalty_matrix(gam)
         source = "given"
     penalty = penalty + _PYGAM_RIDGE * np.eye(p)
     proj = FrozenProjection(draws, None, keep, penalty=penalty, intercept=p - 1, qr=(Q, R))
@@ -392,7 +387,7 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
         Xg = np.repeat(X[:1], grid.size, axis=0)
         Xg[:, j] = grid
         rows = np.tile(bbar, (grid.size, 1))
-        rows[:, idx] = gam._modelmat(Xg, term=j).toarray()
+        rows[:, idx] = model_matrix(gam, Xg, term=j).toarray()
         ind = item.get("indicator")
         if ind is not None:
             # indicator terms follow the covariate terms in the order of their feature columns,
@@ -402,7 +397,7 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
             miss_row = bbar.copy()
             Xm = X[:1].copy()
             Xm[:, j] = item["fill"]
-            miss_row[idx] = gam._modelmat(Xm, term=j).toarray()[0]
+            miss_row[idx] = model_matrix(gam, Xm, term=j).toarray()[0]
             miss_row[ind_idx] = 1.0
             C_missing[name] = miss_row
         C[name] = (values, rows)

@@ -46,7 +46,7 @@ class SummaryResult:
         """What produced this summary (a plain dict of JSON-friendly values)."""
         return self._settings
 
-    def _columns(self, keys, theta: np.ndarray, *, level: float, interval: str) -> dict:
+    def statistics(self, keys, theta: np.ndarray, *, level: float, interval: str) -> dict:
         """Table columns of per-draw quantities ``theta`` (n_draws, k).
 
         ``keys`` names each column (k hashable ids, for example node ids): the level-free Monte
@@ -64,7 +64,7 @@ class SummaryResult:
         return summary_columns(theta, level=level, interval=interval, n_chains=self._draws.n_chains,
                                diagnostics=diag)
 
-    def _r2_columns(self, key, r2: np.ndarray, *, level: float, interval: str) -> dict:
+    def r2_statistics(self, key, r2: np.ndarray, *, level: float, interval: str) -> dict:
         """:data:`FIT_COLUMNS` of a per-draw summary R^2 (one value each).
 
         Draws with no heterogeneity have no R^2 (NaN); they are left out, and the remaining
@@ -72,7 +72,7 @@ class SummaryResult:
         """
         ok = ~np.isnan(r2)
         if ok.all():
-            cols = self._columns([key], r2[:, None], level=level, interval=interval)
+            cols = self.statistics([key], r2[:, None], level=level, interval=interval)
         else:
             cols = summary_columns(r2[ok][:, None], level=level, interval=interval, n_chains=1)
         return {name: cols[name][0] for name in FIT_COLUMNS}

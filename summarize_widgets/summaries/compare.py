@@ -7,7 +7,7 @@ model of one outcome, the intention-to-treat draws beside complier-weighted ones
 :func:`compare_posteriors` then gives, per subgroup, term or curve point, both
 posteriors and the posterior of their difference.
 
-Paired or independent (METHOD.md section 6: a difference is computed per draw, never
+Paired or independent (docs/method.md section 6: a difference is computed per draw, never
 from two marginal intervals):
 
 * **paired** -- the two draw sets come from one sampler run (draw ``s`` of each is

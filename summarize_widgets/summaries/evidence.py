@@ -1,7 +1,7 @@
 """Is there heterogeneity at all? The posterior of the spread of effects, and a plain verdict.
 
 Three per-draw quantities, each a functional of one posterior draw, so their
-draws are draws from their posterior (METHOD.md section 2):
+draws are draws from their posterior (docs/method.md section 2):
 
 * ``unit_sd_s``: the weighted standard deviation of the unit effects across the
   units, ``sqrt(sum_i w_si (T_si - m_s)^2 / sum_i w_si)`` with
@@ -15,7 +15,7 @@ draws are draws from their posterior (METHOD.md section 2):
   subgroup weighted by its total weight in the draw ``W_sg = sum_{i in g} w_si``.
   For a tree (a partition) this is the between-subgroup part of the variance
   decomposition: ``between_sd_s^2 = R2_s * unit_sd_s^2`` with the tree's summary
-  R^2 (METHOD.md section 3). For overlapping groups it is a descriptive spread.
+  R^2 (docs/method.md section 3). For overlapping groups it is a descriptive spread.
 * ``range_s``: the largest minus the smallest subgroup effect in the draw.
 
 ``P(range > c)`` is the share of draws whose range exceeds ``c``. The default

@@ -75,7 +75,7 @@ class GroupSummary(SummaryResult):
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """Same columns as :meth:`TreeSummary.table`; ``subgroup`` is the label, ``rule`` the query."""
-        cols = self._columns(self.labels, self.group_draws, level=level, interval=interval)
+        cols = self.statistics(self.labels, self.group_draws, level=level, interval=interval)
         return effect_table(cols, self._info(), level=level, interval=interval, uptake=self._uptake,
                             uptake_floor=uptake_floor, attrs=self._attrs())
 
@@ -83,7 +83,7 @@ class GroupSummary(SummaryResult):
         """Every pair of groups (the "All units" row included): difference, interval, P(A > B)."""
         return contrast_table(self.group_draws, self.labels, self.queries, level=level, interval=interval,
                               subgroup=subgroup, attrs=self._attrs(),
-                              stats=lambda keys, diff: self._columns(keys, diff, level=level, interval=interval))
+                              stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     def apply_to(self, draws, *, progress=None) -> "GroupSummary":
         """The same groups (memberships frozen) with effects computed from other draws of the same units.

@@ -208,15 +208,12 @@ class LinearSummary(SummaryResult, ProjectedFit):
     summary_type = "linear"
 
     def __init__(self, draws, coef, r2, terms, specs, fill, design, keep, settings):
-        super().__init__(draws, settings)
-        self.coef_draws = coef
-        self._r2 = r2
+        SummaryResult.__init__(self, draws, settings)
+        ProjectedFit.__init__(self, coef, r2, design, keep)
         self.terms = list(terms)
         self.columns = [s.name for s in specs]
         self.reference = {s.name: s.categories[0] for s in specs if s.kind == "categorical"}
         self.fill = {k: v for k, v in fill.items() if any(s.name == k and s.n_missing for s in specs)}
-        self._design = design
-        self._keep = keep
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """One row per coefficient.
@@ -226,7 +223,7 @@ class LinearSummary(SummaryResult, ProjectedFit):
         above 0) and Monte Carlo error columns. ``df.attrs`` holds ``level``, ``interval``,
         ``label``, ``reference`` (reference categories) and ``summary``.
         """
-        cols = self._columns(self.terms, self.coef_draws, level=level, interval=interval)
+        cols = self.statistics(self.terms, self.coef_draws, level=level, interval=interval)
         out = pd.DataFrame({"term": self.terms, **cols})
         out.attrs.update({"level": float(level), "interval": interval, "label": self.label, "unit": self.draws.unit,
                           "better": self.draws.better, "reference": dict(self.reference), "summary": "linear"})

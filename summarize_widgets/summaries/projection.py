@@ -27,13 +27,32 @@ def r2_note(r2: np.ndarray) -> str:
 class ProjectedFit:
     """Mixin for summaries stored as coefficient draws on a fixed design.
 
-    Needs ``coef_draws`` (n_draws, p), ``_r2`` (n_draws,), ``_design`` (n_kept, p; dense or
-    sparse) and ``_keep`` (n_units,) of bool.
+    Parameters
+    ----------
+    coef : ndarray, shape (n_draws, p)
+        Projected coefficients per draw (``coef_draws``).
+    r2 : ndarray, shape (n_draws,)
+        Summary R^2 per draw, NaN where a draw has no heterogeneity.
+    design : ndarray or sparse matrix, shape (n_kept, p)
+        The fixed design over the units that take part.
+    keep : ndarray of bool, shape (n_units,)
+        Which units take part (positive posterior-mean weight).
     """
+
+    def __init__(self, coef, r2, design, keep):
+        self.coef_draws = coef
+        self._r2 = r2
+        self._design = design
+        self._keep = keep
+
+    @property
+    def kept_units(self) -> np.ndarray:
+        """Which units take part in the summary (positive posterior-mean weight), shape (n_units,)."""
+        return self._keep
 
     @property
     def fit_r2(self) -> np.ndarray:
-        """Summary R^2 per draw, shape (n_draws,) (METHOD.md section 3, with the pseudo-values).
+        """Summary R^2 per draw, shape (n_draws,) (docs/method.md section 3, with the pseudo-values).
 
         NaN for draws with no heterogeneity (``fit_r2_note`` says how many); raises
         :class:`SummaryError` when no draw has any.

@@ -26,7 +26,6 @@ from sklearn.tree import DecisionTreeRegressor
 
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
 from .projection import checked_r2, r2_note
-from ..core.intervals import credible_interval
 from ..core.passes import LeafSums, run_pass
 from ..core.rules import Condition, combine, nice_threshold
 from .base import SummaryResult
@@ -336,8 +335,8 @@ class TreeSummary(SummaryResult):
         })
 
     def _attrs(self):
-        return {"label": self.label, "depth": self._depth, "summary": "tree", "unit": self._draws.unit,
-                "better": self._draws.better}
+        return {"label": self.label, "depth": self._depth, "summary": "tree", "unit": self.draws.unit,
+                "better": self.draws.better}
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """One row per subgroup at the current depth.
@@ -352,7 +351,7 @@ class TreeSummary(SummaryResult):
         complier share below ``uptake_floor``: the subgroup's ratio is unstable).
         """
         ids = self.leaf_ids
-        cols = self._columns([int(i) for i in ids], self.leaf_draws, level=level, interval=interval)
+        cols = self.statistics([int(i) for i in ids], self.leaf_draws, level=level, interval=interval)
         return effect_table(cols, self._info(ids), level=level, interval=interval, uptake=self._uptake(ids),
                             uptake_floor=uptake_floor, attrs=self._attrs())
 
@@ -366,7 +365,7 @@ class TreeSummary(SummaryResult):
         f = self._f
         ids = np.flatnonzero(f.node_depth <= self._depth)
         theta = ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
-        cols = self._columns([int(i) for i in ids], theta, level=level, interval=interval)
+        cols = self.statistics([int(i) for i in ids], theta, level=level, interval=interval)
         leaves = set(self.leaf_ids.tolist())
         out = pd.DataFrame({
             "node": ids.astype(int),
@@ -388,7 +387,7 @@ class TreeSummary(SummaryResult):
         ids = self.leaf_ids
         return contrast_table(self.leaf_draws, [int(i) for i in ids], [self._f.rules[i] for i in ids],
                               level=level, interval=interval, subgroup=subgroup, attrs=self._attrs(),
-                              stats=lambda keys, diff: self._columns(keys, diff, level=level, interval=interval))
+                              stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     # -- summary R^2 ---------------------------------------------------------------------
     def _r2_at(self, depth: int) -> np.ndarray:
@@ -397,7 +396,7 @@ class TreeSummary(SummaryResult):
         ids = f.nodes_at(depth)
         c = d.scan.centre[:, None]
         W = f.W_nodes[:, ids]
-        Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (METHOD.md section 3 numerics)
+        Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (docs/method.md section 3 numerics)
         Wt = f.W_nodes[:, 0]
         Atc = f.A_nodes[:, 0] - d.scan.centre * Wt
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -431,7 +430,7 @@ class TreeSummary(SummaryResult):
         rows = []
         for d, r2 in self.fit_r2_draws_by_depth().items():
             rows.append({"depth": d, "n_subgroups": len(self._f.nodes_at(d)),
-                         **self._r2_columns(("fit_r2", d), r2, level=level, interval=interval)})
+                         **self.r2_statistics(("fit_r2", d), r2, level=level, interval=interval)})
         out = pd.DataFrame(rows)
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
         return out

@@ -40,7 +40,7 @@ INTERVALS = (("Equal-tailed", "equal-tailed"), ("Highest density", "highest-dens
 PROGRESS_AFTER_S = 0.3
 MIN_FIGURE_WIDTH = 420
 _WIDE = {"description_width": "initial"}
-_STAGES = {"tree": "Regrouping", "linear": "Linear fit", "trends": "Trends"}
+_STAGES = {"tree": "Regrouping", "groups": "Groups", "linear": "Linear fit", "additive": "Trends"}
 
 
 class _Panel:
@@ -552,7 +552,7 @@ class Explorer(widgets.VBox):
     def _draw_trends(self, panel):
         s = self._state
         if self._res.additive is None:
-            why = self._res.errors.get("trends", "The additive summary was not computed.")
+            why = self._res.errors.get("additive", "The additive summary was not computed.")
             self._show(panel, P.message_figure(f"No trends: {why}"))
             return
         covariate = s["covariate"] or self.covariate_control.value

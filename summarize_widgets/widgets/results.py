@@ -11,8 +11,8 @@ from collections.abc import Callable, Mapping
 import numpy as np
 import pandas as pd
 
-from ..core.validate import SummaryError
-from ..summaries.tree import TreeSummary, summarize_tree
+from ..summaries.bundle import summarize_all
+from ..summaries.tree import TreeSummary
 
 __all__ = ["Results"]
 
@@ -30,7 +30,7 @@ class Results:
     additive, linear : AdditiveSummary or LinearSummary or None
         None when not asked for or when it could not be computed (``errors`` says why).
     errors : dict
-        "trends" / "linear" -> message.
+        "additive" / "linear" -> message.
     """
 
     def __init__(self, tree: TreeSummary, additive=None, linear=None, errors: Mapping | None = None):
@@ -44,36 +44,16 @@ class Results:
     @classmethod
     def compute(cls, draws, *, max_depth: int, min_size, columns, trends: bool, linear: bool,
                 additive_options: Mapping | None = None, progress: Progress | None = None) -> "Results":
-        """Every summary for these settings (one pass over the draws each).
+        """Every summary for these settings, through the one orchestrator (:func:`summarize_all`).
 
         Raises :class:`SummaryError` when the tree cannot be built (for example a
-        ``min_size`` larger than the data); trends and the linear fit are extras whose
+        ``min_size`` larger than the data); the additive and linear summaries are extras whose
         failure is recorded in ``errors`` instead.
         """
-        stages = ["tree"] + (["linear"] if linear else []) + (["trends"] if trends else [])
-
-        def tick(stage):
-            if progress is None:
-                return None
-            k = stages.index(stage)
-            return lambda done, total: progress(stage, k, len(stages), done, total)
-
-        tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=tick("tree"))
-        out, errors = {}, {}
-        if linear:
-            from ..summaries.linear import summarize_linear
-            try:
-                out["linear"] = summarize_linear(draws, columns=columns, progress=tick("linear"))
-            except SummaryError as exc:
-                errors["linear"] = str(exc)
-        if trends:
-            from ..summaries.additive import summarize_additive
-            try:
-                out["additive"] = summarize_additive(draws, columns=columns, progress=tick("trends"),
-                                                     **dict(additive_options or {}))
-            except SummaryError as exc:
-                errors["trends"] = str(exc)
-        return cls(tree, additive=out.get("additive"), linear=out.get("linear"), errors=errors)
+        bundle = summarize_all(draws, depth=max_depth, max_depth=max_depth, min_size=min_size, columns=columns,
+                               additive=trends, linear=linear, additive_options=additive_options, extras="record",
+                               progress=progress)
+        return cls(bundle.tree, additive=bundle.additive, linear=bundle.linear, errors=bundle.errors)
 
     # -- cached reads --------------------------------------------------------------------------
     def _cached(self, key, make):

@@ -34,11 +34,11 @@ DEFAULT_PALETTE = EFFECT_PALETTE
 
 
 def asset_path(name: str) -> Path:
-    """Locate a front-end file shipped with the package.
+    """Locate a front-end file shipped with the package: ``summarize_widgets/_static/<name>``.
 
-    In a wheel the repository's ``js/`` folder is installed as
-    ``summarize_widgets/_static/``; in an editable install that folder does not
-    exist and the file is read from the repository's ``js/`` instead.
+    ``summarize_widgets/_static`` is a link to the repository's top-level ``js/`` folder, so
+    a source checkout, an editable install and a wheel (which stores the linked files) all
+    find the files the same way.
 
     Parameters
     ----------
@@ -49,19 +49,13 @@ def asset_path(name: str) -> Path:
     -------
     pathlib.Path
     """
-    try:
-        packaged = resources.files("summarize_widgets") / "_static" / name
-        if packaged.is_file():
-            return Path(str(packaged))
-    except (ModuleNotFoundError, FileNotFoundError, NotADirectoryError):  # pragma: no cover - odd installs
-        pass
-    source = Path(__file__).resolve().parents[2] / "js" / name
-    if source.is_file():
-        return source
-    raise FileNotFoundError(
-        f"front-end file {name!r} not found: looked in summarize_widgets/_static/ and {source.parent}. "
-        "Reinstall the package (pip install summarize_widgets) so its JavaScript is included."
-    )
+    path = Path(str(resources.files("summarize_widgets") / "_static" / name))
+    if not path.is_file():
+        raise FileNotFoundError(
+            f"front-end file {name!r} not found in {path.parent}. Reinstall the package "
+            "(pip install summarize_widgets) so its JavaScript is included."
+        )
+    return path
 
 
 def _clean(value, field):
