@@ -19,7 +19,11 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
-from arviz_stats.base import array_stats
+
+try:  # arviz-stats 0.x (the newest on Python 3.11 is 0.8): the numpy core is arviz_stats.base.array_stats
+    from arviz_stats.base import array_stats
+except ImportError:  # pragma: no cover - newer layouts: the top-level functions take arrays with the same axes
+    import arviz_stats as array_stats
 
 from .intervals import credible_interval, prob_above
 from .validate import check_interval, check_level

@@ -5,6 +5,11 @@ from pathlib import Path
 
 from ..core.validate import SummaryError, check_interval, check_level
 from ..summaries.bundle import SummaryBundle
+from .. import figures as F
+from ..figures.static import BrowserNotFoundError, find_browser
+from .provenance import provenance
+from .report import write_report
+from .tables import export_tables
 
 __all__ = ["write_summary_folder", "check_output_folder", "FIGURE_FORMATS"]
 
@@ -38,9 +43,6 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
     An existing non-empty folder is refused unless ``overwrite=True``; every file is written
     atomically. Returns the written paths.
     """
-    from .provenance import provenance
-    from .tables import export_tables
-    from .report import write_report
 
     level = check_level(level)
     interval = check_interval(interval)
@@ -56,7 +58,6 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
                                 digits=digits, title=title or f"Posterior summary: {bundle.draws.label}",
                                 overwrite=overwrite))
     if figures == "auto":
-        from ..figures.static import BrowserNotFoundError, find_browser
         try:
             find_browser()
         except BrowserNotFoundError as exc:
@@ -69,7 +70,6 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
 
 
 def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -> list[Path]:
-    from .. import figures as F
 
     bad = [f for f in formats if f not in FIGURE_FORMATS]
     if bad:

@@ -17,6 +17,7 @@ from .provenance import jsonable, provenance as make_provenance, provenance_line
 from ..core.validate import SummaryError, check_interval, check_level
 from ..core.files import refuse_existing, write_atomic
 from .tables import summary_tables, to_html
+from .. import figures as F
 
 __all__ = ["write_report", "render_report", "default_figures", "CAUTIONS"]
 
@@ -83,7 +84,6 @@ def default_figures(*, tree=None, groups=None, additive=None, linear=None, level
 
     Uses :mod:`summarize_widgets.figures` (imported here so the table exporters work without plotly).
     """
-    from .. import figures as F
 
     out: dict[str, list] = {}
     if tree is not None:

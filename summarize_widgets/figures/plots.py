@@ -23,6 +23,10 @@ import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
 from ..core.validate import SummaryError
+from ..summaries.additive import AdditiveSummary
+from ..summaries.groups import ALL_UNITS, GroupSummary
+from ..summaries.linear import LinearSummary
+from ..summaries.tree import TreeSummary
 
 __all__ = [
     "PALETTE", "DIVERGING", "EFFECT_PALETTE", "INK", "ACCENT", "MUTED", "GRID", "BAND",
@@ -408,8 +412,6 @@ def plot_subgroups(result, *, level: float = 0.95, interval: str = "equal-tailed
     -------
     plotly.graph_objects.Figure
     """
-    from ..summaries.groups import ALL_UNITS, GroupSummary
-    from ..summaries.tree import TreeSummary
 
     _check_type(result, (TreeSummary, GroupSummary), "result")
     df = result.table(level=level, interval=interval)
@@ -511,7 +513,6 @@ def plot_fit_by_depth(tree, *, level: float = 0.95, interval: str = "equal-taile
     -------
     plotly.graph_objects.Figure
     """
-    from ..summaries.tree import TreeSummary
 
     _check_type(tree, TreeSummary, "tree")
     summary = tree.fit_r2_by_depth(level=level, interval=interval)
@@ -651,7 +652,6 @@ def plot_curves(additive, *, covariate=None, level: float = 0.95, interval: str 
         Numeric covariates: mean line, pointwise band, lighter simultaneous band.
         Categorical covariates: a point per category with both intervals.
     """
-    from ..summaries.additive import AdditiveSummary
 
     _check_type(additive, AdditiveSummary, "additive")
     curves = additive.curves(level=level, interval=interval)
@@ -748,7 +748,6 @@ def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tai
     -------
     plotly.graph_objects.Figure
     """
-    from ..summaries.linear import LinearSummary
 
     _check_type(linear, LinearSummary, "linear")
     return coefficients_figure(linear.table(level=level, interval=interval), intercept=intercept, per=per,
@@ -844,8 +843,6 @@ def plot_contrasts(result, subgroup, *, level: float = 0.95, interval: str = "eq
     -------
     plotly.graph_objects.Figure
     """
-    from ..summaries.groups import GroupSummary
-    from ..summaries.tree import TreeSummary
 
     _check_type(result, (TreeSummary, GroupSummary), "result")
     if isinstance(subgroup, np.generic):

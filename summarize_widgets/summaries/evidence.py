@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..core.draws import EffectDraws
 from ..core.stats import draw_summary
 from ..core.passes import run_pass
 from ..core.validate import SummaryError, check_interval, check_level
@@ -122,7 +123,6 @@ def between_sd_draws(theta: np.ndarray, weights: np.ndarray) -> np.ndarray:
 
 
 def _check_draws(draws):
-    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")

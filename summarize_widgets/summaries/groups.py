@@ -6,6 +6,7 @@ from collections.abc import Mapping
 import numpy as np
 import pandas as pd
 
+from ..core.draws import EffectDraws
 from ..core.passes import LinearMap, run_pass
 from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
@@ -92,7 +93,6 @@ class GroupSummary(SummaryResult):
         order, with the same covariate values. Applied to the draws these groups were computed
         from, it reproduces this summary exactly.
         """
-        from ..core.draws import EffectDraws
         from .compare import check_same_units
 
         if not isinstance(draws, EffectDraws):
@@ -121,7 +121,6 @@ def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=N
     GroupSummary
         Its table has a first row for all units.
     """
-    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws; got {type(draws).__name__}.")

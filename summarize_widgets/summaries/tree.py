@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 from sklearn.tree import DecisionTreeRegressor
 
+from ..core.draws import EffectDraws
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
 from .projection import checked_r2, r2_note
 from ..core.passes import LeafSums, run_pass
@@ -467,7 +468,6 @@ class TreeSummary(SummaryResult):
             At the current depth, every depth available; one pass over ``draws``, no refit.
             Applied to the draws the tree was grown on, it reproduces this summary exactly.
         """
-        from ..core.draws import EffectDraws
         from .compare import check_same_units
 
         if not isinstance(draws, EffectDraws):
@@ -531,7 +531,6 @@ def summarize_tree(draws, *, max_depth: int = 4, min_size: int | None = None, co
     TreeSummary
         At depth ``max_depth``.
     """
-    from ..core.draws import EffectDraws
 
     if not isinstance(draws, EffectDraws):
         raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); got {type(draws).__name__}.")
