@@ -16,6 +16,7 @@ from .summaries.bundle import DEFAULT_DEPTH, summarize_all
 __all__ = ["main"]
 
 _TABLES = ("subgroups", "contrasts", "fit", "linear", "trends")
+DRAW_FORMAT_NAMES = ("npy", "npz", "csv", "parquet", "netcdf", "zarr", "sampler-csv")
 
 
 def _add_summary_options(p: argparse.ArgumentParser) -> None:
@@ -31,23 +32,35 @@ def _add_summary_options(p: argparse.ArgumentParser) -> None:
 
 
 def _add_input_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("draws", metavar="DRAWS", help="draws file: .npy, .npz, .csv, .parquet, .nc, or sampler CSV")
+    p.add_argument("draws", metavar="DRAWS",
+                   help="draws file: .npy, .npz, .csv, .parquet, .nc (netCDF, groups allowed), a .zarr store, or sampler CSV")
     p.add_argument("--covariates", required=True, metavar="FILE", help="covariates, one row per unit (.csv or .parquet)")
     g = p.add_argument_group("reading the draws")
-    g.add_argument("--variable", default=None, help="array / netCDF variable / sampler column prefix holding the effects")
-    g.add_argument("--draws-format", default=None, choices=("npy", "npz", "csv", "parquet", "netcdf", "sampler-csv"),
-                   help="file format (default: from the extension)")
+    g.add_argument("--variable", "--outcome-var", dest="variable", default=None, metavar="NAME",
+                   help="variable in DRAWS holding the effects (or, with --uptake, the outcome ITT): a .npz array, "
+                        "a netCDF/zarr variable or a sampler column prefix")
+    g.add_argument("--nc-group", default=None, metavar="GROUP",
+                   help="netCDF/zarr group holding the variables (default: the root, else a 'posterior' group)")
+    g.add_argument("--draws-format", default=None, choices=DRAW_FORMAT_NAMES,
+                   help="format of DRAWS (default: from the extension)")
+    g.add_argument("--unit-column", default="unit", metavar="NAME",
+                   help="covariate column holding unit ids, matched to the ids the draws carry (default 'unit'; "
+                        "without one, units are matched by position)")
     g.add_argument("--chains", type=int, default=None, help="number of chains, stored chain-major")
     g.add_argument("--uptake", default=None, metavar="FILE",
                    help="draws of the offer's effect on uptake: DRAWS is then the outcome ITT and every subgroup "
-                        "effect is complier-weighted (LATE)")
+                        "effect is complier-weighted (LATE); FILE may be DRAWS itself with another --uptake-var")
+    g.add_argument("--uptake-var", default=None, metavar="NAME",
+                   help="variable in the --uptake file holding the uptake ITT (needed when that file holds several)")
+    g.add_argument("--uptake-format", default=None, choices=DRAW_FORMAT_NAMES,
+                   help="format of the --uptake file (default: from the extension)")
     g.add_argument("--label", default=None, help="what the effect is, for titles (default 'effect' or 'LATE')")
 
 
 def build_parser() -> argparse.ArgumentParser:
     from . import __version__
 
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="summarize-widgets",
         description="Summarize posterior draws of unit-level effects into subgroups, trends and tables.",
     )
@@ -83,7 +96,8 @@ def build_parser() -> argparse.ArgumentParser:
     rep.add_argument("--out", required=True, metavar="DIR", help="output folder")
     rep.add_argument("--overwrite", action="store_true", help="replace files in an existing non-empty folder")
     rep.add_argument("--group", action="append", default=[], metavar="LABEL=QUERY",
-                     help="a pre-specified group as a pandas query, e.g. --group \"older=age >= 65\" (repeatable)")
+                     help="a pre-specified group as LABEL=QUERY, e.g. --group \"older=age >= 65\" (repeatable; comparisons, "
+                          "'in' lists, 'is missing', and/or/not)")
     rep.add_argument("--no-figures", action="store_true", help="skip the SVG/PDF/PNG figure files")
     return parser
 
@@ -93,11 +107,17 @@ def _columns(text):
 
 
 def _groups(items):
+    from .core.query import parse_query
+
     out = {}
     for item in items:
         label, sep, query = item.partition("=")
         if not sep or not label.strip() or not query.strip():
             raise ValueError(f"--group must look like LABEL=QUERY (e.g. \"older=age >= 65\"); got {item!r}.")
+        try:
+            parse_query(query.strip())  # refuse a malformed query before any computation
+        except ValueError as exc:
+            raise ValueError(f"--group {label.strip()!r}: {exc}") from None
         out[label.strip()] = query.strip()
     return out
 
@@ -106,13 +126,29 @@ def _load(args):
     from .core.draws import EffectDraws
     from .io.load import load_draws
 
-    kw = dict(format=args.draws_format, variable=args.variable, chains=args.chains)
+    common = dict(chains=args.chains, group=args.nc_group, unit_column=args.unit_column or None)
     if args.uptake is None:
-        return load_draws(args.draws, args.covariates, label=args.label or "effect", **kw)
-    outcome = load_draws(args.draws, args.covariates, **kw)
-    uptake = load_draws(args.uptake, args.covariates, **kw)
-    return EffectDraws.from_itt(outcome.values, uptake.values, outcome.covariates, chains=outcome.n_chains,
-                                label=args.label or "LATE")
+        if args.uptake_var is not None:
+            raise ValueError("--uptake-var names the variable of the --uptake file; pass --uptake FILE too.")
+        return load_draws(args.draws, args.covariates, format=args.draws_format, variable=args.variable,
+                          label=args.label or "effect", **common)
+    if Path(args.uptake).resolve() == Path(args.draws).resolve() and (args.uptake_var or None) == (args.variable or None):
+        raise ValueError(
+            "--uptake names the DRAWS file itself with the same variable, so the uptake would be the outcome; "
+            "pass --variable for the outcome ITT and --uptake-var for the uptake ITT."
+        )
+    outcome = load_draws(args.draws, args.covariates, format=args.draws_format, variable=args.variable,
+                         source=str(args.draws), **common)
+    try:
+        uptake = load_draws(args.uptake, args.covariates, format=args.uptake_format, variable=args.uptake_var,
+                            source=str(args.uptake), **common)
+    except ValueError as exc:  # name the uptake file's own options in the hint
+        msg = str(exc).replace("`variable`", "--uptake-var").replace("`format=`", "--uptake-format")
+        raise ValueError(f"--uptake file: {msg}") from None
+    # Both files were matched to the same covariate rows, so their columns are the same units in the same order.
+    cov = outcome.covariates.set_axis(outcome.unit_ids, axis=0)
+    return EffectDraws.from_itt(outcome.values, uptake.values, cov, chains=outcome.n_chains,
+                                label=args.label or "LATE", source=str(args.draws))
 
 
 def _text_table(df) -> str:
@@ -217,7 +253,7 @@ def _cmd_report(args) -> int:
     from .export.folder import check_output_folder, write_summary_folder
 
     out = Path(args.out)
-    check_output_folder(out, args.overwrite)
+    check_output_folder(out, args.overwrite)  # every output check before any computation
     groups = _groups(args.group)
     draws = _load(args)
     bundle = _summaries(draws, args, groups=groups or None)
@@ -227,6 +263,44 @@ def _cmd_report(args) -> int:
                                  figures=False if args.no_figures else "auto", overwrite=args.overwrite)
     _finish(bundle, files, out)
     return 0
+
+
+# Python argument spellings in library messages -> the options a command-line user types.
+_CLI_SPELLINGS = [
+    (r"`format=`|`format`|format=", "--draws-format"),
+    (r"`variable`|variable=", "--variable"),
+    (r"`group=`|`group`|group=", "--nc-group"),
+    (r"`unit_column`|unit_column=None", "--unit-column ''"),
+    (r"unit_column=", "--unit-column "),
+    (r"`chains`|chains=", "--chains"),
+    (r"`min_size`|min_size=", "--min-size"),
+    (r"`max_depth`|max_depth=", "--max-depth"),
+    (r"`columns`|columns=", "--columns"),
+    (r"`level`|level=", "--level"),
+    (r"`depth`|depth=", "--depth"),
+    (r"`uptake_itt`", "the --uptake draws"),
+    (r"`outcome_itt`", "the outcome draws (DRAWS)"),
+    (r"`covariates`", "--covariates"),
+    (r"`path`", "DRAWS"),
+    (r"overwrite=True \(command line: --overwrite\)|overwrite=True", "--overwrite"),
+]
+
+
+def cli_message(msg: str) -> str:
+    """One line, with the library's Python argument names replaced by command-line option spellings."""
+    import re
+
+    line = " ".join(str(msg).split())
+    for pattern, repl in _CLI_SPELLINGS:
+        line = re.sub(pattern, repl, line)
+    return line
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line (no usage block)."""
+
+    def error(self, message):
+        self.exit(2, f"{self.prog}: error: {cli_message(message)} (see {self.prog} --help)\n")
 
 
 def main(argv=None) -> int:
@@ -239,14 +313,18 @@ def main(argv=None) -> int:
     handler = {"demo": _cmd_demo, "summarize": _cmd_summarize, "report": _cmd_report}[args.command]
     try:
         return handler(args)
-    except (ValueError, FileExistsError, FileNotFoundError, PermissionError, RuntimeError) as exc:
+    except (ValueError, FileExistsError, FileNotFoundError, PermissionError, RuntimeError, OSError) as exc:
         # SummaryError is a ValueError; BrowserNotFoundError a RuntimeError: all say what to fix.
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        msg = cli_message(exc) if str(exc) else type(exc).__name__
         print(f"summarize-widgets {args.command}: error: {msg}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("summarize-widgets: interrupted", file=sys.stderr)
         return 130
+    except Exception as exc:  # noqa: BLE001 - an unexpected failure is still one line, never a traceback
+        print(f"summarize-widgets {args.command}: error: unexpected {type(exc).__name__}: {cli_message(exc)} "
+              "(please report this with the command you ran)", file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":  # pragma: no cover

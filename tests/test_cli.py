@@ -8,6 +8,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from builders import household_study, write_sampler_netcdf, write_sampler_zarr
+
 from summarize_widgets.cli import main
 
 
@@ -79,7 +81,7 @@ def test_errors_are_one_line_without_traceback(own_files, tmp_path):
     assert "Traceback" not in r.stderr and len(r.stderr.strip().splitlines()) == 1
     assert "missing.npy" in r.stderr
     r = run("summarize", str(own_files / "draws.npy"), "--covariates", str(own_files / "cov.csv"), "--min-size", "100000")
-    assert r.returncode == 2 and "`min_size` must be between 1 and 300" in r.stderr and "Traceback" not in r.stderr
+    assert r.returncode == 2 and "--min-size must be between 1 and 300" in r.stderr and "Traceback" not in r.stderr
     r = run("summarize", str(own_files / "draws.npy"), "--covariates", str(own_files / "cov.csv"), "--columns", "age,height")
     assert r.returncode == 2 and "'height'" in r.stderr
     r = run("report", str(own_files / "draws.npy"), "--covariates", str(own_files / "cov.csv"),
@@ -132,3 +134,119 @@ def test_without_a_browser_the_folder_is_written_and_figures_are_skipped_with_a_
     assert code == 0
     assert "Static figure files skipped" in text and "apt-get install chromium" in text
     assert (out / "report.html").exists() and not (out / "figures").exists()
+
+
+# -- sampler files, per-input variables, errors before work, one line always -----------------------
+@pytest.fixture(scope="module")
+def sampler_files(tmp_path_factory):
+    d = tmp_path_factory.mktemp("sampler")
+    cov, tau, itt, up = household_study(n_units=80, n_draws=30)
+    write_sampler_netcdf(d / "fit.nc", {"tau": tau, "itt_y": itt, "itt_d": up}, cov.index)
+    write_sampler_zarr(d / "fit.zarr", {"tau": tau}, cov.index)
+    cov.reset_index().to_csv(d / "cov.csv", index=False)  # ids in a 'household' column
+    return d
+
+
+def test_netcdf_posterior_group_and_zarr_store_on_the_command_line(sampler_files, capsys):
+    args = ["--covariates", str(sampler_files / "cov.csv"), "--unit-column", "household", "--depth", "1",
+            "--min-size", "10", "--format", "csv"]
+    assert main(["summarize", str(sampler_files / "fit.nc"), "--variable", "tau", *args]) == 0
+    from_nc = capsys.readouterr().out
+    assert main(["summarize", str(sampler_files / "fit.nc"), "--variable", "tau", "--nc-group", "posterior", *args]) == 0
+    assert capsys.readouterr().out == from_nc
+    assert main(["summarize", str(sampler_files / "fit.zarr"), *args]) == 0
+    assert capsys.readouterr().out == from_nc
+    assert "age <= 5" in from_nc or "age > 5" in from_nc
+
+
+def test_outcome_and_uptake_variables_of_one_file(sampler_files, capsys):
+    base = ["summarize", str(sampler_files / "fit.nc"), "--covariates", str(sampler_files / "cov.csv"),
+            "--unit-column", "household", "--depth", "1", "--min-size", "10"]
+    assert main([*base, "--outcome-var", "itt_y", "--uptake", str(sampler_files / "fit.nc"), "--uptake-var", "itt_d"]) == 0
+    out = capsys.readouterr().out
+    assert "LATE" in out and "uptake_share" in out
+
+
+def test_the_same_variable_for_outcome_and_uptake_is_refused(sampler_files, capsys):
+    base = ["summarize", str(sampler_files / "fit.nc"), "--covariates", str(sampler_files / "cov.csv"),
+            "--unit-column", "household"]
+    # the old bug: one --variable applied to both files divided a matrix by itself (an effect of exactly 1)
+    assert main([*base, "--variable", "itt_d", "--uptake", str(sampler_files / "fit.nc")]) == 2
+    assert "--uptake-var" in capsys.readouterr().err
+    assert main([*base, "--variable", "itt_d", "--uptake", str(sampler_files / "fit.nc"), "--uptake-var", "itt_d"]) == 2
+    assert "--uptake-var" in capsys.readouterr().err
+
+
+def test_output_folder_below_a_file_is_refused_before_any_computation(own_files, tmp_path, capsys):
+    (tmp_path / "afile").write_text("x")
+    code = main(["report", str(own_files / "draws.npy"), "--covariates", str(own_files / "cov.csv"),
+                 "--out", str(tmp_path / "afile" / "out")])
+    captured = capsys.readouterr()
+    assert code == 2 and "which is a file, not a folder" in captured.err
+    assert captured.out == ""  # nothing was computed or printed first
+
+
+def test_bad_group_query_is_refused_before_any_computation(own_files, tmp_path, capsys):
+    code = main(["report", str(own_files / "draws.npy"), "--covariates", str(own_files / "cov.csv"),
+                 "--out", str(tmp_path / "r"), "--group", "x=__import__('os').getcwd() == 1"])
+    captured = capsys.readouterr()
+    assert code == 2 and "the call" in captured.err and captured.out == ""
+    assert not (tmp_path / "r").exists()
+
+
+def test_hints_use_command_line_spellings(own_files, tmp_path, capsys):
+    (tmp_path / "draws.dat").write_bytes(b"123")
+    assert main(["summarize", str(tmp_path / "draws.dat"), "--covariates", str(own_files / "cov.csv")]) == 2
+    err = capsys.readouterr().err
+    assert "--draws-format" in err and "format=" not in err
+
+
+BAD_INPUTS = [
+    ["summarize", "{own}/missing.npy", "--covariates", "{own}/cov.csv"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/missing.csv"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--variable", "tau"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--nc-group", "posterior"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--chains", "7"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--depth", "0"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--level", "2"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--uptake", "{own}/draws.npy"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--uptake-var", "x"],
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--depth", "notanumber"],
+    ["summarize", "{own}"],
+    ["report", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--out", "{own}/draws.npy"],
+    ["report", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--out", "{tmp}/r", "--group", "a=age +"],
+    ["report", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--out", "{tmp}/r", "--group", "a=height > 3"],
+    ["report", "{own}/uptake_itt.npy", "--covariates", "{own}/cov.csv", "--out", "{tmp}/r", "--columns", "nope"],
+    ["demo", "--households", "-5", "--out", "{tmp}/d"],
+    ["demo", "--out", "{own}/draws.npy/x"],
+    ["frobnicate"],
+]
+
+
+@pytest.mark.parametrize("argv", BAD_INPUTS, ids=lambda a: " ".join(a)[:60])
+def test_every_subcommand_with_bad_input_fails_in_one_line_without_traceback(argv, own_files, tmp_path, capsys):
+    argv = [a.format(own=own_files, tmp=tmp_path) for a in argv]
+    with pytest.raises(SystemExit) if argv[0] == "frobnicate" or "notanumber" in argv or len(argv) == 2 else _nothing():
+        code = main(argv)
+        assert code == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err
+    assert len(err.strip().splitlines()) == 1, err
+
+
+class _nothing:
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+
+@pytest.mark.parametrize("command", [
+    ["summarize", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--variable", "tau"],
+    ["report", "{own}/draws.npy", "--covariates", "{own}/cov.csv", "--out", "{own}/draws.npy/x"],
+    ["demo", "--households", "1", "--out", "{tmp}/d"],
+], ids=["summarize", "report", "demo"])
+def test_each_subcommand_run_as_a_program_prints_no_traceback(command, own_files, tmp_path):
+    r = run(*[a.format(own=own_files, tmp=tmp_path) for a in command])
+    assert r.returncode == 2 and "Traceback" not in r.stderr and len(r.stderr.strip().splitlines()) == 1, r.stderr

@@ -172,7 +172,7 @@ def test_truth_helper_errors(study):
         study.true_subgroup_late(np.ones(2000, np.int64))
     with pytest.raises(SummaryError, match="selects no household"):
         study.true_subgroup_mean(np.zeros(2000, bool))
-    with pytest.raises(SummaryError, match="could not be evaluated"):
+    with pytest.raises(SummaryError, match="`mask`: query .no_such_column > 3. names .no_such_column., which is not a column"):
         study.true_subgroup_mean("no_such_column > 3")
 
 

@@ -56,8 +56,14 @@ def test_memory_mapped_values_are_used_in_place(tmp_path, tau, households):
 
 
 def test_dataframe_and_integer_input(tau, households):
-    d = EffectDraws(pd.DataFrame(tau, columns=[f"hh{i}" for i in range(N)]), households)
-    np.testing.assert_array_equal(d._values, tau)
+    names = [f"hh{i}" for i in range(N)]
+    # columns that name units are matched to the covariates' index, never paired by position
+    with pytest.raises(SummaryError, match=r"`values` carries unit labels that do not match the covariates' index"):
+        EffectDraws(pd.DataFrame(tau, columns=names), households)
+    d = EffectDraws(pd.DataFrame(tau, columns=names), households.set_axis(names))
+    np.testing.assert_array_equal(d.values, tau)
+    d = EffectDraws(pd.DataFrame(tau), households)  # default column numbers 0..n-1: positions
+    np.testing.assert_array_equal(d.values, tau)
     ints = np.arange(S * N).reshape(S, N)
     d = EffectDraws(ints, households)
     assert d.dtype == np.float64
@@ -187,7 +193,7 @@ def test_too_few_draws_or_units(tau, households):
         (np.ones(4), r"`weights` must have shape \(5,\) \(one per unit\) or \(6, 5\) \(one per draw and unit\); got shape \(4,\)"),
         (np.ones((5, 6)), r"got shape \(5, 6\)"),
         (np.array(["a"] * 5), r"`weights` must be numeric; got dtype <U1"),
-        (np.zeros(5), r"Every unit has zero total weight"),
+        (np.zeros(5), r"`weights` are zero for every unit \(zero total weight\)"),
     ],
 )
 def test_bad_weights(tau, households, weights, message):
@@ -236,8 +242,8 @@ def test_bad_chains(tau, households, chains, message):
 
 
 def test_bad_values(tau, households):
-    with pytest.raises(SummaryError, match=r"`values` must be 2-D with shape \(n_draws, n_units\); got 3-D shape \(2, 3, 5\)"):
-        EffectDraws(tau.reshape(2, 3, N), households)
+    with pytest.raises(SummaryError, match=r"`values` must be 2-D \(n_draws, n_units\) or 3-D \(n_chains, n_draws, n_units\); got 4-D shape \(1, 2, 3, 5\)"):
+        EffectDraws(tau.reshape(1, 2, 3, N), households)
     with pytest.raises(SummaryError, match=r"`values` must hold numbers; got dtype object"):
         EffectDraws(tau.astype(object), households)
     da = xr.DataArray(tau.reshape(1, S, N, 1), dims=("chain", "draw", "household", "season"))

@@ -27,6 +27,11 @@ from summarize_widgets.summaries.tree import summarize_tree
 NASTY = "a&b%c$d#e_f{g}h~i^j\\k"  # every LaTeX special in one name
 
 
+def plain(tex: str) -> str:
+    """LaTeX without the break points placed inside long words (so tests compare the text)."""
+    return tex.replace(r"\penalty5000{}", "")
+
+
 # ----------------------------------------------------------------------------- fixtures
 def subgroup_table(weak=None, rules=None) -> pd.DataFrame:
     """A tree table with the documented columns (DEVELOPERS.md), numbers chosen by hand."""
@@ -114,15 +119,16 @@ def test_escape_latex_is_one_pass_and_drops_line_breaks():
 
 
 def test_rules_typeset_readably():
-    assert ex.rule_to_latex("age <= 40 & region in {east, west}") == r"age $\leq$ 40 and region $\in$ \{east, west\}"
-    assert ex.rule_to_latex("30 < age <= 50") == r"30 $<$ age $\leq$ 50"
-    assert ex.rule_to_latex("bill >= 2 | x != 1") == r"bill $\geq$ 2 or x $\neq$ 1"
-    assert ex.rule_to_latex("(size > 3 or missing)") == r"(size $>$ 3 or missing)"
-    assert ex.rule_to_latex("fuel not in {oil}") == r"fuel $\notin$ \{oil\}"
+    # A line may break between conditions (around "and"/"or"), never inside one (~ ties a condition).
+    assert ex.rule_to_latex("age <= 40 & region in {east, west}") == r"age~$\leq$~40 and region~$\in$~\{east, west\}"
+    assert ex.rule_to_latex("30 < age <= 50") == r"30~$<$~age~$\leq$~50"
+    assert ex.rule_to_latex("bill >= 2 | x != 1") == r"bill~$\geq$~2 or x~$\neq$~1"
+    assert ex.rule_to_latex("(size > 3 or missing)") == r"(size~$>$~3 or missing)"
+    assert ex.rule_to_latex("fuel not in {oil}") == r"fuel~$\notin$~\{oil\}"
     # Operators count only between spaces; names and categories keep their characters, escaped.
-    assert ex.rule_to_latex("R&D_share > 0.5") == r"R\&D\_share $>$ 0.5"
-    assert ex.rule_to_latex('fuel in {a&b "q", 50%}') == r'fuel $\in$ \{a\&b "q", 50\%\}'
-    assert ex.rule_to_latex("tenure == 'owner'") == r"tenure $=$ ``owner''"
+    assert ex.rule_to_latex("R&D_share > 0.5") == r"R\&D\_share~$>$~0.5"
+    assert ex.rule_to_latex('fuel in {a&b "q", 50%}') == r'fuel~$\in$~\{a\&b "q", 50\%\}'
+    assert ex.rule_to_latex("tenure == 'owner'") == r"tenure~$=$~``owner''"
     assert ex.rule_to_text("age <= 40 & region in {a&b, c}") == "age \u2264 40 and region \u2208 {a&b, c}"
 
 
@@ -135,11 +141,13 @@ def test_latex_booktabs_caption_label_and_intervals():
     assert i_top < i_mid < i_bot and i_bot - i_mid == 4
     assert r"\caption{Subgroups " + ex.escape_latex(NASTY) + "}" in tex
     assert r"\label{tab:subgroups}" in tex
-    assert r"\begin{tabular}{rlrrrcr}" in tex
-    row = lines[i_mid + 1]
-    assert row == (r"3 & baseline\_bill $\leq$ 120 and tenure $\in$ \{owner, co-op\} & 412 & 0.21 & $-$12.35 & "
-                   r"[$-$15.12, $-$9.50] & 0.00 \\")
-    assert "90\\% interval" in lines[i_top + 1]
+    # The rule column takes the room left and wraps, so the table fits the text width.
+    assert r"\begin{tabularx}{\linewidth}{@{}l>{\raggedright\arraybackslash}Xrrrcr@{}}" in tex
+    row = plain(lines[i_mid + 1])
+    # digits per column: the largest |mean| or sd (12.3) gets 3 significant digits; P(>0) = 0 reads <0.001
+    assert row == (r"3 & baseline\_bill~$\leq$~120 and tenure~$\in$~\{owner, co-op\} & 412 & 20.6\% & "
+                   r"$-$12.3 & [$-$15.1, $-$9.5] & $<$0.001 \\")
+    assert "90\\%\\\\interval" in lines[i_top + 1]
     assert "90\\% equal-tailed posterior credible intervals" in tex
     assert "--" not in tex.replace("co-op", "")  # no "-0.00"-style artefacts or doubled dashes
 
@@ -170,7 +178,9 @@ def test_latex_no_negative_zero():
 def test_latex_weak_uptake_footnote_marker():
     tex = ex.to_latex(subgroup_table(weak=[False, True, False]))
     body = tex.split(r"\midrule")[1].split(r"\bottomrule")[0].strip().splitlines()
-    assert r"$-$4.00$^{\dagger}$" in body[1]
+    # many number columns: each rule goes on its own line under its subgroup's numbers
+    body = [line for line in body if not line.startswith(r"\multicolumn")]
+    assert r"$-$4.0$^{\dagger}$" in body[1]
     assert r"\dagger" not in body[0] and r"\dagger" not in body[2]
     assert r"$^{\dagger}$ Weak uptake" in tex
     assert "Weak uptake" not in ex.to_latex(subgroup_table(weak=[False, False, False]))
@@ -197,24 +207,48 @@ def test_latex_label_and_kind_errors():
 
 def test_latex_every_table_kind():
     tex = ex.to_latex(contrast_table())
-    assert r"Difference $A - B$" in tex and r"$P(A > B)$" in tex
-    assert r"x $\leq$ 1 & x $>$ 1 and fuel $=$ oil & 1.25 & [0.50, 2.00] & 0.99 \\" in tex
+    assert r"Difference\\$A - B$" in tex and r"$P(A > B)$" in tex
+    assert r"x~$\leq$~1 & x~$>$~1 and fuel~$=$~oil & 1.25 & [0.50, 2.00] & 0.99 \\" in tex
     assert "highest-density" in tex
-    tex = ex.to_latex(linear_table())
-    assert r"fuel[" + ex.escape_latex(NASTY) + "] & 2.50 & [1.10, 3.90] & 1.00" in tex
+    tex = plain(ex.to_latex(linear_table()))
+    assert "] & 2.50 & [1.10, 3.90] & $>$0.999" in tex and r"a\&b\%c" in tex
     tex = ex.to_latex(ex.curve_points(curves_table(), {"baseline_bill": [100], "fuel": ['a&b "q"']}))
-    assert r"baseline\_bill & 100.00 & $-$10.00 & [$-$11.00, $-$9.00] & [$-$12.00, $-$8.00] \\" in tex
-    assert r'fuel & a\&b "q" & 1.00 & [0.00, 2.00] & [$-$1.00, 3.00] \\' in tex
+    assert r"baseline\_\penalty5000{}bill & 100 & $-$10.0 & [$-$11.0, $-$9.0] & [$-$12.0, $-$8.0] \\" in tex
+    assert r'fuel & a\&b "q" & 1.0 & [0.0, 2.0] & [$-$1.0, 3.0] \\' in tex
     tex = ex.to_latex(ex.curve_points(curves_table(), n_points=2))  # a covariate is named on its first row only
-    assert tex.count("baseline\\_bill & ") == 1 and r" & 300.00 & $-$30.00 &" in tex
-    assert tex.count("fuel & ") == 1 and r" & oil & $-$8.00 &" in tex
+    assert tex.count("baseline\\_\\penalty5000{}bill & ") == 1 and r" & 300 & $-$30.0 &" in tex
+    assert tex.count("fuel & ") == 1 and r" & oil & $-$8.0 &" in tex
     r2 = pd.DataFrame({"depth": [1, 2], "n_subgroups": [2, 4], "mean": [0.41, 0.6], "lower": [0.3, 0.5], "upper": [0.5, 0.7]})
-    assert r"2 & 4 & 0.60 & [0.50, 0.70] \\" in ex.to_latex(r2)
+    assert r"2 & 4 & 0.600 & [0.500, 0.700] \\" in ex.to_latex(r2)
+
+
+def _compile(tmp_path, body: str, preamble: str = "") -> str:
+    """Compile ``body`` inside a plain article (default margins); return the log."""
+    (tmp_path / "t.tex").write_text("\\documentclass{article}\n\\usepackage{booktabs,tabularx,rotating}\n" + preamble
+                                    + "\\begin{document}\n" + body + "\\end{document}\n", encoding="utf-8")
+    run = subprocess.run(["pdflatex", "-interaction=nonstopmode", "-halt-on-error", "t.tex"], cwd=tmp_path,
+                         capture_output=True, text=True, timeout=120)
+    assert run.returncode == 0, run.stdout[-3000:]
+    return (tmp_path / "t.log").read_text(errors="replace")
+
+
+def overfull(log: str, tolerance_pt: float = 2.0) -> list[str]:
+    """Every overfull box in a LaTeX log wider than ``tolerance_pt`` (a table running off the page)."""
+    return [m.group(0) for m in re.finditer(r"Overfull \\[hv]box \(([0-9.]+)pt too (?:wide|high)\)[^\n]*", log)
+            if float(m.group(1)) > tolerance_pt]
+
+
+def test_overfull_detector_catches_a_wide_table(tmp_path):
+    # The check must be able to fail: a plain tabular with a long rule runs off the page.
+    wide = "\\begin{tabular}{ll}" + "x & " + "word " * 120 + "\\\\ \\end{tabular}\n"
+    wide = "\\begin{tabular}{ll}x & " + "\\mbox{" + "w" * 200 + "} \\\\ \\end{tabular}\n"
+    assert overfull(_compile(tmp_path, wide))
 
 
 @pytest.mark.skipif(shutil.which("pdflatex") is None, reason="pdflatex not installed (apt-get install texlive-latex-recommended)")
 def test_latex_compiles_with_pdflatex(tmp_path, real, smooth):
-    # The real check of "escaped and valid": LaTeX itself must accept every table.
+    # The real check of "escaped and valid": LaTeX itself must accept every table, and every
+    # table must fit the text width of a plain article (no overfull box wider than 2 pt).
     _, tree, groups = real
     linear, additive = smooth
     prov = ex.provenance([tree, groups], settings={"note": NASTY})
@@ -224,14 +258,28 @@ def test_latex_compiles_with_pdflatex(tmp_path, real, smooth):
         ex.to_latex(tree.table(), provenance=prov), ex.to_latex(tree.contrasts()), ex.to_latex(tree.fit_r2_by_depth()),
         ex.to_latex(groups.table()), ex.to_latex(linear_table()), ex.to_latex(ex.curve_points(curves_table())),
         ex.to_latex(linear.table()), ex.to_latex(ex.curve_points(additive.curves())),
+        ex.to_latex(tree.table(), landscape=True), ex.to_latex(tree.table(), width="0.7\\linewidth"),
     ])
-    (tmp_path / "t.tex").write_text("\\documentclass{article}\n\\usepackage{booktabs}\n\\begin{document}\n"
-                                    + body + "\\end{document}\n", encoding="utf-8")
-    run = subprocess.run(["pdflatex", "-interaction=nonstopmode", "-halt-on-error", "t.tex"], cwd=tmp_path,
-                         capture_output=True, text=True, timeout=120)
-    assert run.returncode == 0, run.stdout[-3000:]
-    log = (tmp_path / "t.log").read_text(errors="replace")
+    log = _compile(tmp_path, body)
     assert "Missing character" not in log and "Undefined control sequence" not in log
+    assert overfull(log) == []
+
+
+@pytest.mark.skipif(shutil.which("pdflatex") is None, reason="pdflatex not installed")
+def test_demo_and_complier_tables_fit_a_plain_article(tmp_path):
+    from summarize_widgets.datasets.retrofit import simulate_retrofit_study
+
+    study = simulate_retrofit_study(n_households=1200, n_draws=300, seed=20261201)
+    body = []
+    for draws in (study.effect_draws(), study.complier_draws()):
+        tree = summarize_tree(draws, max_depth=3)
+        groups = summarize_groups(draws, {"owners": "tenure == 'owner'", "older homes": "dwelling_age > 60"})
+        for name, (df, caption) in ex.summary_tables(tree=tree, groups=groups, linear=summarize_linear(draws)).items():
+            body.append(ex.to_latex(df, caption=caption, provenance=ex.provenance([tree])))
+    tex = "".join(body)
+    assert "ratio of sums" in tex and "Share of compliers" in tex and "Made with" not in tex.replace("% Made with", "")
+    log = _compile(tmp_path, tex)
+    assert overfull(log) == []
 
 
 # ----------------------------------------------------------------------------- Markdown
@@ -240,9 +288,9 @@ def test_markdown_pipe_table_escaped():
     md = ex.to_markdown(df, caption="Tree *depth* 2", digits=1)
     lines = md.splitlines()
     assert lines[0] == r"**Tree \*depth\* 2**"
-    assert lines[2] == "| Subgroup | Rule | n | Share | Mean | 90% interval | P(\\>0) |"
-    assert lines[3] == "| ---: | :--- | ---: | ---: | ---: | :---: | ---: |"
-    assert lines[4] == "| 3 | `a\\|b \u2264 1` | 412 | 0.2 | \u221212.3 | [\u221215.1, \u22129.5] | 0.0 |"
+    assert lines[2] == "| Subgroup | Rule | n | Share of units | Mean | 90% interval | P(\\>0) |"
+    assert lines[3] == "| :--- | :--- | ---: | ---: | ---: | :---: | ---: |"
+    assert lines[4] == "| 3 | `a\\|b \u2264 1` | 412 | 20.6% | \u221212.3 | [\u221215.1, \u22129.5] | <0.001 |"
     assert "`x > 1 and <script>`" in lines[5]  # inside a code span, < is literal text, never markup
     assert "| ``x`y = 1`` |" in lines[6]  # a longer fence around a backtick
     # Every row has the header's number of cells (escaped pipes do not split cells).
@@ -404,9 +452,17 @@ def test_provenance_in_every_table_format(tmp_path):
     comments = [line for line in tex.splitlines() if line.startswith("%")]
     assert comments[0].startswith(f"% Made with summarize_widgets {summarize_widgets.__version__}")
     assert f"% input draws: draws.npy sha256={digest}" in comments and "% settings: depth=2" in comments
-    note = f"draws.npy (sha256 {digest[:12]})"
-    assert note in tex and note in ex.to_markdown(subgroup_table(), provenance=prov)
-    assert note in ex.to_html(subgroup_table(), provenance=prov)
+    # Provenance is in comments only: the printed notes never carry a "Made with ... sha256" line.
+    printed = [line for line in tex.splitlines() if not line.startswith("%")]
+    assert not any("Made with" in line or "sha256" in line for line in printed)
+    md = ex.to_markdown(subgroup_table(), provenance=prov)
+    assert f"<!-- input draws: draws.npy sha256={digest} -->" in md
+    assert not any("sha256" in line for line in md.splitlines() if not line.startswith("<!--"))
+    page = ex.to_html(subgroup_table(), provenance=prov)
+    assert f"<!-- input draws: draws.npy sha256={digest} -->" in page
+    p = _Collect()
+    p.feed(page)
+    assert not any("sha256" in t or "Made with" in t for t in p.text)
 
 
 # ----------------------------------------------------------------------------- curve points
@@ -431,7 +487,7 @@ def test_real_tables_escape_names_from_the_data(real):
     _, tree, groups = real
     table = tree.table()
     assert any("<script>" in r for r in table["rule"])  # the fixture's tree does split on the nasty name
-    tex = ex.to_latex(table)
+    tex = plain(ex.to_latex(table))
     assert r"\textless{}script\textgreater{}alert(1)\textless{}/script\textgreater{}" in tex
     assert "<script>" not in tex
     html_out = ex.to_html(groups.contrasts())
@@ -453,7 +509,7 @@ def test_export_tables_writes_refuses_and_overwrites(tmp_path, real):
     pd.testing.assert_frame_equal(back, tree.table(level=0.8).reset_index(drop=True), check_exact=True, check_dtype=False)
     prov = json.loads((out / "provenance.json").read_text())
     assert prov["settings"]["level"] == 0.8 and prov["summaries"]["tree"]["depth"] == 2
-    assert "80\\% interval" in (out / "subgroups_depth2.tex").read_text()
+    assert "80\\% equal-tailed" in (out / "subgroups_depth2.tex").read_text()
     stamp = {p.name: p.stat().st_mtime_ns for p in out.iterdir()}
     with pytest.raises(FileExistsError, match=r"subgroups_depth2\.tex.*already exist.*overwrite=True"):
         ex.export_tables(out, tree=tree, formats=("tex", "md"))
@@ -475,9 +531,10 @@ def test_export_tables_errors(tmp_path, real):
 def test_real_linear_and_additive_tables(smooth):
     linear, additive = smooth
     lt = linear.table(level=0.9)
-    tex = ex.to_latex(lt, digits=3)
+    tex = plain(ex.to_latex(lt, digits=3))
     for row in lt.itertuples():  # every coefficient with its interval, formatted independently
-        assert f"{ex.escape_latex(row.term)} & {row.mean:.3f}".replace("-", "$-$") in tex
+        name = ex.escape_latex(row.term)
+        assert f"{name} & {row.mean:.3f}".replace("-", "$-$") in tex
     assert "Reference categories: " in tex and "90\\% equal-tailed" in tex
     curves = additive.curves()
     picked = ex.curve_points(curves, {"baseline_bill": [150.0], "<script>alert(1)</script>": ['a&b "q"']})
@@ -501,10 +558,12 @@ def test_complier_weighted_weak_uptake_from_real_groups():
     assert table["weak_uptake"].tolist() == [False, False, True]
     tex = ex.to_latex(table)
     rows = tex.split(r"\midrule")[1].split(r"\bottomrule")[0].strip().splitlines()
+    rows = [r for r in rows if not r.startswith(r"\multicolumn")]  # rule lines under the numbers
     assert [r"\dagger" in r for r in rows] == [False, False, True]
     assert "Weak uptake" in tex and "below 0.05" in tex
+    assert "ratio of sums" in tex and "Share of compliers" in tex
     md = ex.to_markdown(table)
-    assert md.count("\u2020") == 2  # the marked mean and the note
+    assert md.count("\u2020") == 3  # the marked mean, the marked uptake share and the note
 
 
 def test_export_tables_all_four_summaries(tmp_path, real, smooth):

@@ -38,15 +38,15 @@ def test_group_errors_name_the_problem():
     rng = np.random.default_rng(0)
     X = pd.DataFrame({"age": rng.uniform(20, 80, 50)})
     d = sw.EffectDraws(rng.normal(size=(10, 50)), X)
-    with pytest.raises(SummaryError, match=r"Group 'rich': query 'income > 5' names a column that is not in the covariates"):
+    with pytest.raises(SummaryError, match=r"Group 'rich': query 'income > 5' names 'income', which is not a column of the covariates"):
         summarize_groups(d, {"rich": "income > 5"})
     with pytest.raises(SummaryError, match=r"Group 'none': query 'age > 500' selects no units"):
         summarize_groups(d, {"none": "age > 500"})
-    with pytest.raises(SummaryError, match=r"must give True/False per unit"):
+    with pytest.raises(SummaryError, match=r"arithmetic 'age \+ 1' is not allowed"):
         summarize_groups(d, {"num": "age + 1"})
     with pytest.raises(SummaryError, match=r"non-empty mapping"):
         summarize_groups(d, {})
-    with pytest.raises(SummaryError, match=r"could not be evaluated"):
+    with pytest.raises(SummaryError, match=r"is not a valid query"):
         summarize_groups(d, {"bad": "age >>> 3"})
 
 

@@ -232,7 +232,10 @@ def test_unit_ids_in_covariates_reorder_the_draws(tmp_path, values, households):
     order = [3, 0, 4, 1, 2]
     cov = households.assign(unit=[f"hh{i}" for i in order])
     d = load_draws(tmp_path / "wide.csv", cov)
-    np.testing.assert_array_equal(d._values, values[:, order])
+    # the matrix keeps the file's order; the covariate rows follow it (matched by id)
+    np.testing.assert_array_equal(d.values, values)
+    assert list(d.unit_ids) == [f"hh{i}" for i in range(N_UNITS)]
+    pd.testing.assert_frame_equal(d.covariates, households.iloc[np.argsort(order)].reset_index(drop=True))
     assert "unit" not in d.covariates.columns  # an identifier is not a covariate
     # unit_column=None matches by position and keeps the column
     d = load_draws(tmp_path / "wide.csv", cov, unit_column=None)
@@ -244,15 +247,16 @@ def test_unit_ids_for_long_table(tmp_path, values, households):
     _long(values).to_csv(tmp_path / "long.csv", index=False, float_format="%.17g")
     cov = households.assign(unit=[5, 4, 3, 2, 1])
     d = load_draws(tmp_path / "long.csv", cov)
-    np.testing.assert_array_equal(d._values, values[:, ::-1])
+    np.testing.assert_array_equal(d.values, values)  # file units 1..5 in natural order
+    pd.testing.assert_frame_equal(d.covariates, households.iloc[::-1].reset_index(drop=True))
 
 
 def test_unit_ids_that_do_not_match(tmp_path, values, households):
     pd.DataFrame(values, columns=[f"hh{i}" for i in range(N_UNITS)]).to_csv(tmp_path / "wide.csv", index=False)
     cov = households.assign(unit=["hh0", "hh1", "hh2", "hh3", "hh9"])
-    with pytest.raises(SummaryError, match=r"does not match the draws' units: 1 covariate unit ids have no draws \(e\.g\. 'hh9'\); 1 units in the draws are not in the covariates \(e\.g\. 'hh4'\)"):
+    with pytest.raises(SummaryError, match=r"do not match the covariates' column 'unit': 1 covariate units have no draws \(e\.g\. 'hh9'\), 1 draw units are not in the covariates \(e\.g\. 'hh4'\)"):
         load_draws(tmp_path / "wide.csv", cov)
-    with pytest.raises(SummaryError, match=r"repeats ids: 'hh1'"):
+    with pytest.raises(SummaryError, match=r"repeats unit ids: 'hh1'"):
         load_draws(tmp_path / "wide.csv", households.assign(unit=["hh0", "hh1", "hh1", "hh3", "hh4"]))
     with pytest.raises(SummaryError, match=r"\(unit ids\) has 1 missing values"):
         load_draws(tmp_path / "wide.csv", households.assign(unit=["hh0", None, "hh2", "hh3", "hh4"]))
@@ -308,13 +312,15 @@ def test_netcdf_unit_coordinate_matched_to_covariates(tmp_path, values, househol
     da = xr.DataArray(values.reshape(1, N_DRAWS, N_UNITS), dims=("chain", "draw", "household"), coords={"household": ids})
     da.to_dataset(name="tau").to_netcdf(tmp_path / "post.nc")
     d = load_draws(tmp_path / "post.nc", households.assign(unit=[50, 40, 30, 20, 10]))
-    np.testing.assert_array_equal(d._values, values[:, ::-1])
+    np.testing.assert_array_equal(d.values, values)  # the file's order; the covariate rows follow it
+    assert list(d.unit_ids) == ids
+    pd.testing.assert_frame_equal(d.covariates, households.iloc[::-1].reset_index(drop=True))
 
 
 def test_netcdf_errors(tmp_path, values, households):
     ds = xr.Dataset({"tau": (("chain", "draw", "household"), values.reshape(2, 3, N_UNITS)), "lp": (("chain", "draw"), np.zeros((2, 3)))})
     ds.to_netcdf(tmp_path / "post.nc")
-    with pytest.raises(SummaryError, match=r"`variable` 'cate' is not in .*available: 'tau', 'lp'"):
+    with pytest.raises(SummaryError, match=r"`variable` 'cate' is not in .*available, by group: \(root\): 'tau', 'lp'"):
         load_draws(tmp_path / "post.nc", households, variable="cate")
     with pytest.raises(SummaryError, match=r"holds 2 variables; name one of 'tau', 'lp'"):
         load_draws(tmp_path / "post.nc", households)
@@ -401,7 +407,7 @@ def test_unknown_extension_lists_supported(tmp_path, households):
     (tmp_path / "draws.xlsx").write_text("x")
     with pytest.raises(SummaryError, match=r"extension '\.xlsx'\. Supported: extensions \.npy, \.npz, \.csv, \.parquet, \.pq, \.nc"):
         load_draws(tmp_path / "draws.xlsx", households)
-    with pytest.raises(SummaryError, match=r"`format` must be one of 'npy', 'npz', 'csv', 'parquet', 'netcdf', 'sampler-csv'"):
+    with pytest.raises(SummaryError, match=r"`format` must be one of 'npy', 'npz', 'csv', 'parquet', 'netcdf', 'zarr', 'sampler-csv'"):
         load_draws(tmp_path / "draws.xlsx", households, format="excel")
 
 

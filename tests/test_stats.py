@@ -77,7 +77,7 @@ def _every_table(d, groups=True):
     add = sw.summarize_additive(d, lam=1.0)
     out = {
         "tree.table": (tree.table(), SUBGROUP_COLUMNS),
-        "tree.nodes": (tree.nodes(), ("node", "parent", "depth", "split", "rule", "is_leaf", "n_units", "share",
+        "tree.nodes": (tree.nodes(), ("node", "label", "parent", "depth", "split", "rule", "is_leaf", "n_units", "share",
                                       *STAT_COLUMNS, *MC_COLUMNS)),
         "tree.contrasts": (tree.contrasts(), CONTRAST_COLUMNS),
         "tree.fit_r2_by_depth": (tree.fit_r2_by_depth(), ("depth", "n_subgroups", *FIT_COLUMNS)),

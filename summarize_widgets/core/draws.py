@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from .inputs import align_weights, as_draw_input, id_like_columns, match_units
 from .validate import SummaryError, check_covariates, check_int, describe_nonfinite
 
 __all__ = ["EffectDraws", "DrawBlock", "ScanRecord", "DIRECTIONS"]
@@ -90,51 +91,38 @@ def _check_unit(unit) -> str:
     return unit.strip()
 
 
-def _as_matrix(values, name: str):
-    """Return (2-D float array without copying floats, n_chains from dims or None)."""
-    chains = None
-    try:  # xarray is optional at import time of this module
-        import xarray as xr
-    except ImportError:  # pragma: no cover - xarray is a dependency
-        xr = None
-    if xr is not None and isinstance(values, xr.DataArray):
-        dims = list(values.dims)
-        if "chain" in dims and "draw" in dims:
-            others = [d for d in dims if d not in ("chain", "draw")]
-            if len(others) != 1:
-                raise SummaryError(
-                    f"`{name}` must have dims (chain, draw, <unit>) with exactly one unit dimension; got dims {tuple(dims)}."
-                )
-            chains = int(values.sizes["chain"])
-            arr = values.transpose("chain", "draw", others[0]).to_numpy()
-            arr = arr.reshape(arr.shape[0] * arr.shape[1], arr.shape[2])
-        elif "draw" in dims and len(dims) == 2:
-            other = [d for d in dims if d != "draw"][0]
-            arr = values.transpose("draw", other).to_numpy()
-        elif len(dims) == 2:
-            arr = values.to_numpy()
-        else:
-            raise SummaryError(
-                f"`{name}` must be 2-D (draws x units) or have dims (chain, draw, <unit>); got dims {tuple(dims)}."
-            )
-    elif isinstance(values, pd.DataFrame):
-        arr = values.to_numpy()
-    elif isinstance(values, np.ndarray):
-        arr = values
-    else:
-        try:
-            arr = np.asarray(values)
-        except Exception as exc:  # noqa: BLE001 - report what was passed
-            raise SummaryError(f"`{name}` must be an array of shape (n_draws, n_units); got {type(values).__name__}.") from exc
+def _as_matrix(values, name: str, variable=None):
+    """Return (2-D float array without copying floats, n_chains from the input or None, unit labels or None)."""
+    inp = as_draw_input(values, name, variable)
+    arr = inp.values
     if arr.ndim != 2:
-        raise SummaryError(f"`{name}` must be 2-D with shape (n_draws, n_units); got {arr.ndim}-D shape {arr.shape}.")
+        raise SummaryError(
+            f"`{name}` must be 2-D (n_draws, n_units) or 3-D (n_chains, n_draws, n_units); got {arr.ndim}-D shape {arr.shape}."
+        )
     if arr.dtype.kind == "b" or arr.dtype.kind in "iu":
         arr = arr.astype(np.float64)
     elif arr.dtype.kind != "f":
         raise SummaryError(f"`{name}` must hold numbers; got dtype {arr.dtype}.")
     elif arr.dtype not in (np.float32, np.float64):
         arr = arr.astype(np.float64)
-    return arr, chains
+    return arr, inp.chains, inp.unit_labels
+
+
+def _same_matrix(a, b) -> bool:
+    """True when ``a`` and ``b`` hold the same numbers (the same array, or equal copies).
+
+    Cheap unless they are equal: the first draw is compared first, the rest only if it matches.
+    """
+    if a is b:
+        return True
+    if a.shape != b.shape:
+        return False
+    if (a.__array_interface__["data"][0] == b.__array_interface__["data"][0] and a.strides == b.strides):
+        return True
+    if not np.array_equal(a[0], b[0]):
+        return False
+    step = max(1, (8 * 2**20) // (8 * max(1, a.shape[1])))
+    return all(np.array_equal(a[i : i + step], b[i : i + step]) for i in range(0, a.shape[0], step))
 
 
 def _check_shape(arr, n_units: int, name: str, covariates_name: str = "covariates"):
@@ -187,25 +175,72 @@ def _check_source(source, arr) -> str:
     return source
 
 
+class _Shape:
+    """A stand-in with only ``.shape``, so shape checks need no array."""
+
+    def __init__(self, shape):
+        self.shape = tuple(shape)
+
+
+def _chains(given, recorded, name):
+    """The chain count: given, or what the input records; both must agree."""
+    if given is not None and recorded is not None and given != recorded:
+        raise SummaryError(
+            f"`chains` = {given!r} but `{name}` records {recorded} chains (its chain dim); leave `chains` unset."
+        )
+    return given if given is not None else recorded
+
+
+def _same_units(num, den, lab1, lab2):
+    """Uptake columns in the outcome's unit order (matched by labels when both carry them)."""
+    from .inputs import unit_key
+
+    if lab1 is None or lab2 is None:
+        return den, lab1 if lab1 is not None else lab2
+    k1, k2 = [unit_key(v) for v in lab1], [unit_key(v) for v in lab2]
+    if k1 == k2:
+        return den, lab1
+    if set(k1) != set(k2) or len(set(k2)) != len(k2):
+        only = [k for k in k1 if k not in set(k2)][:3] or [k for k in k2 if k not in set(k1)][:3]
+        raise SummaryError(
+            f"`outcome_itt` and `uptake_itt` carry different unit labels (e.g. {', '.join(map(repr, only))}); "
+            "both must describe the same units."
+        )
+    pos = {k: i for i, k in enumerate(k2)}
+    return den[:, [pos[k] for k in k1]], lab1
+
+
 class EffectDraws:
     """Posterior draws of unit-level effects, with the units' covariates.
 
     Parameters
     ----------
-    values : array-like, shape (n_draws, n_units)
+    values : array-like, shape (n_draws, n_units) or (n_chains, n_draws, n_units)
         One row per posterior draw. NumPy arrays (float32 stays float32, float64
-        stays float64; the matrix is not copied; ``np.memmap`` works), pandas
-        DataFrames, or xarray DataArrays with dims (chain, draw, unit), whose chain
-        and draw dims are stacked in chain-major order.
+        stays float64; the matrix is not copied; ``np.memmap`` works; a 3-D array is
+        read as (chain, draw, unit)), pandas DataFrames (columns are units), xarray
+        DataArrays with dims (chain, draw, <unit>) in any order (or a stacked
+        (chain, draw) sample dim), xarray Datasets, or a sampler's results object
+        with a ``posterior`` group (an attribute or mapping key holding a Dataset);
+        chains are kept, stacked chain-major.
     covariates : pandas.DataFrame
-        One row per unit, in the order of the columns of ``values``: numeric,
-        boolean, categorical and string columns; missing values allowed.
+        One row per unit: numeric, boolean, categorical and string columns; missing
+        values allowed. When ``values`` carries unit labels (DataFrame columns, a unit
+        coordinate) they are matched to the covariates' index (or ``unit_column``, or
+        the one column holding exactly those ids), whatever the row order; without
+        labels, rows are in the order of the columns of ``values``.
     weights : None or array-like, shape (n_units,) or (n_draws, n_units), optional
         Non-negative weights: fixed per unit (survey or frequency weights) or per
-        draw and unit.
+        draw and unit. A pandas Series is matched to the units by its index; plain
+        arrays follow the covariate rows as given.
     chains : int, optional
         Number of chains, the draws stored chain-major (all of chain 1, then chain 2...).
-        Taken from the input's dims when it has a ``chain`` dim; 1 otherwise.
+        Taken from the input when it records chains (a ``chain`` dim, a 3-D array); 1 otherwise.
+    variable : str, optional
+        The variable of a Dataset or ``posterior`` group (needed when it holds several
+        variables with a ``draw`` dim).
+    unit_column : column name, optional
+        A covariate column holding unit ids; it is used to match units and is not a covariate.
     label : str, default "effect"
         What the values are (used in tables and figure titles).
     unit : str, optional
@@ -229,14 +264,38 @@ class EffectDraws:
     """
 
     def __init__(self, values, covariates, *, weights=None, chains=None, label: str = "effect", unit: str | None = None,
-                 better: str = "higher", source=None):
-        arr, dim_chains = _as_matrix(values, "values")
-        cov = check_covariates(covariates)
-        _check_shape(arr, cov.shape[0], "values")
-        w = _check_weights(weights, arr.shape[0], arr.shape[1])
+                 better: str = "higher", source=None, variable: str | None = None, unit_column=None):
+        arr, dim_chains, labels = _as_matrix(values, "values", variable)
+        cov, w, notes = self._units(labels, covariates, unit_column, weights, arr.shape, "values")
         self._source = _check_source(source, arr)
-        self._unit_ids = covariates.index.copy() if isinstance(covariates, pd.DataFrame) else None
-        self._init(arr, None, w, cov, chains if chains is not None else dim_chains, label, "values", unit, better)
+        self._init(arr, None, w, cov, _chains(chains, dim_chains, "values"), label, "values", unit, better)
+        self._notes = tuple(notes)
+
+    def _units(self, labels, covariates, unit_column, weights, shape, name, one_per_unit=False):
+        """Match unit labels to the covariates; check shapes and weights. Sets ``_unit_ids``.
+
+        Returns (covariates renumbered 0..n-1 in draw-column order, checked weights, notes).
+        """
+        check_covariates(covariates)
+        order, cov_given, ids, notes = match_units(labels, covariates, unit_column, name=name)
+        drop = [c for c in id_like_columns(cov_given) if c != unit_column]
+        if drop:
+            names = ", ".join(repr(str(c)) for c in drop)
+            notes.append(
+                f"Not used as covariates: {names} (a different text value for every unit: it identifies units "
+                "rather than describing them; set it as the covariates' index or pass `unit_column=` to match units by it)."
+            )
+            cov_given = cov_given.drop(columns=drop)
+        cov = check_covariates(cov_given)
+        _check_shape(_Shape(shape), cov.shape[0], name)
+        if one_per_unit and weights is not None and np.ndim(weights) != 1:
+            raise SummaryError(
+                f"`weights` for complier-weighted draws must be one per unit, shape ({shape[1]},); "
+                f"got shape {np.shape(weights)} (the uptake draws already act as per-draw weights)."
+            )
+        w = _check_weights(align_weights(weights, ids, order), shape[0], shape[1])
+        self._unit_ids = ids.copy()
+        return cov, w, notes
 
     # -- construction ---------------------------------------------------------------
     def _init(self, values, denominator, weights, covariates, chains, label, name, unit=None, better="higher"):
@@ -261,7 +320,8 @@ class EffectDraws:
 
     @classmethod
     def from_itt(cls, outcome_itt, uptake_itt, covariates, *, weights=None, chains=None, label: str = "LATE",
-                 unit: str | None = None, better: str = "higher", source=None):
+                 unit: str | None = None, better: str = "higher", source=None, outcome_variable: str | None = None,
+                 uptake_variable: str | None = None, unit_column=None):
         """Complier-weighted draws for an encouragement (instrument) design.
 
         Parameters
@@ -271,8 +331,14 @@ class EffectDraws:
         uptake_itt : array-like, shape (n_draws, n_units)
             Per-draw unit-level effect of the offer on uptake (the complier share,
             non-negative under monotonicity).
-        covariates, chains, label, unit, better, source
+        covariates, chains, label, unit, better, source, unit_column
             As for :class:`EffectDraws` (the default ``source`` is that of ``outcome_itt``).
+            Both matrices take any input :class:`EffectDraws` takes; they must cover the same
+            units (same shape; same unit labels when they carry labels, matched by label) and
+            must differ (identical matrices are refused: a complier effect of exactly 1).
+        outcome_variable, uptake_variable : str, optional
+            The variable of each input when it is a Dataset or has a ``posterior`` group (the
+            same object may be passed twice with two variable names).
         weights : None or array-like, shape (n_units,)
             Fixed unit weights ``v_i``, multiplying both sums.
 
@@ -282,23 +348,27 @@ class EffectDraws:
         draw (the Wald ratio inside the subgroup, docs/method.md section 5), i.e. the
         uptake-weighted mean of unit CLATEs; nothing is divided unit by unit.
         """
-        num, c1 = _as_matrix(outcome_itt, "outcome_itt")
-        den, c2 = _as_matrix(uptake_itt, "uptake_itt")
-        cov = check_covariates(covariates)
-        _check_shape(num, cov.shape[0], "outcome_itt")
-        _check_shape(den, cov.shape[0], "uptake_itt")
+        num, c1, lab1 = _as_matrix(outcome_itt, "outcome_itt", outcome_variable)
+        den, c2, lab2 = _as_matrix(uptake_itt, "uptake_itt", uptake_variable)
+        if isinstance(covariates, pd.DataFrame):  # each matrix against the covariates first (transposed hints)
+            _check_shape(num, len(covariates), "outcome_itt")
+            _check_shape(den, len(covariates), "uptake_itt")
         if num.shape != den.shape:
             raise SummaryError(f"`outcome_itt` has shape {num.shape} but `uptake_itt` has shape {den.shape}; they must match.")
-        if weights is not None and np.ndim(weights) != 1:
+        den, labels = _same_units(num, den, lab1, lab2)
+        if _same_matrix(num, den):
             raise SummaryError(
-                f"`weights` for complier-weighted draws must be one per unit, shape ({num.shape[1]},); "
-                f"got shape {np.shape(weights)} (the uptake draws already act as per-draw weights)."
+                "`outcome_itt` and `uptake_itt` hold the same numbers; the uptake ITT must be the offer's effect on "
+                "uptake, a different matrix (was the same variable read twice? name each with outcome_variable= "
+                "and uptake_variable=)."
             )
-        w = _check_weights(weights, num.shape[0], num.shape[1])
+        if c1 is not None and c2 is not None and c1 != c2:
+            raise SummaryError(f"`outcome_itt` records {c1} chains but `uptake_itt` records {c2}; they must match.")
         self = cls.__new__(cls)
+        cov, w, notes = self._units(labels, covariates, unit_column, weights, num.shape, "outcome_itt", one_per_unit=True)
         self._source = _check_source(source, num)
-        self._unit_ids = covariates.index.copy() if isinstance(covariates, pd.DataFrame) else None
-        self._init(num, den, w, cov, chains if chains is not None else (c1 or c2), label, "outcome_itt", unit, better)
+        self._init(num, den, w, cov, _chains(chains, c1 or c2, "outcome_itt"), label, "outcome_itt", unit, better)
+        self._notes = tuple(notes)
         return self
 
     def _scan(self, name):
@@ -339,7 +409,12 @@ class EffectDraws:
         with np.errstate(invalid="ignore", divide="ignore"):
             self._mean = np.where(colsum_w > 0, colsum_wt / np.where(colsum_w > 0, colsum_w, 1.0), np.nan)
         if not (colsum_w > 0).any():
-            raise SummaryError("Every unit has zero total weight; nothing to summarize.")
+            if self._den is not None:
+                raise SummaryError(
+                    "`uptake_itt` is zero for every unit in every draw: the offer changes nobody's uptake, so there "
+                    "are no compliers and no complier-weighted effect; check that the uptake ITT matrix is the right one."
+                )
+            raise SummaryError("`weights` are zero for every unit (zero total weight); nothing to summarize.")
         self._scan_record = ScanRecord(self._centre, self._q, self._wsum, self._wtsum)
 
     def _scan_block(self, block):
@@ -572,6 +647,11 @@ class EffectDraws:
     def unit_ids(self) -> pd.Index:
         """The index of the covariate table as given (``covariates`` itself is renumbered 0..n-1)."""
         return self._unit_ids
+
+    @property
+    def notes(self) -> tuple:
+        """What construction decided for the user (an id column matched or excluded), as sentences."""
+        return getattr(self, "_notes", ())
 
     @property
     def draws_per_chain(self) -> int:

@@ -123,6 +123,8 @@ __all__ = [
 FUELS = ("gas", "oil", "electric", "heat_pump")
 TENURES = ("owner", "renter")
 REGIONS = ("central", "north", "south", "east", "west")
+#: Unit of the outcome and of every effect on it (a lower bill is better: negative effects are savings).
+BILL_UNIT = "currency units per month"
 #: Knots of the natural cubic spline in the baseline bill (currency units/month).
 BILL_KNOTS = (70.0, 110.0, 160.0, 230.0, 340.0)
 #: Standard deviation of the outcome noise (currency units/month).
@@ -503,14 +505,15 @@ def _simulate_households(n: int, rng: np.random.Generator) -> pd.DataFrame:
 def _mask(study: "RetrofitStudy", mask) -> np.ndarray:
     n = study.true_itt_outcome.size
     if isinstance(mask, str):
+        from ..core.query import query_mask
+
         try:
-            hit = study.covariates.eval(mask)
-        except Exception as exc:  # noqa: BLE001 - any parse error is the user's query
-            raise SummaryError(f"`mask` query {mask!r} could not be evaluated on the covariates: {exc}") from exc
-        mask = hit
+            mask = query_mask(study.covariates, mask)  # the whitelisted grammar: user text is data, never code
+        except SummaryError as exc:
+            raise SummaryError(f"`mask`: {exc}") from None
     m = np.asarray(mask)
     if m.dtype != bool or m.shape != (n,):
-        raise SummaryError(f"`mask` must be a boolean array of shape ({n},) or a pandas query string; got dtype {m.dtype}, shape {m.shape}.")
+        raise SummaryError(f"`mask` must be a boolean array of shape ({n},) or a query string; got dtype {m.dtype}, shape {m.shape}.")
     if not m.any():
         raise SummaryError("`mask` selects no household; a subgroup average needs at least one.")
     return m
@@ -575,11 +578,12 @@ class RetrofitStudy:
 
     def effect_draws(self, label: str = "offer effect on winter bill") -> EffectDraws:
         """The ITT outcome draws as plain effect draws, shape (n_draws, n)."""
-        return EffectDraws(self.itt_outcome_draws, self.covariates, label=label)
+        return EffectDraws(self.itt_outcome_draws, self.covariates, label=label, unit=BILL_UNIT, better="lower")
 
     def complier_draws(self, label: str = "retrofit effect among compliers (LATE)") -> EffectDraws:
         """Complier-weighted draws: subgroup effects are ``sum ITT_y / sum pi`` per draw."""
-        return EffectDraws.from_itt(self.itt_outcome_draws, self.itt_uptake_draws, self.covariates, label=label)
+        return EffectDraws.from_itt(self.itt_outcome_draws, self.itt_uptake_draws, self.covariates, label=label,
+                                    unit=BILL_UNIT, better="lower")
 
     def true_subgroup_mean(self, mask) -> float:
         """True average ``ITT_y`` over the selected households.
@@ -587,7 +591,7 @@ class RetrofitStudy:
         Parameters
         ----------
         mask : array of bool, shape (n,), or str
-            A boolean selection or a pandas query on :attr:`covariates`
+            A boolean selection or a query (:mod:`summarize_widgets.core.query`) on :attr:`covariates`
             (for example ``"tenure == 'renter' and baseline_bill > 200"``).
         """
         return float(self.true_itt_outcome[_mask(self, mask)].mean())

@@ -1,6 +1,7 @@
 """Write a folder of tables, figures, ``report.html`` and ``provenance.json`` from a :class:`SummaryBundle`."""
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 from ..core.validate import SummaryError, check_interval, check_level
@@ -18,8 +19,21 @@ FIGURE_FORMATS = ("svg", "pdf", "png")
 
 
 def check_output_folder(out_dir: Path, overwrite: bool) -> None:
+    """Refuse an output folder that cannot be written, before any computation.
+
+    Refused: a path that is a file, a path below a file, a folder whose nearest existing
+    parent is not writable, and (unless ``overwrite``) an existing non-empty folder.
+    """
+    out_dir = Path(out_dir)
     if out_dir.exists() and not out_dir.is_dir():
         raise FileExistsError(f"{out_dir} exists and is not a folder; choose another output folder.")
+    parent = out_dir if out_dir.exists() else out_dir.parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if parent.exists() and not parent.is_dir():
+        raise FileExistsError(f"{out_dir} is below {parent}, which is a file, not a folder; choose another output folder.")
+    if parent.exists() and not os.access(parent, os.W_OK | os.X_OK):
+        raise PermissionError(f"{out_dir} cannot be created: {parent} is not writable; choose another output folder.")
     if out_dir.is_dir() and any(out_dir.iterdir()) and not overwrite:
         raise FileExistsError(
             f"Output folder {out_dir} already exists and is not empty; nothing was written. "

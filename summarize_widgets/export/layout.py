@@ -12,6 +12,7 @@ import math
 import numpy as np
 import pandas as pd
 
+from ..core import numbers as N
 from ..core.validate import SummaryError, check_int
 
 __all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_type", "TABLE_COLUMNS", "format_cell"]
@@ -100,7 +101,14 @@ def rule_to_latex(rule) -> str:
     Operators count only between spaces, so a covariate named ``R&D`` stays text (escaped ``R\&D``).
     """
     parts = []
-    for kind, tok in _lex_rule(str(rule)):
+    toks = _lex_rule(str(rule))
+    for k, (kind, tok) in enumerate(toks):
+        if kind == "sp":
+            # A line may break between conditions (around "and"/"or"), never inside one.
+            near = [toks[j] for j in (k - 1, k + 1) if 0 <= j < len(toks)]
+            joins = any(t[0] == "op" and t[1] not in ("&", "and", "|", "or") for t in near)
+            parts.append("~" if joins else " ")
+            continue
         if kind == "op":
             parts.append(_OPS[tok][0])
         elif kind == "str" and len(tok) >= 2 and tok[-1] == tok[0]:
@@ -177,46 +185,126 @@ def _interval_note(df, what: str) -> str:
     return f"Intervals: {lev}{interval} posterior credible intervals of {what}, written [lower, upper]."
 
 
+def _unit_note(df) -> str | None:
+    """What the effects are measured in and which direction is good (``draws.unit`` / ``draws.better``)."""
+    unit, better = df.attrs.get("unit"), df.attrs.get("better")
+    parts = []
+    if unit:
+        parts.append(f"Effects are in {unit}")
+    if better == "lower":
+        parts.append("lower (more negative) values are better")
+    elif better == "higher" and unit:
+        parts.append("higher values are better")
+    if not parts:
+        return None
+    text = "; ".join(parts)
+    return text[0].upper() + text[1:] + "."
+
+
+def _subgroup_label_cell(r, by_id: bool):
+    if by_id:
+        return ("text", getattr(r, "label", None) or str(r.subgroup))
+    return ("text", r.subgroup)
+
+
+def _effect_cells(df, value="mean", lower="lower", upper="upper"):
+    """Per-column decimals of an effect and its interval (see :mod:`summarize_widgets.core.numbers`)."""
+    d, di = N.effect_decimals(df, value)
+    return d, di
+
+
+def _n_draws(df):
+    n = df.attrs.get("n_draws")
+    return int(n) if n else None
+
+
+#: Complier-weighted tables: what each effect is (stated in every output's notes).
+COMPLIER_NOTE = ("Complier-weighted: each subgroup's effect is the ratio of sums over its units, in every draw: "
+                 "the summed effect of the offer on the outcome divided by the summed effect of the offer on "
+                 "uptake (the subgroup's complier average effect, LATE). Share of compliers: the subgroup's share "
+                 "of the summed uptake effect; uptake: the share of its own units who take up the offer.")
+
+
 def _layout(df: pd.DataFrame, table: str) -> _Layout:
     iv = _level_text(df)
     notes: list[str] = []
     rows = []
+    nd = _n_draws(df)
     if table == "subgroups":
         by_id = pd.api.types.is_integer_dtype(df["subgroup"])
         weak = df["weak_uptake"].astype(bool).to_numpy() if "weak_uptake" in df.columns else np.zeros(len(df), bool)
-        headers = ([("Subgroup", "Subgroup", "r"), ("Rule", "Rule", "l")] if by_id
-                   else [("Group", "Group", "l"), ("Definition", "Definition", "l")])
-        headers += [("n", "$n$", "r"), ("Share", "Share", "r"), ("Mean", "Mean", "r"), (iv, escape_latex(iv), "c"),
-                    ("P(>0)", "$P(>0)$", "r")]
+        complier = "complier_share" in df.columns
+        uptake = "uptake_share" in df.columns
+        d, di = _effect_cells(df)
+        headers = ([("Subgroup", "Subgroup", "l"), ("Rule", "Rule", "X")] if by_id
+                   else [("Group", "Group", "l"), ("Definition", "Definition", "X")])
+        headers += [("n", "$n$", "r"), ("Share of units", "Share of units", "r")]
+        if complier:
+            headers.append(("Share of compliers", "Share of compliers", "r"))
+        headers += [("Mean", "Mean", "r"), (iv, escape_latex(iv), "c"), ("P(>0)", "$P(>0)$", "r")]
+        if uptake:
+            headers.append((f"Uptake ({iv})", escape_latex(f"Uptake ({iv})"), "c"))
         for r, w in zip(df.itertuples(index=False), weak):
-            first = ("int", r.subgroup) if by_id else ("text", r.subgroup)
-            rows.append([first, ("rule", r.rule), ("int", r.n_units), ("num", r.share), ("num", r.mean, bool(w)),
-                         ("interval", (r.lower, r.upper)), ("num", r.prob_positive)])
+            row = [_subgroup_label_cell(r, by_id), ("rule", r.rule) if by_id else ("text", r.rule), ("int", r.n_units),
+                   ("pct", r.share)]
+            if complier:
+                row.append(("pct", r.complier_share))
+            row += [("est", r.mean, d, bool(w)), ("ci", (r.lower, r.upper), di), ("prob", r.prob_positive, nd)]
+            if uptake:
+                row.append(("uptake", (r.uptake_share, getattr(r, "uptake_lower", np.nan),
+                                       getattr(r, "uptake_upper", np.nan)), bool(w)))
+            rows.append(row)
         notes.append(_interval_note(df, "each subgroup's average effect") + " P(>0): posterior probability that it is positive.")
+        if complier or uptake:
+            notes.append(COMPLIER_NOTE)
         if weak.any():
             floor = df.attrs.get("uptake_floor")
             below = f" below {floor:g}" if floor is not None else " near zero"
-            notes.append(f"{WEAK_MARK} Weak uptake: the interval of this subgroup's complier share reaches{below}, "
+            notes.append(f"{WEAK_MARK} Weak uptake: the interval of this subgroup's uptake share reaches{below}, "
                          "so its ratio (LATE) estimate is unstable.")
     elif table == "contrasts":
         by_id = pd.api.types.is_integer_dtype(df["subgroup_a"])
-        a, b = ("rule_a", "rule_b") if by_id else ("subgroup_a", "subgroup_b")
+        has_labels = "label_a" in df.columns
+        if by_id and has_labels:
+            a, b, cell = "label_a", "label_b", "text"
+        elif by_id:
+            a, b, cell = "rule_a", "rule_b", "rule"
+        else:
+            a, b, cell = "subgroup_a", "subgroup_b", "text"  # group labels are names, not rules
+        d, di = _effect_cells(df, "difference")
         headers = [("Subgroup A", "Subgroup A", "l"), ("Subgroup B", "Subgroup B", "l"),
                    ("Difference A \u2212 B", "Difference $A - B$", "r"), (iv, escape_latex(iv), "c"),
                    ("P(A > B)", "$P(A > B)$", "r")]
-        cell = "rule" if by_id else "text"  # group labels are names, not rules: no "&" -> "and"
         for r in df.itertuples(index=False):
-            rows.append([(cell, getattr(r, a)), (cell, getattr(r, b)), ("num", r.difference),
-                         ("interval", (r.lower, r.upper)), ("num", r.prob_a_greater)])
+            rows.append([(cell, getattr(r, a)), (cell, getattr(r, b)), ("est", r.difference, d),
+                         ("ci", (r.lower, r.upper), di), ("prob", r.prob_a_greater, nd)])
         notes.append(_interval_note(df, "each difference, computed draw by draw")
                      + " P(A > B): posterior probability that A's effect exceeds B's.")
+        if by_id and has_labels:
+            notes.append("Subgroups are labelled as in the subgroup table.")
     elif table == "linear":
-        headers = [("Term", "Term", "l"), ("Coefficient", "Coefficient", "r"), (iv, escape_latex(iv), "c"),
-                   ("P(>0)", "$P(>0)$", "r")]
-        for r in df.itertuples(index=False):
-            rows.append([("text", r.term), ("num", r.mean), ("interval", (r.lower, r.upper)), ("num", r.prob_positive)])
+        std = "std_mean" in df.columns
+        headers = [("Term", "Term", "X"), ("Per unit", "Per unit", "r"), (iv, escape_latex(iv), "c")]
+        if std:
+            per = "Per SD" if df.attrs.get("standardized", "sd") == "sd" else "Per IQR"
+            headers += [(per, per, "r"), (f"{per} ({iv})", escape_latex(f"{per} ({iv})"), "c")]
+        headers.append(("P(>0)", "$P(>0)$", "r"))
+        for k, r in enumerate(df.itertuples(index=False)):
+            # each term is its own quantity (per unit of its own covariate): decimals per row
+            d, di = _effect_cells(df.iloc[[k]])
+            row = [("text", r.term), ("est", r.mean, d), ("ci", (r.lower, r.upper), di)]
+            if std:
+                ds, dsi = N.effect_decimals(pd.DataFrame({"mean": [r.std_mean], "sd": [r.std_sd],
+                                                          "mcse_mean": [getattr(r, "std_mcse_mean", np.nan)]}))
+                row += [("est", r.std_mean, ds), ("ci", (r.std_lower, r.std_upper), min(ds, dsi))]
+            row.append(("prob", r.prob_positive, nd))
+            rows.append(row)
         notes.append(_interval_note(df, "the coefficients of the best linear approximation")
-                     + " P(>0): posterior probability that a coefficient is positive.")
+                     + " P(>0): posterior probability that a coefficient (per unit) is positive.")
+        if std:
+            notes.append("Per SD: the coefficient times the covariate's standard deviation (weighted as in the "
+                         "fit); category terms are per switch from the reference category; the intercept in "
+                         "that column is the effect at the covariates' means and reference categories.")
         reference = df.attrs.get("reference")
         if reference:
             notes.append("Reference categories: " + "; ".join(f"{k} = {v}" for k, v in dict(reference).items()) + ".")
@@ -224,24 +312,30 @@ def _layout(df: pd.DataFrame, table: str) -> _Layout:
         headers = [("Covariate", "Covariate", "l"), ("Value", "Value", "r"), ("Mean", "Mean", "r"),
                    (f"{iv} (pointwise)", escape_latex(f"{iv} (pointwise)"), "c"),
                    (f"{iv} (simultaneous)", escape_latex(f"{iv} (simultaneous)"), "c")]
+        d, di = _effect_cells(df)
         previous = None
         for r in df.itertuples(index=False):
             # Name each covariate once, on the first of its rows, as a paper table would.
             name = ("text", "" if r.covariate == previous else r.covariate)
             previous = r.covariate
-            x = ("num", r.x) if isinstance(r.x, (int, float, np.number)) and not isinstance(r.x, bool) else ("text", r.x)
-            rows.append([name, x, ("num", r.mean), ("interval", (r.lower, r.upper)),
-                         ("interval", (r.lower_joint, r.upper_joint))])
+            x = ("value", r.x) if isinstance(r.x, (int, float, np.number)) and not isinstance(r.x, bool) else ("text", r.x)
+            rows.append([name, x, ("est", r.mean, d), ("ci", (r.lower, r.upper), di),
+                         ("ci", (r.lower_joint, r.upper_joint), di)])
         notes.append(_interval_note(df, "the additive summary's effect at each value")
                      + " Simultaneous intervals cover a covariate's whole curve jointly.")
     else:  # fit_r2
         headers = [("Depth", "Depth", "r"), ("Subgroups", "Subgroups", "r"), ("Summary R\u00b2", "Summary $R^2$", "r"),
                    (iv, escape_latex(iv), "c")]
+        d, di = _effect_cells(df)
         for r in df.itertuples(index=False):
-            rows.append([("int", r.depth), ("int", r.n_subgroups), ("num", r.mean), ("interval", (r.lower, r.upper))])
+            rows.append([("int", r.depth), ("int", r.n_subgroups), ("est", r.mean, d), ("ci", (r.lower, r.upper), di)])
         notes.append(_interval_note(df, "the summary R\u00b2, the share of each draw's heterogeneity the tree captures"))
-    if "mcse" in df.columns and len(df):
-        notes.append(f"Largest Monte Carlo standard error of a mean: {float(np.nanmax(df['mcse'])):.2g}.")
+    if table in ("subgroups", "contrasts", "linear", "curves"):
+        unit = _unit_note(df)
+        if unit:
+            notes.append(unit)
+    if table != "fit_r2" and any(c in df.columns for c in ("mcse_mean",)):
+        notes.append("Digits: each column shows no digit finer than its largest Monte Carlo standard error.")
     return _Layout(headers, rows, notes)
 
 
@@ -254,26 +348,59 @@ def _num(x, digits: int, minus: str) -> str:
     return s.replace("-", minus, 1) if s.startswith("-") else s
 
 
-def format_cell(cell, digits: int, fmt: str) -> str:
-    """One cell as LaTeX ("tex") or as unescaped screen text ("text")."""
+def format_cell(cell, digits, fmt: str) -> str:
+    """One cell as LaTeX ("tex") or as unescaped screen text ("text").
+
+    Cell kinds: ``text``, ``rule``, ``int``; ``est`` (value, decimals[, weak]) and ``ci``
+    ((lower, upper), decimals) carry their column's decimals (:mod:`summarize_widgets.core.numbers`);
+    ``prob`` (p[, n_draws]); ``pct`` (a share); ``uptake`` ((share, lower, upper)[, weak]);
+    ``value`` (a covariate value, shortest form). ``num`` and ``interval`` (other modules'
+    tables) use ``digits`` decimals (2 when ``digits`` is None). An int ``digits`` overrides
+    every column's decimals.
+    """
     kind, value = cell[0], cell[1]
-    minus = "$-$" if fmt == "tex" else "\u2212"
+    minus = "$-$" if fmt == "tex" else N.MINUS
+    override = None if digits is None else int(digits)
+    dagger = r"$^{\dagger}$" if fmt == "tex" else WEAK_MARK
+    pct = r"\%" if fmt == "tex" else "%"
     if kind == "int":
         return "NA" if pd.isna(value) else f"{int(value):,}"
     if kind == "num":
-        s = _num(value, digits, minus)
+        s = _num(value, 2 if override is None else override, minus)
         if len(cell) > 2 and cell[2]:
-            s += r"$^{\dagger}$" if fmt == "tex" else WEAK_MARK
+            s += dagger
         return s
     if kind == "interval":
-        return f"[{_num(value[0], digits, minus)}, {_num(value[1], digits, minus)}]"
+        dd = 2 if override is None else override
+        return f"[{_num(value[0], dd, minus)}, {_num(value[1], dd, minus)}]"
+    if kind == "est":
+        s = N.fixed(value, cell[2] if override is None else override, minus=minus)
+        if len(cell) > 3 and cell[3]:
+            s += dagger
+        return s
+    if kind == "ci":
+        return N.interval(value[0], value[1], cell[2] if override is None else override, minus=minus)
+    if kind == "prob":
+        s = N.probability(value, n_draws=cell[2] if len(cell) > 2 else None)
+        return s.replace("<", r"$<$").replace(">", r"$>$") if fmt == "tex" else s
+    if kind == "pct":
+        return N.percent(value, 1, minus=minus).replace("%", pct).replace("<", "$<$" if fmt == "tex" else "<")
+    if kind == "uptake":
+        share, lo, hi = value
+        s = (f"{N.percent(share, 0, minus=minus)} [{N.percent(lo, 0, minus=minus)}, {N.percent(hi, 0, minus=minus)}]")
+        if len(cell) > 2 and cell[2]:
+            s += dagger
+        return s.replace("%", pct).replace("<", "$<$" if fmt == "tex" else "<") if fmt == "tex" else s
+    if kind == "value":
+        s = N.shortest(value)
+        return s.replace("-", minus, 1) if s.startswith("-") else s
     if kind == "rule":
         return rule_to_latex(value) if fmt == "tex" else rule_to_text(value)
     return escape_latex(value) if fmt == "tex" else str(value)
 
 
-def table_layout(df, table=None, digits: int = 2):
-    """Validate a summary table and return (its layout, checked digits)."""
+def table_layout(df, table=None, digits: int | None = None):
+    """Validate a summary table and return (its layout, checked digits: None = chosen per column)."""
     table = table_type(df, table)
-    digits = check_int(digits, "digits", low=0, high=15)
+    digits = None if digits is None else check_int(digits, "digits", low=0, high=15)
     return _layout(df, table), digits

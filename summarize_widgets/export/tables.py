@@ -61,8 +61,11 @@ FORMATS = ("tex", "md", "csv", "html")
 _LABEL_RE = re.compile(r"^[A-Za-z0-9:._\-]+$")
 
 
-def to_latex(df, *, caption=None, label=None, digits: int = 2, provenance=None, table=None) -> str:
-    """A booktabs LaTeX table (``\\toprule``, ``\\midrule``, ``\\bottomrule``; needs ``\\usepackage{booktabs}``).
+def to_latex(df, *, caption=None, label=None, digits: int | None = None, provenance=None, table=None,
+             width: str = r"\linewidth", landscape: bool = False, size: str = "footnotesize",
+             rules: str = "auto") -> str:
+    r"""A booktabs LaTeX table that fits the text width (needs ``\usepackage{booktabs,tabularx}``;
+    ``landscape=True`` also needs ``\usepackage{rotating}``).
 
     Parameters
     ----------
@@ -73,51 +76,156 @@ def to_latex(df, *, caption=None, label=None, digits: int = 2, provenance=None, 
     caption : str, optional
         Escaped for LaTeX.
     label : str, optional
-        ``\\label`` key: letters, digits and ``: . _ -`` only.
-    digits : int, default 2
-        Decimals for every non-integer number.
+        ``\label`` key: letters, digits and ``: . _ -`` only.
+    digits : int, optional
+        Decimals for every non-integer number. Default: chosen once per column from the size of
+        its numbers and their Monte Carlo error (:mod:`summarize_widgets.core.numbers`).
     provenance : dict, optional
-        From :func:`provenance`: written as ``%`` comment lines above the table and a short note below it.
+        From :func:`provenance`: written as ``%`` comment lines above the table (the printed
+        notes stay free of it; the full record goes in ``provenance.json``).
     table : {"subgroups", "contrasts", "linear", "curves", "fit_r2"}, optional
         Detected from the columns when omitted.
+    width : str, default ``"\linewidth"``
+        Width of the table, any LaTeX length (``"0.8\linewidth"`` for a narrower one). The
+        rule (or term) column takes the room left and wraps, breaking between conditions.
+    landscape : bool, default False
+        Set the table on its own rotated page (``sidewaystable``), where the width is the
+        page's height: for very long rules or many columns.
+    size : str, default "footnotesize"
+        Font size command for the table body (``"small"``, ``"scriptsize"``, ...).
+    rules : {"auto", "column", "rows"}, default "auto"
+        Where subgroup rules go: a wrapping column ("column"), or a full-width line under each
+        subgroup's numbers ("rows": for tables with many number columns, such as complier-weighted
+        ones). "auto" picks "rows" when more than five number columns would squeeze the rules.
 
     Returns
     -------
     str
-        A ``table`` float holding the tabular and its notes.
+        A ``table`` (or ``sidewaystable``) float holding the ``tabularx`` and its notes.
     """
     lay, digits = table_layout(df, table, digits)
     if label is not None and not _LABEL_RE.match(str(label)):
         raise SummaryError(f"`label` must use only letters, digits and ': . _ -' (a LaTeX \\label key); got {label!r}.")
+    if not isinstance(width, str) or not re.fullmatch(r"[0-9.]*\s*\\?[A-Za-z]+|[0-9.]+\s*(pt|cm|mm|in|em)", width.strip()):
+        raise SummaryError(f"`width` must be a LaTeX length such as '\\linewidth', '0.8\\linewidth' or '12cm'; got {width!r}.")
+    if size not in _SIZES:
+        raise SummaryError(f"`size` must be one of {list(_SIZES)}; got {size!r}.")
+    env = "sidewaystable" if landscape else "table"
     lines = []
     if provenance is not None:
         lines += ["% " + line for line in provenance_lines(provenance, full=True)]
-    lines += [r"\begin{table}[htbp]", r"\centering"]
+    lines.append("% Needs \\usepackage{booktabs,tabularx}" + ("" if not landscape else " and \\usepackage{rotating}") + ".")
+    lines += [rf"\begin{{{env}}}[htbp]", r"\centering", "\\" + size, r"\setlength{\tabcolsep}{4pt}"]
     if caption is not None:
         lines.append(r"\caption{" + escape_latex(caption) + "}")
     if label is not None:
         lines.append(r"\label{" + str(label) + "}")
-    lines.append(r"\begin{tabular}{" + "".join(h[2] for h in lay.headers) + "}")
-    lines += [r"\toprule", " & ".join(h[1] for h in lay.headers) + r" \\", r"\midrule"]
-    for row in lay.rows:
-        cells = [format_cell(c, digits, "tex") for c in row]
-        if cells[0].startswith("["):
-            cells[0] = "{}" + cells[0]  # a row opening with "[" would be read as the optional argument of "\\"
-        lines.append(" & ".join(cells) + r" \\")
-    lines += [r"\bottomrule", r"\end{tabular}"]
+    cols = [h[2] for h in lay.headers]
+    if "X" not in cols:  # the widest text column wraps; numbers never do
+        text_cols = [k for k, c in enumerate(cols) if c == "l"
+                     and max((len(str(row[k][1])) for row in lay.rows), default=0) > 16]
+        if text_cols:
+            cols[text_cols[-1] if len(text_cols) == 1 else text_cols[0]] = "X"
+    if rules not in ("auto", "column", "rows"):
+        raise SummaryError(f"`rules` must be 'auto', 'column' or 'rows'; got {rules!r}.")
+    wrap = cols.index("X") if "X" in cols else None
+    # Many number columns leave a rule column too narrow to read: the rule then gets its own
+    # full-width line under its subgroup's numbers.
+    as_rows = wrap is not None and lay.rows and lay.rows[0][wrap][0] in ("rule", "text") and (
+        rules == "rows" or (rules == "auto" and len(cols) - 2 > _MAX_NUMBER_COLUMNS * _width_factor(width, landscape)))
+    if as_rows:
+        keep = [k for k in range(len(cols)) if k != wrap]
+        spec = "@{\\extracolsep{\\fill}}" + "".join(cols[k] if cols[k] != "X" else "l" for k in keep)
+        lines.append(r"\begin{tabular*}{" + width.strip() + "}{" + spec + "@{}}")
+        heads = [_latex_header(lay.headers[k][1], cols[k]) for k in keep]
+        lines += [r"\toprule", " & ".join(heads) + r" \\",
+                  r"\multicolumn{" + str(len(keep)) + r"}{@{}l@{}}{\hspace{1.5em}" + lay.headers[wrap][1] + r"} \\",
+                  r"\midrule"]
+        for row in lay.rows:
+            cells = [_latex_cell(row[k], digits) for k in keep]
+            if cells[0].startswith("["):
+                cells[0] = "{}" + cells[0]
+            lines.append(" & ".join(cells) + r" \\*")
+            lines.append(r"\multicolumn{" + str(len(keep)) + r"}{@{}l@{}}{\hspace{1.5em}\parbox[t]{\dimexpr "
+                         + width.strip() + r"-1.5em\relax}{\raggedright " + _latex_cell(row[wrap], digits)
+                         + r"\strut}} \\[2pt]")
+        lines += [r"\bottomrule", r"\end{tabular*}"]
+    else:
+        spec = "".join(r">{\raggedright\arraybackslash}X" if c == "X" else c for c in cols)
+        if "X" in cols:
+            lines.append(r"\begin{tabularx}{" + width.strip() + "}{@{}" + spec + "@{}}")
+        else:
+            lines.append(r"\begin{tabular}{@{}" + spec + "@{}}")
+        lines += [r"\toprule", " & ".join(_latex_header(h[1], c) for h, c in zip(lay.headers, cols)) + r" \\",
+                  r"\midrule"]
+        for row in lay.rows:
+            cells = [_latex_cell(c, digits) for c in row]
+            if cells[0].startswith("["):
+                cells[0] = "{}" + cells[0]  # a row opening with "[" would be read as the optional argument of "\\"
+            lines.append(" & ".join(cells) + r" \\")
+        lines += [r"\bottomrule", r"\end{tabularx}" if "X" in cols else r"\end{tabular}"]
     notes = list(lay.notes)
-    if provenance is not None:
-        notes.append(provenance_lines(provenance, full=False)[0])
     if notes:
         lines.append(r"\par\smallskip")
-        lines.append(r"{\footnotesize " + r" \\ ".join(_latex_note(n) for n in notes) + r"\par}")
-    lines.append(r"\end{table}")
+        lines.append(r"\parbox{" + width.strip() + r"}{\raggedright\scriptsize " + r"\par ".join(_latex_note(n) for n in notes)
+                     + r"\par}")
+    lines.append(rf"\end{{{env}}}")
     return "\n".join(lines) + "\n"
+
+
+_MAX_NUMBER_COLUMNS = 5
+
+
+def _width_factor(width: str, landscape: bool) -> float:
+    """How wide the table is relative to a portrait text width (``0.7\\linewidth`` -> 0.7; landscape ~1.4)."""
+    m = re.fullmatch(r"\s*([0-9.]*)\s*\\(?:linewidth|textwidth|columnwidth)\s*", width)
+    factor = float(m.group(1)) if m and m.group(1) else 1.0
+    return factor * (1.4 if landscape else 1.0)
+_SIZES = ("normalsize", "small", "footnotesize", "scriptsize", "tiny")
+
+
+def _latex_header(text: str, align: str) -> str:
+    """A header cell; a number column's header of several words goes on two lines (a nested tabular,
+    so no package beyond booktabs is needed). Math (``$...$``) is never split."""
+    words = re.findall(r"(?:\$[^$]*\$|\S)+", text)
+    if align == "X" or len(words) < 2:
+        return text
+    half = max(1, (len(words) + 1) // 2)
+    a, b = " ".join(words[:half]), " ".join(words[half:])
+    col = "c" if align == "c" else "r" if align == "r" else "l"
+    return r"\begin{tabular}[b]{@{}" + col + "@{}}" + a + r"\\" + b + r"\end{tabular}"
+
+
+_BREAK = "\ue000"  # a private-use character marking where a long word may break
+_LONG_RUN = re.compile(r"[^\s]{13,}")
+
+
+def _breakable(text: str) -> str:
+    """Mark break points inside words of 13+ characters: after ``_ / . ( ) - ,`` and at least
+    every 10 characters, so a long covariate name cannot run out of its column."""
+    def mark(m):
+        out, since = [], 0
+        for ch in m.group(0):
+            out.append(ch)
+            since += 1
+            if ch in "_/.()-," or since >= 10:
+                out.append(_BREAK)
+                since = 0
+        return "".join(out).rstrip(_BREAK)
+    return _LONG_RUN.sub(mark, str(text).replace(_BREAK, ""))
+
+
+def _latex_cell(cell, digits) -> str:
+    if cell[0] in ("rule", "text"):
+        cell = (cell[0], _breakable(cell[1]), *cell[2:])
+    # a break there only where nothing else fits
+    return format_cell(cell, digits, "tex").replace(_BREAK, r"\penalty5000{}")
 
 
 def _latex_note(note: str) -> str:
     # Our notes use two non-ASCII signs; typeset them in math so pdflatex needs no extra packages.
-    return escape_latex(note).replace(WEAK_MARK, r"$^{\dagger}$").replace("R\u00b2", "$R^2$")
+    return (escape_latex(note).replace(WEAK_MARK, r"$^{\dagger}$").replace("R\u00b2", "$R^2$")
+            .replace("\u2212", "$-$"))
 
 
 _MD_SPECIAL = re.compile(r"([\\`*_\[\]<>|#~&$])")
@@ -136,13 +244,13 @@ def _md_code(s: str) -> str:
     return f"{fence}{pad}{s}{pad}{fence}" if s else ""
 
 
-def to_markdown(df, *, caption=None, digits: int = 2, provenance=None, table=None) -> str:
+def to_markdown(df, *, caption=None, digits: int | None = None, provenance=None, table=None) -> str:
     """A pipe table (GitHub / pandoc Markdown) with the caption above and notes below.
 
     Parameters are those of :func:`to_latex`; rules are written as code spans, other text backslash-escaped.
     """
     lay, digits = table_layout(df, table, digits)
-    align = {"l": ":---", "r": "---:", "c": ":---:"}
+    align = {"l": ":---", "X": ":---", "r": "---:", "c": ":---:"}
     out = []
     if caption is not None:
         out += [f"**{_md_text(caption)}**", ""]
@@ -153,7 +261,9 @@ def to_markdown(df, *, caption=None, digits: int = 2, provenance=None, table=Non
         cells = [_md_code(rule_to_text(c[1])) if c[0] == "rule"
                  else _md_text(c[1]) if c[0] == "text" else format_cell(c, digits, "text") for c in row]
         out.append("| " + " | ".join(cells) + " |")
-    notes = list(lay.notes) + ([provenance_lines(provenance, full=False)[0]] if provenance is not None else [])
+    notes = list(lay.notes)
+    if provenance is not None:  # in a comment, not in the printed notes (the record is in provenance.json)
+        out = [f"<!-- {html.escape(line).replace('--', '- -')} -->" for line in provenance_lines(provenance, full=True)] + out
     if notes:
         out.append("")
         out += [f"{_md_text(n)}  " for n in notes]
@@ -172,14 +282,14 @@ def to_csv(df, **to_csv_kwargs) -> str:
     return df.to_csv(index=False, lineterminator="\n", **to_csv_kwargs)
 
 
-def to_html(df, *, caption=None, digits: int = 2, provenance=None, table=None, css_class: str = "sw-table") -> str:
+def to_html(df, *, caption=None, digits: int | None = None, provenance=None, table=None, css_class: str = "sw-table") -> str:
     """An HTML ``<table class="sw-table">`` with ``<caption>``, header, body and a notes footer; all text escaped.
 
     Parameters are those of :func:`to_latex`; ``css_class`` names the table's class.
     """
     lay, digits = table_layout(df, table, digits)
     esc = html.escape
-    align = {"l": "sw-l", "r": "sw-r", "c": "sw-c"}
+    align = {"l": "sw-l", "X": "sw-l", "r": "sw-r", "c": "sw-c"}
     out = [f'<table class="{esc(css_class)}">']
     if caption is not None:
         out.append(f"<caption>{esc(str(caption))}</caption>")
@@ -193,7 +303,10 @@ def to_html(df, *, caption=None, digits: int = 2, provenance=None, table=None, c
             tds.append(f'<td class="{cls}">{esc(format_cell(c, digits, "text"))}</td>')
         out.append("<tr>" + "".join(tds) + "</tr>")
     out.append("</tbody>")
-    notes = list(lay.notes) + ([provenance_lines(provenance, full=False)[0]] if provenance is not None else [])
+    notes = list(lay.notes)
+    if provenance is not None:
+        out.insert(0, "\n".join(f"<!-- {html.escape(line).replace('--', '- -')} -->"
+                                 for line in provenance_lines(provenance, full=True)))
     if notes:
         out.append(f'<tfoot><tr><td colspan="{len(lay.headers)}">'
                    + "".join(f'<p class="sw-note">{esc(n)}</p>' for n in notes) + "</td></tr></tfoot>")
@@ -297,7 +410,7 @@ def summary_tables(*, tree=None, groups=None, linear=None, additive=None, level=
 
 def export_tables(out_dir, *, tree=None, groups=None, linear=None, additive=None, level: float = 0.95,
                   interval: str = "equal-tailed", contrasts: bool = True, points=None, formats=FORMATS,
-                  digits: int = 2, provenance=None, overwrite: bool = False) -> dict[str, Path]:
+                  digits: int | None = None, provenance=None, overwrite: bool = False) -> dict[str, Path]:
     """Write every summary's table in each format, plus ``provenance.json``.
 
     Parameters

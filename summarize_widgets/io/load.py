@@ -11,7 +11,10 @@ Formats (chosen from the extension, or by ``format=``):
 - ``npy`` (``.npy``): a 2-D (draw, unit) or 3-D (chain, draw, unit) array.
 - ``npz`` (``.npz``): one such array, picked by ``variable``.
 - ``csv`` (``.csv``) and ``parquet`` (``.parquet``, ``.pq``): a wide or a long table.
-- ``netcdf`` (``.nc``, ``.nc4``, ``.cdf``): a variable with dims (chain, draw, unit).
+- ``netcdf`` (``.nc``, ``.nc4``, ``.cdf``): a variable with dims (chain, draw, unit), in the root
+  group or any group (a sampler's ``posterior`` group is found without being named).
+- ``zarr`` (a ``.zarr`` directory, or any directory holding a zarr store): the same, read with
+  ``xarray.open_zarr`` (lazily: only the chosen variable is read).
 - ``sampler-csv`` (detected in ``.csv`` files): ``#`` comment lines, one column per
   unit named ``tau.1``, ``tau[1]`` or ``tau_1``.
 
@@ -41,6 +44,7 @@ DRAW_FORMATS = {
     "csv": (".csv",),
     "parquet": (".parquet", ".pq"),
     "netcdf": (".nc", ".nc4", ".cdf"),
+    "zarr": (".zarr",),
     "sampler-csv": (),
 }
 _LAYOUTS = ("wide", "long")
@@ -72,6 +76,7 @@ def load_draws(
     unit_column: str | None = "unit",
     group: str | None = None,
     mmap: bool = False,
+    source: str | None = None,
 ) -> EffectDraws:
     """Load posterior draws of unit-level effects from a file.
 
@@ -81,10 +86,10 @@ def load_draws(
         The draws file. A list (or tuple) of sampler CSV files is read as one file
         per chain, stacked chain-major in the order given.
     covariates : pandas.DataFrame, or str or path-like to a ``.csv`` / ``.parquet`` file
-        One row per unit. If it has a column named ``unit_column``, that column holds
-        unit ids: draws whose file names its units (wide and long tables, a netCDF
-        unit coordinate) are matched to it by id, and the column is then dropped
-        (an identifier is not a covariate).
+        One row per unit, in any order when the file names its units. If it has a
+        column named ``unit_column``, that column holds unit ids: the file's units
+        (wide and long tables, a netCDF/zarr unit coordinate, sampler indices) are
+        matched to it by id, and the column is dropped (an identifier is not a covariate).
     format : {"npy", "npz", "csv", "parquet", "netcdf", "sampler-csv"}, optional
         Overrides the format implied by the extension. A ``.csv`` file is read as
         sampler output when it begins with ``#`` comment lines, or when ``variable``
@@ -112,9 +117,13 @@ def load_draws(
         Name of the unit-id column of the covariates (see ``covariates``); None turns
         matching off.
     group : str, optional
-        netCDF group holding the variable (default: the root group).
+        netCDF or zarr group holding the variable. Default: the root group when it holds
+        the variable (or any data variable), else the group that holds ``variable``, else
+        a ``posterior`` group; an error lists every group and its variables.
     mmap : bool, default False
         Memory-map a ``.npy`` file read-only instead of reading it into memory.
+    source : str, optional
+        Names the sampler run (see :class:`EffectDraws`); default: the file's path.
 
     Returns
     -------
@@ -123,11 +132,14 @@ def load_draws(
 
     Notes
     -----
-    Unit order (the columns of the draw matrix, which must follow the covariate
-    rows): with a unit-id column in the covariates, its order; otherwise the file's
-    order (array columns, table columns, the netCDF unit dim, the sampler index
-    1, 2, ..., 10 compared as integers), except for long tables, whose units are
-    sorted by id. Draw order: chain-major, draws in file order, or sorted by
+    Unit order: the draw matrix keeps the file's unit order (it is never reordered or
+    copied); the covariate rows are matched to it by the file's unit ids (table columns, a
+    long table's unit column, a netCDF/zarr unit coordinate, the sampler index 1, 2, ...,
+    10 compared as integers) through the ``unit_column`` column, else through the
+    covariates' index when it holds the same ids (in any order). Without ids on both sides
+    the rows pair by position with the file's order; long tables' units are then sorted
+    naturally (``h2`` before ``h10``; numbers as numbers).
+    Draw order: chain-major, draws in file order, or sorted by
     ``(chain, draw)`` when those columns exist.
 
     Float values are read exactly: ``.npy``, ``.npz``, Parquet and netCDF keep
@@ -163,17 +175,42 @@ def load_draws(
         read = _read_npz(paths[0], variable)
     elif fmt in ("csv", "parquet"):
         read = _read_table(paths[0], fmt, variable, layout)
-    elif fmt == "netcdf":
-        read = _read_netcdf(paths[0], variable, group)
+    elif fmt in ("netcdf", "zarr"):
+        read = _read_grouped(paths[0], fmt, variable, group)
     else:
         read = _read_sampler_csv(paths, variable)
+    if group is not None and fmt not in ("netcdf", "zarr"):
+        raise SummaryError(f"`group` picks a netCDF or zarr group; the draws are read as {fmt!r}.")
 
-    values, cov = _match_units(read, cov, unit_column)
+    id_column = unit_column if unit_column is not None and unit_column in cov.columns else None
+    values = _labelled(read, cov, id_column)
     if read.chains is not None and chains is not None and chains != read.chains:
         raise SummaryError(
             f"`chains` = {chains!r} but the file records {read.chains} chains; leave `chains` unset to use the file's."
         )
-    return EffectDraws(values, cov, weights=weights, chains=read.chains if chains is None else chains, label=label)
+    # EffectDraws matches the file's unit labels to the id column or the covariates' index (the covariate
+    # rows follow the file's unit order: the draw matrix is never reordered or copied).
+    return EffectDraws(values, cov, weights=weights, chains=read.chains if chains is None else chains, label=label,
+                       source=source if source is not None else str(paths[0]), unit_column=id_column)
+
+
+def _labelled(read: _Read, cov: pd.DataFrame, id_column):
+    """The values, carrying the file's unit labels when the covariates can be matched to them
+    (an id column, or an index holding the same ids); otherwise the plain matrix (file order)."""
+    from ..core.inputs import unit_key
+
+    keep = read.unit_ids is not None and (id_column is not None or (
+        len(read.unit_ids) == len(cov) and {unit_key(v) for v in read.unit_ids} == {unit_key(v) for v in cov.index}))
+    if id_column is not None and read.unit_ids is None:
+        # the file names no units: the id column is only dropped (rows in file order)
+        return read.values
+    if read.unit_dim is not None:  # a DataArray
+        if keep or read.unit_dim not in read.values.coords:
+            return read.values
+        return read.values.drop_vars(read.unit_dim)
+    if keep:
+        return pd.DataFrame(read.values, columns=pd.Index(read.unit_ids), copy=False)
+    return read.values
 
 
 # -- paths and formats -------------------------------------------------------------------
@@ -186,11 +223,19 @@ def _as_paths(path) -> list[Path]:
         if not isinstance(p, (str, os.PathLike)):
             raise SummaryError(f"`path` must be a file path (str or path-like) or a list of them; got {type(p).__name__}.")
         p = Path(p)
+        if p.is_dir() and _is_zarr(p):
+            out.append(p)
+            continue
         if not p.is_file():
-            what = "is a directory, not a file" if p.is_dir() else "does not exist"
+            what = ("is a directory, not a file (nor a zarr store)" if p.is_dir() else "does not exist")
             raise SummaryError(f"`path`: {str(p)!r} {what}.")
         out.append(p)
     return out
+
+
+def _is_zarr(p: Path) -> bool:
+    """A directory holding a zarr store (version 3 ``zarr.json`` or version 2 ``.zgroup`` / ``.zarray``)."""
+    return any((p / name).exists() for name in ("zarr.json", ".zgroup", ".zarray", ".zmetadata"))
 
 
 def _supported() -> str:
@@ -203,6 +248,8 @@ def _resolve_format(paths: list[Path], format, variable) -> str:
         if format not in DRAW_FORMATS:
             raise SummaryError(f"`format` must be one of {format_names(DRAW_FORMATS)}; got {format!r}.")
         return format
+    if all(p.is_dir() for p in paths):
+        return "zarr"
     suffixes = {p.suffix.lower() for p in paths}
     if len(suffixes) > 1:
         raise SummaryError(f"`path` lists files with different extensions {sorted(suffixes)}; pass one format.")
@@ -263,45 +310,6 @@ def _read_covariates(covariates) -> pd.DataFrame:
         f"`covariates`: cannot tell the format of {str(p)!r} from its extension {suffix or '(none)'!r}; "
         "supported: .csv, .parquet, .pq, or pass a DataFrame."
     )
-
-
-def _match_units(read: _Read, cov: pd.DataFrame, unit_column):
-    """Reorder the draw columns to the covariates' unit ids (if both exist); drop the id column."""
-    if unit_column is None or unit_column not in cov.columns:
-        return read.values, cov
-    ids = cov[unit_column]
-    if ids.isna().any():
-        raise SummaryError(
-            f"`covariates` column {unit_column!r} (unit ids) has {int(ids.isna().sum())} missing values; "
-            "every unit needs an id (or pass unit_column=None)."
-        )
-    keys = [str(v) for v in ids]
-    dup = sorted({k for k, c in pd.Series(keys).value_counts().items() if c > 1})
-    if dup:
-        raise SummaryError(f"`covariates` column {unit_column!r} (unit ids) repeats ids: {format_names(dup, 5)}.")
-    cov = cov.drop(columns=[unit_column])
-    if read.unit_ids is None:
-        return read.values, cov
-    file_keys = [str(v) for v in read.unit_ids]
-    pos = {k: i for i, k in enumerate(file_keys)}
-    missing = [k for k in keys if k not in pos]
-    extra = sorted(set(file_keys) - set(keys))
-    if missing or extra:
-        parts = []
-        if missing:
-            parts.append(f"{len(missing)} covariate unit ids have no draws (e.g. {format_names(missing, 5)})")
-        if extra:
-            parts.append(f"{len(extra)} units in the draws are not in the covariates (e.g. {format_names(extra, 5)})")
-        raise SummaryError(
-            f"`covariates` column {unit_column!r} does not match the draws' units: {'; '.join(parts)}. "
-            "Ids are compared as text; pass unit_column=None to match by position instead."
-        )
-    order = np.array([pos[k] for k in keys])
-    if np.array_equal(order, np.arange(len(order))):
-        return read.values, cov  # already aligned: keep the matrix as it is (no copy)
-    if read.unit_dim is not None:
-        return read.values.isel({read.unit_dim: order}), cov
-    return read.values[:, order], cov
 
 
 # -- NumPy -----------------------------------------------------------------------------------
@@ -455,6 +463,23 @@ def _cell_text(draw_keys, row_key, unit) -> str:
     return ", ".join(parts + [f"unit {_plain(unit)!r}"])
 
 
+def _natural_key(v):
+    """Sort key: numbers by value; text by its runs of digits as numbers (h2 < h10), the rest as text."""
+    if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_)):
+        return (0, float(v), ())
+    parts = re.split(r"(\d+)", str(v))
+    return (1, 0.0, tuple((0, int(p), "") if p.isdigit() else (1, 0, p) for p in parts if p != ""))
+
+
+def _natural_factorize(ids: pd.Series):
+    """Codes into the distinct ids, the ids in natural order (never text order for numbered ids)."""
+    codes, uniques = pd.factorize(ids, sort=False)
+    order = sorted(range(len(uniques)), key=lambda k: _natural_key(uniques[k]))
+    rank = np.empty(len(uniques), dtype=np.int64)
+    rank[order] = np.arange(len(uniques))
+    return rank[codes], [uniques[k] for k in order]
+
+
 def _long_to_matrix(df: pd.DataFrame, value_col: str, path: Path) -> _Read:
     draw_keys = ["chain", "draw"] if "chain" in df.columns else ["draw"]
     _check_keys(df, draw_keys + ["unit"], path)
@@ -462,7 +487,7 @@ def _long_to_matrix(df: pd.DataFrame, value_col: str, path: Path) -> _Read:
         raise SummaryError(f"`path`: value column {value_col!r} of {str(path)!r} is not numeric (dtype {df[value_col].dtype}).")
     rows = df.groupby(draw_keys, sort=True).ngroup().to_numpy()
     row_keys = df[draw_keys].drop_duplicates().sort_values(draw_keys).to_numpy()
-    unit_codes, unit_ids = pd.factorize(df["unit"], sort=True)
+    unit_codes, unit_ids = _natural_factorize(df["unit"])
     n_rows, n_units = int(rows.max()) + 1, len(unit_ids)
     cell = rows.astype(np.int64) * n_units + unit_codes
     counts = np.bincount(cell, minlength=n_rows * n_units)
@@ -486,36 +511,141 @@ def _long_to_matrix(df: pd.DataFrame, value_col: str, path: Path) -> _Read:
     return _Read(out.reshape(n_rows, n_units), chains=chains, unit_ids=list(unit_ids))
 
 
-# -- netCDF ----------------------------------------------------------------------------------
-def _read_netcdf(path: Path, variable, group) -> _Read:
-    import xarray as xr  # a dependency, imported only when needed
-
+# -- netCDF and zarr -------------------------------------------------------------------------
+def _netcdf_engine(path: Path):
     with open(path, "rb") as fh:
         is_hdf5 = fh.read(8) == _HDF5_MAGIC
     # netCDF-4 files are HDF5: read them with h5netcdf (a runtime dependency) so the result does not depend on
     # which optional engines are installed; netCDF-3 files go to xarray's own choice (scipy or netCDF4).
-    engine = "h5netcdf" if is_hdf5 else None
+    return "h5netcdf" if is_hdf5 else None
+
+
+def _group_names(path: Path, fmt: str) -> list[str]:
+    """Every group of a netCDF-4 file or zarr store ("" is the root), parents before children."""
+    names = [""]
     try:
-        ds = xr.open_dataset(path, group=group, engine=engine)
+        if fmt == "zarr":
+            import zarr
+
+            def walk(g, prefix):
+                for key, sub in sorted(g.groups()):
+                    names.append(prefix + key)
+                    walk(sub, prefix + key + "/")
+
+            walk(zarr.open_group(str(path), mode="r"), "")
+        elif _netcdf_engine(path) == "h5netcdf":
+            import h5netcdf
+
+            with h5netcdf.File(path, "r") as f:
+                def walk(g, prefix):
+                    for key in sorted(g.groups):
+                        names.append(prefix + key)
+                        walk(g.groups[key], prefix + key + "/")
+
+                walk(f, "")
+    except Exception:  # noqa: BLE001 - an unreadable layout: only the root is tried (and reported)
+        pass
+    return names
+
+
+def _open(path: Path, fmt: str, group):
+    import xarray as xr  # a dependency, imported only when needed
+
+    kind = "zarr" if fmt == "zarr" else "netCDF"
+    try:
+        if fmt == "zarr":
+            return xr.open_zarr(str(path), group=group or None, consolidated=None)
+        return xr.open_dataset(path, group=group or None, engine=_netcdf_engine(path))
     except Exception as exc:  # noqa: BLE001 - backends raise many types for unreadable files
-        raise SummaryError(f"`path`: cannot read {str(path)!r} as netCDF (is it truncated or malformed?): {exc}") from exc
-    with ds:
-        names = [str(v) for v in ds.data_vars]
-        if variable is None:
-            if len(names) != 1:
-                raise SummaryError(f"`variable`: {str(path)!r} holds {len(names)} variables; name one of {format_names(names)}.")
-            variable = names[0]
-        elif variable not in names:
-            raise SummaryError(f"`variable` {variable!r} is not in {str(path)!r}; available: {format_names(names)}.")
+        if group:
+            raise SummaryError(f"`group` {group!r}: cannot open it in {str(path)!r} ({kind}): {exc}") from exc
+        raise SummaryError(f"`path`: cannot read {str(path)!r} as {kind} (is it truncated or malformed?): {exc}") from exc
+
+
+def _layout(path: Path, fmt: str) -> dict[str, list[str]]:
+    """Group -> its data variables (lazily opened; no data read)."""
+    out = {}
+    for g in _group_names(path, fmt):
         try:
-            da = ds[variable].load()
-        except Exception as exc:  # noqa: BLE001 - a damaged data section shows up only when read
-            raise SummaryError(f"`path`: cannot read variable {variable!r} from {str(path)!r}: {exc}") from exc
+            ds = _open(path, fmt, g)
+        except SummaryError:
+            if g:
+                continue
+            raise
+        with ds:
+            out[g] = [str(v) for v in ds.data_vars]
+    return out
+
+
+def _describe_layout(layout: dict) -> str:
+    return "; ".join(f"{g or '(root)'}: {format_names(v) if v else '(no variables)'}" for g, v in layout.items())
+
+
+def _choose_group(path: Path, fmt: str, variable, group, layout: dict) -> str:
+    """The group to read: given, or the root when it holds what is asked, else the group holding
+    ``variable``, else ``posterior`` (what samplers write)."""
+    if group is not None:
+        key = group.strip("/")
+        if key not in layout:
+            raise SummaryError(
+                f"`group` {group!r} is not in {str(path)!r}; groups and their variables: {_describe_layout(layout)}."
+            )
+        return key
+    root = layout.get("", [])
+    if (variable is None and root) or (variable is not None and variable in root):
+        return ""
+    holders = [g for g, v in layout.items() if g and (variable in v if variable is not None else v)]
+    if "posterior" in holders:
+        return "posterior"
+    if len(holders) == 1:
+        return holders[0]
+    what = f"the variable {variable!r}" if variable is not None else "variables"
+    if not holders:
+        if variable is not None:
+            raise SummaryError(
+                f"`variable` {variable!r} is not in {str(path)!r} (in no group); available, by group: "
+                f"{_describe_layout(layout)}."
+            )
+        raise SummaryError(
+            f"`variable`: {str(path)!r} holds no variables in any group; groups: {_describe_layout(layout)}."
+        )
+    raise SummaryError(
+        f"`group`: {what} of {str(path)!r} sit in several groups; name one with `group=` "
+        f"(groups and their variables: {_describe_layout(layout)})."
+    )
+
+
+def _read_grouped(path: Path, fmt: str, variable, group) -> _Read:
+    layout = _layout(path, fmt)
+    g = _choose_group(path, fmt, variable, group, layout)
+    where = f"group {g!r} of {str(path)!r}" if g else str(path)
+    names = layout[g]
+    if variable is None:
+        if len(names) != 1:
+            raise SummaryError(
+                f"`variable`: {where} holds {len(names)} variables; name one of {format_names(names)} "
+                f"(groups and their variables: {_describe_layout(layout)})."
+            )
+        variable = names[0]
+    elif variable not in names:
+        raise SummaryError(
+            f"`variable` {variable!r} is not in {where}; groups and their variables: {_describe_layout(layout)}."
+        )
+    ds = _open(path, fmt, g)
+    try:
+        da = ds[variable]
+        if fmt == "netcdf":  # the file closes below: read the one variable now
+            da = da.load()
+    except Exception as exc:  # noqa: BLE001 - a damaged data section shows up only when read
+        raise SummaryError(f"`path`: cannot read variable {variable!r} from {str(path)!r}: {exc}") from exc
+    finally:
+        if fmt == "netcdf":
+            ds.close()
     dims = [str(d) for d in da.dims]
     units = [d for d in dims if d not in ("chain", "draw")]
     if "draw" not in dims or len(units) != 1:
         raise SummaryError(
-            f"`variable` {variable!r} in {str(path)!r} has dims {tuple(dims)}; it needs a 'draw' dim, optionally "
+            f"`variable` {variable!r} in {where} has dims {tuple(dims)}; it needs a 'draw' dim, optionally "
             "a 'chain' dim, and exactly one unit dim."
         )
     unit_dim = units[0]
@@ -598,4 +728,4 @@ def _read_sampler_csv(paths: list[Path], variable) -> _Read:
                 "each chain needs the same number of draws."
             )
     values = mats[0] if len(mats) == 1 else np.concatenate(mats, axis=0)
-    return _Read(values, chains=len(paths) if len(paths) > 1 else None)
+    return _Read(values, chains=len(paths) if len(paths) > 1 else None, unit_ids=index_sets[0])

@@ -61,7 +61,7 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         Depth the tree is grown to (default ``max(depth, 4)``), so summary R^2 is shown for every depth.
     min_size, columns
         Passed to :func:`summarize_tree` (``columns`` also to the additive and linear summaries).
-    groups : mapping label -> query, optional
+    groups : mapping label -> query (:mod:`summarize_widgets.core.query`), optional
         Pre-specified groups (:func:`summarize_groups`).
     additive, linear : bool, default True
         Whether to compute these summaries.
@@ -87,7 +87,8 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         return lambda done, total: progress(stage, k, len(wanted), done, total)
 
     tree = summarize_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns, progress=tick("tree"))
-    bundle = SummaryBundle(draws=draws, tree=tree.at_depth(depth))
+    bundle = SummaryBundle(draws=draws, tree=tree.at_depth(depth),
+                           notes=list(draws.notes))  # what construction decided (an id column matched or excluded)
     if groups:
         bundle.groups = summarize_groups(draws, groups, progress=tick("groups"))
     extra_summaries = {"linear": lambda: summarize_linear(draws, columns=columns, progress=tick("linear")),

@@ -1,4 +1,4 @@
-"""Pre-specified subgroups: effects of subgroups the analyst names with pandas queries."""
+"""Pre-specified subgroups: effects of subgroups the analyst names with queries (:mod:`summarize_widgets.core.query`)."""
 from __future__ import annotations
 
 from collections.abc import Mapping
@@ -10,6 +10,7 @@ from ..core.draws import EffectDraws
 from ..core.passes import LinearMap, run_pass
 from .base import SummaryResult
 from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from ..core.query import query_mask
 from ..core.validate import SummaryError
 
 __all__ = ["summarize_groups", "GroupSummary", "ALL_UNITS"]
@@ -19,21 +20,13 @@ ALL_UNITS = "All units"
 
 
 def _mask(covariates: pd.DataFrame, label: str, query: str) -> np.ndarray:
+    """Rows of ``covariates`` (as the user gave them, index included) that ``query`` selects."""
     if not isinstance(query, str) or not query.strip():
-        raise SummaryError(f"Group {label!r}: the query must be a non-empty pandas query string; got {query!r}.")
+        raise SummaryError(f"Group {label!r}: the query must be a non-empty string such as \"age >= 65\"; got {query!r}.")
     try:
-        sel = covariates.eval(query)
-    except pd.errors.UndefinedVariableError as exc:
-        raise SummaryError(
-            f"Group {label!r}: query {query!r} names a column that is not in the covariates ({exc}). "
-            f"Available: {', '.join(map(repr, covariates.columns))}."
-        ) from None
-    except Exception as exc:  # noqa: BLE001 - pandas raises many kinds for a bad query
-        raise SummaryError(f"Group {label!r}: query {query!r} could not be evaluated: {exc}") from None
-    sel = pd.Series(sel)
-    if sel.dtype != bool or len(sel) != len(covariates):
-        raise SummaryError(f"Group {label!r}: query {query!r} must give True/False per unit; got {sel.dtype}.")
-    return sel.to_numpy()
+        return query_mask(covariates, query)
+    except SummaryError as exc:
+        raise SummaryError(f"Group {label!r}: {exc}") from None
 
 
 class GroupSummary(SummaryResult):
@@ -67,12 +60,18 @@ class GroupSummary(SummaryResult):
 
     def _info(self) -> pd.DataFrame:
         wbar = self.draws.mean_weights
-        return pd.DataFrame({
+        out = pd.DataFrame({
             "subgroup": self.labels,
+            "label": self.labels,
             "rule": self.queries,
             "n_units": self._masks.sum(axis=0).astype(int),
             "share": (wbar @ self._masks) / wbar.sum(),
         })
+        if self.draws.is_complier_weighted:  # share of units by the unit weights; of compliers by the uptake
+            v = self.draws.unit_weights
+            out["complier_share"] = out["share"]
+            out["share"] = (v @ self._masks) / v.sum()
+        return out
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed", uptake_floor: float = UPTAKE_FLOOR) -> pd.DataFrame:
         """Same columns as :meth:`TreeSummary.table`; ``subgroup`` is the label, ``rule`` the query."""
@@ -83,7 +82,7 @@ class GroupSummary(SummaryResult):
     def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
         """Every pair of groups (the "All units" row included): difference, interval, P(A > B)."""
         return contrast_table(self.group_draws, self.labels, self.queries, level=level, interval=interval,
-                              subgroup=subgroup, attrs=self._attrs(),
+                              subgroup=subgroup, attrs=self._attrs(), labels=self.labels,
                               stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     def apply_to(self, draws, *, progress=None) -> "GroupSummary":
@@ -110,9 +109,11 @@ def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=N
     Parameters
     ----------
     draws : EffectDraws
-    groups : mapping of label -> pandas query string
-        For example ``{"older owners": "age >= 65 and tenure == 'owner'"}``; evaluated
-        with ``DataFrame.eval`` on ``draws.covariates``. Groups may overlap.
+    groups : mapping of label -> query string
+        For example ``{"older owners": "age >= 65 and tenure == 'owner'"}``, in the small
+        grammar of :mod:`summarize_widgets.core.query` (comparisons, ``in`` lists,
+        ``is missing``, and/or/not), evaluated with NumPy on the covariates as given
+        (``index`` is their index). Groups may overlap.
     level : deprecated
         Ignored (it never changed the result); pass ``level`` to ``.table()`` instead.
 
@@ -130,13 +131,14 @@ def summarize_groups(draws, groups: Mapping[str, str], level=None, *, progress=N
         warnings.warn("summarize_groups(level=...) is ignored and will be removed; pass level to .table().",
                       DeprecationWarning, stacklevel=2)
     if not isinstance(groups, Mapping) or not groups:
-        raise SummaryError("`groups` must be a non-empty mapping of label -> pandas query, e.g. {'older': 'age >= 65'}.")
+        raise SummaryError("`groups` must be a non-empty mapping of label -> query, e.g. {'older': 'age >= 65'}.")
     labels, queries, masks = [ALL_UNITS], ["all units"], [np.ones(draws.n_units, bool)]
+    given = draws.covariates.set_axis(draws.unit_ids, axis=0) if draws.unit_ids is not None else draws.covariates
     for label, query in groups.items():
         label = str(label)
         if label in labels:
             raise SummaryError(f"`groups` uses the label {label!r} twice (or it clashes with {ALL_UNITS!r}).")
-        m = _mask(draws.covariates, label, query)
+        m = _mask(given, label, query)
         if not m.any():
             raise SummaryError(f"Group {label!r}: query {query!r} selects no units.")
         labels.append(label)

@@ -22,13 +22,18 @@ __all__ = ["ratio_draws", "effect_table", "contrast_table", "UPTAKE_FLOOR", "SUB
 #: complier share is below this value (its Wald ratio is then unstable).
 UPTAKE_FLOOR = 0.05
 
-#: Columns of every subgroup table (tree leaves and groups), in order.
-SUBGROUP_COLUMNS = ("subgroup", "rule", "n_units", "share", *STAT_COLUMNS, *MC_COLUMNS)
-#: Columns complier-weighted subgroup tables add.
-UPTAKE_COLUMNS = ("uptake_share", "uptake_lower", "uptake_upper", "weak_uptake")
+#: Columns of every subgroup table (tree leaves and groups), in order. ``subgroup`` identifies
+#: the subgroup (a tree's node id, as :meth:`TreeSummary.assign` returns it; a group's name),
+#: ``label`` is what every output prints (``S1 .. Sk`` for a tree, the name for a group), and
+#: ``share`` is the share of units (weighted by the unit weights).
+SUBGROUP_COLUMNS = ("subgroup", "label", "rule", "n_units", "share", *STAT_COLUMNS, *MC_COLUMNS)
+#: Columns complier-weighted subgroup tables add: ``complier_share`` (the subgroup's share of
+#: the compliers, i.e. of the summed uptake effect), then the posterior of the subgroup's own
+#: uptake share (its complier fraction) and the weak-uptake flag.
+UPTAKE_COLUMNS = ("complier_share", "uptake_share", "uptake_lower", "uptake_upper", "weak_uptake")
 #: Columns of every contrast table, in order.
-CONTRAST_COLUMNS = ("subgroup_a", "subgroup_b", "rule_a", "rule_b", "difference", "sd", "lower", "upper",
-                    "prob_a_greater", *MC_COLUMNS)
+CONTRAST_COLUMNS = ("subgroup_a", "subgroup_b", "label_a", "label_b", "rule_a", "rule_b", "difference", "sd",
+                    "lower", "upper", "prob_a_greater", *MC_COLUMNS)
 
 
 def ratio_draws(A: np.ndarray, W: np.ndarray, names) -> np.ndarray:
@@ -55,16 +60,19 @@ def effect_table(columns: dict, info: pd.DataFrame, *, level: float, interval: s
         The statistics core's columns of the per-draw subgroup effects
         (:meth:`~summarize_widgets.summaries.base.SummaryResult._columns`).
     info : DataFrame
-        One row per group with ``subgroup``, ``rule``, ``n_units``, ``share``.
+        One row per group with ``subgroup``, ``label``, ``rule``, ``n_units``, ``share`` (and
+        ``complier_share`` for complier-weighted draws).
     uptake : ndarray, shape (n_draws, n_groups), optional
         Per-draw complier share of each group (complier-weighted draws only).
     """
     level = check_level(level)
     interval = check_interval(interval)
-    out = info.reset_index(drop=True).copy()
+    info = info.reset_index(drop=True)
+    out = info[[c for c in SUBGROUP_COLUMNS if c in info.columns]].copy()
     for name in (*STAT_COLUMNS, *MC_COLUMNS):
         out[name] = columns[name]
     if uptake is not None:
+        out["complier_share"] = info["complier_share"].to_numpy()
         ulo, uhi = credible_interval(uptake, level, interval)
         out["uptake_share"] = uptake.mean(axis=0)
         out["uptake_lower"] = ulo
@@ -77,16 +85,18 @@ def effect_table(columns: dict, info: pd.DataFrame, *, level: float, interval: s
 
 
 def contrast_table(theta: np.ndarray, ids, rules, *, level: float, interval: str, stats, subgroup=None,
-                   attrs=None) -> pd.DataFrame:
+                   attrs=None, labels=None) -> pd.DataFrame:
     """Every pair (a, b) of subgroups: posterior of ``theta_a - theta_b`` per draw (docs/method.md section 6).
 
     With ``subgroup`` given, only the pairs (subgroup, other) are returned. ``stats(keys, diff)``
     turns per-draw differences into the statistics core's columns (the result's ``_columns``).
+    ``labels`` are the printed names of the subgroups (default: the ids as text).
     """
     level = check_level(level)
     interval = check_interval(interval)
     ids = list(ids)
     rules = list(rules)
+    labels = [str(i) for i in ids] if labels is None else list(labels)
     if subgroup is not None:
         if subgroup not in ids:
             raise SummaryError(f"`subgroup` {subgroup!r} is not one of the subgroups: {ids}.")
@@ -104,6 +114,8 @@ def contrast_table(theta: np.ndarray, ids, rules, *, level: float, interval: str
         out = pd.DataFrame({
             "subgroup_a": [ids[i] for i in ia],
             "subgroup_b": [ids[i] for i in ib],
+            "label_a": [labels[i] for i in ia],
+            "label_b": [labels[i] for i in ib],
             "rule_a": [rules[i] for i in ia],
             "rule_b": [rules[i] for i in ib],
             "difference": cols["mean"],

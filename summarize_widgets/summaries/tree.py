@@ -96,11 +96,15 @@ class _Fitted:
         n_nodes = t.node_count
         self.parent = np.full(n_nodes, -1)
         self.node_depth = np.zeros(n_nodes, int)
+        # Each node's path from the root as left (0) / right (1) turns: its place in the tree,
+        # which does not depend on max_depth (scikit-learn's node ids do).
+        self.path: list[tuple] = [()] * n_nodes
         for node in range(n_nodes):
-            for child in (t.children_left[node], t.children_right[node]):
+            for turn, child in enumerate((t.children_left[node], t.children_right[node])):
                 if child >= 0:
                     self.parent[child] = node
                     self.node_depth[child] = self.node_depth[node] + 1
+                    self.path[child] = self.path[node] + (turn,)
         self.sk_leaves = np.flatnonzero(t.children_left < 0)
         L = len(self.sk_leaves)
         # membership: deepest leaf -> every ancestor node
@@ -164,6 +168,15 @@ class _Fitted:
             v = v[~np.isnan(v)]
             return v.min() if v.size else np.inf
 
+        binary: dict[int, bool] = {}
+
+        def is_binary(f):
+            if f not in binary:
+                v = self.X_raw[:, f]
+                v = v[~np.isnan(v)]
+                binary[f] = bool(np.isin(v, (0.0, 1.0)).all())
+            return binary[f]
+
         conds = {}
         for node in range(t.node_count):
             left, right = t.children_left[node], t.children_right[node]
@@ -172,9 +185,16 @@ class _Fitted:
             f = t.feature[node]
             spec = self.specs[f]
             if spec.kind == "numeric":
-                value = nice_threshold(t.threshold[node], child_max(left, f), child_min(right, f))
                 has_missing = spec.n_missing > 0
                 ml = has_missing and bool(t.missing_go_to_left[node])
+                if is_binary(f):  # a 0/1 indicator reads "= 0" / "= 1", never "<= 0"
+                    conds[left] = Condition(spec.name, op="=", value="0", numeric_value=0.0, with_missing=ml)
+                    conds[right] = Condition(spec.name, op="=", value="1", numeric_value=1.0,
+                                             with_missing=has_missing and not ml)
+                    continue
+                dtype = self.draws.covariates[spec.name].dtype
+                value = nice_threshold(t.threshold[node], child_max(left, f), child_min(right, f),
+                                       dtype if getattr(dtype, "kind", "f") == "f" else np.float64)
                 conds[left] = Condition(spec.name, op="<=", value=value, numeric_value=float(value), with_missing=ml)
                 conds[right] = Condition(spec.name, op=">", value=value, numeric_value=float(value),
                                          with_missing=has_missing and not ml)
@@ -198,10 +218,23 @@ class _Fitted:
         return rules
 
     def nodes_at(self, depth: int) -> np.ndarray:
-        """Node ids of the subgroups of the truncation at ``depth`` (in tree order)."""
+        """Node ids of the subgroups of the truncation at ``depth`` (in tree order: left to right)."""
         is_leaf = self.t.children_left < 0
         sel = (self.node_depth == depth) | (is_leaf & (self.node_depth < depth))
-        return np.flatnonzero(sel)
+        ids = np.flatnonzero(sel)
+        # scikit-learn numbers nodes depth first, left child first, so id order is tree order;
+        # the labels rely on it, so check rather than assume.
+        if [self.path[i] for i in ids] != sorted(self.path[i] for i in ids):  # pragma: no cover
+            raise SummaryError("Internal: tree node ids are not in left-to-right order.")
+        return ids
+
+    def labels_at(self, depth: int) -> dict[int, str]:
+        """Node id -> readable label ``S1 .. Sk`` of the subgroups at ``depth``, left to right.
+
+        The label follows the subgroup's place in the tree, so the same leaves get the same
+        labels whatever ``max_depth`` the tree was grown to.
+        """
+        return {int(i): f"S{k}" for k, i in enumerate(self.nodes_at(depth), start=1)}
 
 
 class _DepthNumber(int):
@@ -326,14 +359,54 @@ class TreeSummary(SummaryResult):
             return None
         return f.W_nodes[:, ids] / f.unit_w_node[ids]
 
+    @cached_property
+    def labels(self) -> dict[int, str]:
+        """Node id -> printed label (``S1 .. Sk``, left to right) of each subgroup at the current depth.
+
+        Labels follow the subgroups' places in the tree: the same leaves keep the same labels
+        whatever ``max_depth`` was. Every output (tables, figures, report, explorer) prints them.
+        """
+        return self._f.labels_at(self._depth)
+
+    def label_of(self, subgroup) -> str:
+        """The printed label of a subgroup given by node id (or by its label, returned as is)."""
+        if isinstance(subgroup, str) and subgroup in self.labels.values():
+            return subgroup
+        try:
+            return self.labels[int(subgroup)]
+        except (KeyError, TypeError, ValueError):
+            raise SummaryError(f"`subgroup` {subgroup!r} is not a subgroup at depth {self._depth}: node ids "
+                               f"{list(self.labels)} or labels {list(self.labels.values())}.") from None
+
+    def node_of(self, subgroup) -> int:
+        """The node id of a subgroup given by label (``"S2"``) or node id."""
+        if isinstance(subgroup, str):
+            for node, lab in self.labels.items():
+                if lab == subgroup:
+                    return node
+        self.label_of(subgroup)  # raises naming the valid ids and labels
+        return int(subgroup)
+
+    def _shares(self, ids):
+        """Share of units (by unit weight) and, complier-weighted, share of compliers."""
+        f = self._f
+        if f.unit_w_node is None:
+            return f.wbar_node[ids] / f.wbar_node[0], None
+        return f.unit_w_node[ids] / f.unit_w_node[0], f.wbar_node[ids] / f.wbar_node[0]
+
     def _info(self, ids) -> pd.DataFrame:
         f = self._f
-        return pd.DataFrame({
+        share, complier = self._shares(ids)
+        out = pd.DataFrame({
             "subgroup": ids.astype(int),
+            "label": [self.labels[int(i)] for i in ids],
             "rule": [f.rules[i] for i in ids],
             "n_units": f.n_units_node[ids].astype(int),
-            "share": f.wbar_node[ids] / f.wbar_node[0],
+            "share": share,
         })
+        if complier is not None:
+            out["complier_share"] = complier
+        return out
 
     def _attrs(self):
         return {"label": self.label, "depth": self._depth, "summary": "tree", "unit": self.draws.unit,
@@ -343,11 +416,13 @@ class TreeSummary(SummaryResult):
         """One row per subgroup at the current depth.
 
         Columns (:data:`~summarize_widgets.summaries.subgroups.SUBGROUP_COLUMNS`): ``subgroup``
-        (node id), ``rule``, ``n_units``, ``share`` (weighted share of units), then the
+        (node id, as :meth:`assign` returns it), ``label`` (``S1 .. Sk`` left to right, what every
+        output prints), ``rule``, ``n_units``, ``share`` (share of units, by unit weight), then the
         statistics core's ``mean``, ``sd``, ``lower``, ``upper`` (credible interval at
         ``level``), ``prob_positive`` and Monte Carlo error columns ``ess_bulk``, ``ess_tail``,
         ``rhat``, ``mcse_mean``, ``mcse_lower``, ``mcse_upper``, ``mc_warning``
-        (:mod:`summarize_widgets.core.stats`); complier-weighted draws add ``uptake_share``,
+        (:mod:`summarize_widgets.core.stats`); complier-weighted draws add ``complier_share``
+        (the subgroup's share of the compliers), ``uptake_share``,
         ``uptake_lower``, ``uptake_upper`` and ``weak_uptake`` (lower credible limit of the
         complier share below ``uptake_floor``: the subgroup's ratio is unstable).
         """
@@ -359,7 +434,8 @@ class TreeSummary(SummaryResult):
     def nodes(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """Every node down to the current depth (the one description core for every renderer).
 
-        Columns: ``node``, ``parent`` (-1 for the root), ``depth``, ``split`` (condition on the
+        Columns: ``node``, ``label`` (the subgroup's ``S1 .. Sk`` label, "" for inner nodes),
+        ``parent`` (-1 for the root), ``depth``, ``split`` (condition on the
         edge from the parent), ``rule`` (the full path), ``is_leaf`` (a subgroup at the current
         depth), ``n_units``, ``share``, then the statistics core's columns (as in :meth:`table`).
         """
@@ -368,15 +444,18 @@ class TreeSummary(SummaryResult):
         theta = ratio_draws(f.A_nodes[:, ids], f.W_nodes[:, ids], [f.rules[i] for i in ids])
         cols = self.statistics([int(i) for i in ids], theta, level=level, interval=interval)
         leaves = set(self.leaf_ids.tolist())
+        share, complier = self._shares(ids)
         out = pd.DataFrame({
             "node": ids.astype(int),
+            "label": [self.labels.get(int(i), "") for i in ids],
             "parent": f.parent[ids].astype(int),
             "depth": f.node_depth[ids].astype(int),
             "split": [f.conditions[i].text() if i in f.conditions else "" for i in ids],
             "rule": [f.rules[i] for i in ids],
             "is_leaf": [int(i) in leaves for i in ids],
             "n_units": f.n_units_node[ids].astype(int),
-            "share": f.wbar_node[ids] / f.wbar_node[0],
+            "share": share,
+            **({"complier_share": complier} if complier is not None else {}),
             **cols,
         })
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
@@ -386,8 +465,11 @@ class TreeSummary(SummaryResult):
         """Every pair of subgroups (or ``subgroup`` against each other): difference per draw,
         its interval and ``P(A > B)``; never two marginal intervals combined."""
         ids = self.leaf_ids
+        if subgroup is not None:
+            subgroup = self.node_of(subgroup)
         return contrast_table(self.leaf_draws, [int(i) for i in ids], [self._f.rules[i] for i in ids],
                               level=level, interval=interval, subgroup=subgroup, attrs=self._attrs(),
+                              labels=[self.labels[int(i)] for i in ids],
                               stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     # -- summary R^2 ---------------------------------------------------------------------
