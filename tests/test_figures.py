@@ -721,9 +721,72 @@ def test_complier_weighted_tree_flags_weak_uptake_and_shows_complier_share():
     flagged = [lab for lab in fig.layout.yaxis.ticktext if "weak uptake" in lab]
     assert len(flagged) == int(tab["weak_uptake"].sum())
     tr = _trace(fig, "subgroups")
-    assert "complier share" in tr.hovertemplate
+    assert "complier share" in tr.hovertemplate and "of all compliers" in tr.hovertemplate
     order = tab.sort_values("mean")
-    np.testing.assert_allclose(tr.customdata[:, 6].astype(float), order["uptake_share"])
+    np.testing.assert_allclose(tr.customdata[:, 7].astype(float), order["uptake_share"])
+    # `share` is a share of compliers here, and the labels say so.
+    assert all("of compliers" in lab for lab in fig.layout.yaxis.ticktext)
+
+
+def _complier_table():
+    """Three subgroups; subgroup 9's complier share may be near zero and its ratio is wild."""
+    df = pd.DataFrame({"subgroup": [3, 5, 9], "rule": ["a <= 1", "a > 1 & b <= 2", "a > 1 & b > 2"],
+                       "n_units": [800, 700, 109], "share": [0.55, 0.44, 0.007], "mean": [-20.0, -35.0, -257.0],
+                       "sd": [3.0, 4.0, 120.0], "lower": [-26.0, -43.0, -589.0], "upper": [-14.0, -27.0, -39.0],
+                       "prob_positive": [0.0, 0.0, 0.01], "uptake_share": [0.6, 0.5, 0.06],
+                       "uptake_lower": [0.55, 0.45, 0.01], "weak_uptake": [False, False, True]})
+    df.attrs.update(level=0.95, interval="equal-tailed", label="effect")
+    return df
+
+
+def test_weak_uptake_does_not_set_the_effects_axis_and_is_drawn_cut_with_its_numbers():
+    df = _complier_table()
+    fig = F.subgroups_figure(df)
+    lo, hi = fig.layout.xaxis.range
+    # The axis covers the stable subgroups' intervals (and zero), not the unstable one.
+    assert lo <= -43.0 and hi >= 0.0 and lo > -60.0
+    arrows = _trace(fig, "cut at the axis")
+    assert list(arrows.marker.symbol) == ["triangle-left"] and arrows.x[0] == pytest.approx(lo)
+    notes = [a.text for a in fig.layout.annotations]
+    assert notes == ["\u2212257 [\u2212589, \u221239]: beyond the axis"]
+    # The drawn interval is cut at the edge; the hover keeps the true numbers.
+    weak = [t for t in fig.data if t.name == "subgroups"][0]
+    row = list(weak.customdata[:, 0]).index("a &gt; 1 &amp; b &gt; 2")
+    assert weak.x[row] == pytest.approx(lo) and float(weak.customdata[row, 6]) == pytest.approx(-257.0)
+    assert weak.x[row] - weak.error_x.arrayminus[row] == pytest.approx(lo)
+    # Colours come from the stable subgroups: the most negative stable one gets the end colour.
+    fills = list(weak.marker.color)
+    assert fills[row] == fills[[float(v) for v in weak.customdata[:, 6]].index(-35.0)] == F.effect_color(np.array([-35.0]), 35.0)[0]
+    # Without the flag every interval sets the axis, nothing is cut.
+    plain = F.subgroups_figure(df.drop(columns=["uptake_share", "uptake_lower", "weak_uptake"]))
+    assert plain.layout.xaxis.range[0] < -589.0 and not plain.layout.annotations
+    assert all(t.name != "cut at the axis" for t in plain.data)
+
+
+def test_contrasts_flag_weak_subgroups_and_keep_their_axis():
+    df = _complier_table()
+    tree_like = pd.DataFrame({
+        "subgroup_a": [3, 3], "subgroup_b": [5, 9], "rule_a": ["a <= 1"] * 2, "rule_b": ["a > 1 & b <= 2", "a > 1 & b > 2"],
+        "difference": [15.0, 237.0], "lower": [6.0, 20.0], "upper": [24.0, 570.0], "prob_a_greater": [0.99, 0.99]})
+    tree_like.attrs.update(level=0.95, interval="equal-tailed")
+    fig = F.contrasts_figure(tree_like, 3, weak={9})
+    assert sum("weak uptake" in lab for lab in fig.layout.yaxis.ticktext) == 1
+    assert fig.layout.xaxis.range[1] < 100
+    assert any("beyond the axis" in a.text for a in fig.layout.annotations)
+    assert list(_trace(fig, "cut at the axis").marker.symbol) == ["triangle-right"]
+    # Subgroup A weak: every contrast is unstable; the axis holds them all, A is flagged in the title.
+    flipped = F.contrasts_figure(tree_like, 9, weak={9})
+    assert flipped.layout.xaxis.range[0] <= -570.0 and "weak uptake" in flipped.layout.title.text
+    del df
+
+
+def test_several_subgroups_can_be_highlighted():
+    df = _complier_table()
+    fig = F.subgroups_figure(df, highlight=[3, 5])
+    assert len(_trace(fig, "highlight").x) == 2
+    assert sum(1 for sh in fig.layout.shapes if sh.type == "rect") == 2
+    with pytest.raises(SummaryError, match=r"`highlight` 4 is not one of the subgroups: \[3, 5, 9\]"):
+        F.subgroups_figure(df, highlight=[3, 4])
 
 
 @pytest.mark.parametrize("n", [50, 4000])

@@ -20,7 +20,7 @@ from summarize_widgets.figures import DIVERGING, MUTED, effect_color
 from summarize_widgets.widgets import Explorer, TreeView
 from summarize_widgets.widgets import panels as P
 from summarize_widgets.widgets import explorer as explorer_module
-from summarize_widgets.widgets.tree_view import NODE_FIELDS, asset_path, node_records
+from summarize_widgets.widgets.tree_view import RECORD_FIELDS, asset_path, node_records
 
 REPO = Path(__file__).resolve().parents[1]
 IN_CI = os.environ.get("CI", "").lower() == "true"
@@ -39,7 +39,7 @@ def draws(study):
 @pytest.fixture()
 def explorer(draws):
     # lam fixed: the smoothing search is not what these tests are about, and it is the slow part.
-    return Explorer(draws, max_depth=3, background=False, additive_options={"lam": 1.0})
+    return Explorer(draws, max_depth=3, depth=2, background=False, additive_options={"lam": 1.0})
 
 
 def _leaf_draws_by_groupby(draws_values, covariates, tree):
@@ -73,7 +73,12 @@ def test_node_records_are_json_ready(draws):
     nodes.loc[nodes.index[-1], "mean"] = np.nan
     recs = node_records(nodes)
     assert len(recs) == len(nodes)
-    assert all(set(r) == set(NODE_FIELDS) for r in recs)
+    assert all(set(r) == set(RECORD_FIELDS) for r in recs)
+    # Share of units is n_units over all units, whatever the weights; nothing flagged unless asked.
+    assert [r["unit_share"] for r in recs] == pytest.approx((nodes["n_units"] / nodes["n_units"].iloc[0]).tolist())
+    assert not any(r["weak"] for r in recs)
+    leaf = int(nodes.loc[nodes["is_leaf"], "node"].iloc[0])
+    assert [r["node"] for r in node_records(nodes, weak=[leaf]) if r["weak"]] == [leaf]
     assert recs[-1]["mean"] is None
     json.dumps(recs, allow_nan=False)  # raises if a NaN or a numpy scalar slipped through
     assert type(recs[0]["node"]) is int and type(recs[0]["is_leaf"]) is bool and type(recs[1]["share"]) is float
@@ -168,10 +173,12 @@ def test_table_html_escapes_and_marks_the_selected_row():
                         "share": [0.4, 0.6], "mean": [1.0, 2.0], "sd": [0.1, 0.1], "lower": [0.8, 1.8],
                         "upper": [1.2, 2.2], "prob_positive": [1.0, 1.0]})
     tab.attrs.update(level=0.95, interval="equal-tailed", label="effect", summary="tree")
-    out = P.table_html(tab, selected_row=1, css_scope="scope-x")
+    out = P.table_html(tab, selected_rows=[1], css_scope="scope-x")
     assert "<b>bold</b>" not in out and "&lt;b&gt;bold&lt;/b&gt;" in out
-    assert ".scope-x tbody tr:nth-child(2)" in out
-    assert "nth-child" not in P.table_html(tab, selected_row=None, css_scope="scope-x")
+    assert ".scope-x tbody tr:nth-child(2)" in out and "nth-child(1)" not in out
+    assert "nth-child" not in P.table_html(tab, selected_rows=(), css_scope="scope-x")
+    both = P.table_html(tab, selected_rows=[0, 1], css_scope="scope-x")
+    assert "tr:nth-child(1)" in both and "tr:nth-child(2)" in both
 
 
 def test_estimate_text_matches_the_tree_view(tmp_path):
@@ -289,14 +296,34 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     assert _highlighted_rule(effects) == _plain(rule)
 
 
-def test_selecting_an_inner_node_clears_the_highlight(explorer):
-    root = 0
-    explorer.apply(selected=root)
-    assert _highlighted_rule(explorer._panels["effects"].figure) is None
+def _highlighted_rules(fig_widget):
+    traces = [t for t in fig_widget.data if t.name == "highlight"]
+    if not traces or traces[0].customdata is None:
+        return []
+    return sorted(html.unescape(str(row[0]).replace("<br>", " ")) for row in traces[0].customdata)
+
+
+def test_selecting_an_inner_node_highlights_its_subgroups_everywhere(explorer, draws):
+    tree = summarize_tree(draws, max_depth=3).at_depth(2)
+    nodes = tree.nodes()
+    inner = int(nodes.loc[(nodes["depth"] == 1) & ~nodes["is_leaf"], "node"].iloc[0])
+    inside = nodes.loc[(nodes["parent"] == inner) & nodes["is_leaf"]]
+    assert len(inside) >= 2
+    explorer.apply(selected=inner)
     assert "split further at this depth" in explorer.status.value
+    assert _highlighted_rules(explorer._panels["effects"].figure) == sorted(_plain(r) for r in inside["rule"])
+    explorer._tabs.selected_index = list(explorer._panels).index("table")
+    rows = tree.table()["subgroup"].tolist()
+    for node in inside["node"]:
+        assert f"tr:nth-child({rows.index(int(node)) + 1})" in explorer._table_html.value
+    assert explorer._table_html.value.count("nth-child") == len(inside)
     explorer._tabs.selected_index = list(explorer._panels).index("contrasts")
     text = explorer._panels["contrasts"].figure.layout.annotations[0].text
-    assert text.startswith("Select a subgroup")
+    assert text.startswith(f"The selected box holds {len(inside)} subgroups")
+    # The root holds every subgroup.
+    explorer._tabs.selected_index = 0
+    explorer.apply(selected=0)
+    assert len(_highlighted_rules(explorer._panels["effects"].figure)) == len(tree.leaf_ids)
 
 
 def test_clicks_from_the_front_end_go_through_the_same_path(explorer):
@@ -349,7 +376,10 @@ def test_impossible_min_size_shows_a_message_and_keeps_the_view(explorer, draws)
     before = list(explorer.tree_view.nodes)
     explorer.min_size_control.value = draws.n_units + 1  # what typing into the box does
     assert "swx-status-error" in explorer.status.value
-    assert f"`min_size` must be between 1 and {draws.n_units}; got {draws.n_units + 1}" in explorer.status.value
+    # In the words of the control, not of the Python argument.
+    assert (f"\u201cSmallest subgroup (units)\u201d must be between 1 and {draws.n_units}; got {draws.n_units + 1}"
+            in explorer.status.value)
+    assert "min_size" not in explorer.status.value
     assert explorer.tree_view.nodes == before
     assert explorer.min_size_control.value == explorer.tree.min_size
     explorer.columns_control.value = ()
@@ -367,7 +397,7 @@ def test_unexpected_errors_become_messages(explorer, monkeypatch):
 
 def test_min_size_and_covariates_recompute_on_a_worker_thread(draws, monkeypatch):
     monkeypatch.setattr(explorer_module, "PROGRESS_AFTER_S", 0.0)
-    ex = Explorer(draws, max_depth=3, trends=False, additive_options={"lam": 1.0})
+    ex = Explorer(draws, max_depth=3, depth=2, trends=False, additive_options={"lam": 1.0})
     seen = []
     ex.progress.observe(lambda ch: seen.append(ch["new"]), names="value")
     ex.min_size_control.value = 150
@@ -389,7 +419,7 @@ def test_the_widget_stays_usable_while_a_recompute_runs(draws, monkeypatch):
 
     from summarize_widgets.widgets import results as _results
 
-    ex = Explorer(draws, max_depth=3, trends=False, linear=False)
+    ex = Explorer(draws, max_depth=3, depth=2, trends=False, linear=False)
     gate, started = threading.Event(), threading.Event()
     real = _results.Results.compute.__func__
 
@@ -421,6 +451,35 @@ def test_recompute_api_raises_and_keeps_the_view(explorer, draws):
     assert explorer.tree.min_size == 60 and explorer.min_size_control.value == 60
 
 
+def test_complier_weighted_draws_flag_weak_uptake_in_every_panel(study):
+    ex = Explorer(study.complier_draws(), max_depth=3, depth=3, trends=False, linear=False, background=False)
+    table = ex.tree.table()
+    weak = set(table.loc[table["weak_uptake"], "subgroup"].astype(int))
+    assert weak and len(weak) < len(table), "the study has weak-uptake subgroups at depth 3"
+    # Tree boxes: flagged; the colour range comes from the other subgroups.
+    assert {r["node"] for r in ex.tree_view.nodes if r["weak"]} == weak
+    steady = table.loc[~table["weak_uptake"], "mean"].abs().max()
+    assert ex.tree_view.colour_limit == pytest.approx(steady)
+    assert ex.tree_view.colour_limit < table["mean"].abs().max()
+    # Shares: the boxes name shares of compliers and carry the share of units beside them.
+    assert ex.tree_view.share_basis == "compliers"
+    root = next(r for r in ex.tree_view.nodes if r["parent"] == -1)
+    for r in ex.tree_view.nodes:
+        assert r["unit_share"] == pytest.approx(r["n_units"] / root["n_units"])
+    # Contrasts: a weak subgroup is marked when compared with the selection.
+    steady_id = next(int(s) for s in table["subgroup"] if int(s) not in weak)
+    ex.apply(selected=steady_id)
+    ex._tabs.selected_index = list(ex._panels).index("contrasts")
+    ticks = ex._panels["contrasts"].figure.layout.yaxis.ticktext
+    assert sum("weak uptake" in t for t in ticks) == len(weak)
+    # The effects figure's axis is set by the stable subgroups.
+    ex._tabs.selected_index = 0
+    lo, hi = ex._panels["effects"].figure.layout.xaxis.range
+    stable = table.loc[~table["weak_uptake"]]
+    assert lo <= stable["lower"].min() and hi >= stable["upper"].max()
+    assert lo > table["lower"].min()
+
+
 def test_complier_weighted_draws(study):
     ex = Explorer(study.complier_draws(), max_depth=2, trends=False, background=False)
     assert "complier-weighted" in ex._header.value
@@ -445,6 +504,64 @@ def test_text_from_the_data_is_escaped():
     # The tree view receives the raw text; the ES module only ever sets it as textContent.
     assert any("<script>" in r["rule"] for r in ex.tree_view.nodes)
     assert "innerHTML" not in asset_path("tree_view.js").read_text()
+
+
+def test_the_selection_survives_a_recompute_when_its_subgroup_does(draws):
+    ex = Explorer(draws, max_depth=3, depth=2, trends=False, linear=False, background=False)
+    nodes = ex._res.nodes(3, 0.95, "equal-tailed")
+    first_split = nodes.loc[nodes["depth"] == 1]
+    pick = int(first_split["node"].iloc[1])
+    rule = first_split["rule"].iloc[1]
+    ex.apply(selected=pick)
+    ex.recompute(min_size=ex.tree.min_size + 1)  # the first split does not move for one unit more
+    now = ex._res.nodes(3, 0.95, "equal-tailed")
+    assert now.set_index("node").loc[ex.settings["selected"], "rule"] == rule
+    # A subgroup that no longer exists: the view falls back to the clearest subgroup.
+    ex.apply(selected=int(ex.tree.table()["subgroup"].iloc[0]))
+    ex.recompute(columns=["baseline_bill"])
+    assert ex.settings["selected"] == ex._res.standout(2)
+
+
+def test_covariate_chooser_ticks_all_none_and_applies(draws):
+    ex = Explorer(draws, max_depth=2, depth=1, trends=False, linear=False, background=False)
+    chooser = ex.columns_control
+    names = list(draws.covariates.columns)
+    assert chooser.options == names and chooser.value == tuple(names)
+    assert all(box.value for box in chooser.boxes.values())
+    assert chooser.apply_button.disabled  # nothing to apply yet
+    chooser.none_button.click()
+    assert chooser.ticked == () and chooser.apply_button.disabled  # no covariate: cannot apply
+    assert ex.tree.columns == names  # ticking alone does not recompute
+    chooser.boxes["tenure"].value = True
+    chooser.boxes["baseline_bill"].value = True
+    assert not chooser.apply_button.disabled and "not applied yet" in chooser.count.value
+    chooser.apply_button.click()
+    assert ex.tree.columns == ["tenure", "baseline_bill"] or set(ex.tree.columns) == {"tenure", "baseline_bill"}
+    assert "2 of 9 in use" in chooser.count.value
+    chooser.all_button.click()
+    assert chooser.ticked == tuple(names) and chooser.value != tuple(names)
+
+
+def test_messages_name_the_controls_and_the_interval_choice_is_marked():
+    from summarize_widgets.widgets.controls import explorer_style, in_control_words
+
+    assert in_control_words("`min_size` must be between 1 and 400; got 401.") == \
+        "\u201cSmallest subgroup (units)\u201d must be between 1 and 400; got 401."
+    assert in_control_words("`columns` names covariates that are not there") .startswith("\u201cCovariates used\u201d")
+    assert in_control_words("`other` stays") == "`other` stays"
+    css = explorer_style()
+    assert ".swx-interval .widget-toggle-button.mod-active" in css and "#1d4e79" in css
+
+
+def test_one_default_depth_for_the_command_line_and_the_explorer(draws):
+    from summarize_widgets.cli import build_parser
+    from summarize_widgets.summaries.bundle import DEFAULT_DEPTH
+
+    assert DEFAULT_DEPTH == 3
+    ex = Explorer(draws, max_depth=4, trends=False, linear=False, background=False)
+    assert ex.settings["depth"] == DEFAULT_DEPTH == ex.depth_control.value
+    args = build_parser().parse_args(["summarize", "x.npy", "--covariates", "c.csv"])
+    assert args.depth == DEFAULT_DEPTH
 
 
 def test_plotly_widget_internals_we_use_are_present():

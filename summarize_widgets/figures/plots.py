@@ -227,18 +227,28 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     df : DataFrame
         The subgroup table (columns ``subgroup, rule, n_units, share, mean, lower, upper,
         prob_positive``; ``attrs`` may hold ``level``, ``interval``, ``label``).
-    highlight : subgroup id, optional
-        Drawn in ``ACCENT`` with a shaded row.
+    highlight : subgroup id or list of ids, optional
+        Drawn in ``ACCENT`` with a shaded row (several: the subgroups inside a selected
+        inner node of the tree).
     draws : mapping subgroup id -> ndarray (n_draws,), optional
         Posterior draws per subgroup, drawn as violins behind the intervals.
     pinned : sequence of subgroup ids
         Rows kept on top in the given order (for example "All units"), drawn as diamonds
         and separated by a dotted line.
+
+    Notes
+    -----
+    Complier-weighted tables flag subgroups whose complier share may be near zero
+    (``weak_uptake``): their ratio is unstable, so the effect axis and the colour range
+    are set by the other subgroups; a flagged interval reaching beyond the axis is
+    drawn cut at its edge with an arrow, and its numbers are written beside it.
     """
     df = _require(df, _SUBGROUP_COLS, "table")
     ids = df["subgroup"].tolist()
-    if highlight is not None and highlight not in ids:
-        raise SummaryError(f"`highlight` {highlight!r} is not one of the subgroups: {ids}.")
+    marked = _as_list(highlight)
+    for h in marked:
+        if h not in ids:
+            raise SummaryError(f"`highlight` {h!r} is not one of the subgroups: {ids}.")
     for p in pinned:
         if p not in ids:
             raise SummaryError(f"`pinned` {p!r} is not one of the subgroups: {ids}.")
@@ -248,14 +258,17 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     n = len(ordered)
 
     labels = []
+    compliers = "uptake_share" in ordered.columns
     for r in ordered.itertuples(index=False):
         # Named groups (string ids) show their name, with the query in small print; tree
         # subgroups (node ids) show their rule.
         named = isinstance(r.subgroup, str)
         lab = _wrap(r.subgroup if named else r.rule, 42)
-        if r.subgroup == highlight:
+        if r.subgroup in marked:
             lab = f"<span style='color:{ACCENT}'><b>{lab}</b></span>"
-        small = f"n = {int(r.n_units):,} ({100 * float(r.share):.1f}%)"
+        # Complier-weighted tables: `share` is the subgroup's share of all compliers, not of units.
+        small = (f"n = {int(r.n_units):,} \u00b7 {100 * float(r.share):.1f}% of compliers" if compliers
+                 else f"n = {int(r.n_units):,} ({100 * float(r.share):.1f}%)")
         if named and r.subgroup not in pinned and str(r.rule).strip():
             small = f"{_wrap(r.rule, 60)}<br>{small}"
         if bool(getattr(r, "weak_uptake", False)):  # complier-weighted: the ratio's denominator is near 0
@@ -264,8 +277,7 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     pos, heights = _rows(labels)
 
     traces, shapes = [], []
-    if highlight is not None:
-        k = ordered.index[ordered["subgroup"] == highlight][0]
+    for k in np.flatnonzero(ordered["subgroup"].isin(marked).to_numpy()):
         shapes.append(dict(type="rect", xref="paper", yref="y", x0=0, x1=1, y0=pos[k] - heights[k] / 2,
                            y1=pos[k] + heights[k] / 2, fillcolor=_rgba(ACCENT, 0.10), line_width=0, layer="below"))
     if len(top):
@@ -280,35 +292,102 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
                                half_width=_VIOLIN_SHARE * heights.min()))
 
     level = _level_text(df.attrs)
-    vmax = float(np.nanmax(np.abs(ordered["mean"].to_numpy(float)))) if n else 0.0
-    hover = ("<b>%{customdata[0]}</b><br>posterior mean %{x:.4g}<br>" + level +
+    steady = ~_weak_mask(ordered)
+    basis = ordered[steady] if steady.any() else ordered
+    vmax = float(np.nanmax(np.abs(basis["mean"].to_numpy(float)))) if n else 0.0
+    x_range = _padded_range(basis["lower"], basis["upper"],
+                            *([draws[s] for s in basis["subgroup"]] if draws is not None else []))
+    shown, clip_traces, notes = _clip_to_axis(ordered, "mean", pos, heights, x_range)
+    hover = ("<b>%{customdata[0]}</b><br>posterior mean %{customdata[6]:.4g}<br>" + level +
              " [%{customdata[3]:.4g}, %{customdata[4]:.4g}]<br>P(effect > 0) = %{customdata[5]:.3f}"
-             "<br>%{customdata[1]:,} units (%{customdata[2]:.1%})")
+             + ("<br>%{customdata[1]:,} units; %{customdata[2]:.1%} of all compliers" if compliers
+                else "<br>%{customdata[1]:,} units (%{customdata[2]:.1%})"))
     columns = [[_wrap(r, 60) for r in ordered["rule"]], ordered["n_units"].astype(int),
                ordered["share"].astype(float), ordered["lower"].astype(float),
-               ordered["upper"].astype(float), ordered["prob_positive"].astype(float)]
+               ordered["upper"].astype(float), ordered["prob_positive"].astype(float), ordered["mean"].astype(float)]
     if "uptake_share" in ordered.columns:  # complier-weighted draws
-        hover += "<br>complier share %{customdata[6]:.1%}"
+        hover += "<br>uptake in this subgroup (its complier share) %{customdata[7]:.1%}"
         columns.append(ordered["uptake_share"].astype(float))
     hover += "<extra></extra>"
     custom = np.column_stack(columns).astype(object)
+    is_marked = ordered["subgroup"].isin(marked).to_numpy()
+    is_pinned = ordered["subgroup"].isin(list(pinned)).to_numpy()
     groups = {
-        "subgroups": (~ordered["subgroup"].isin(list(pinned) + [highlight])).to_numpy(),
-        "pinned": (ordered["subgroup"].isin(list(pinned)) & (ordered["subgroup"] != highlight)).to_numpy(),
-        "highlight": (ordered["subgroup"] == highlight).to_numpy(),
+        "subgroups": ~is_pinned & ~is_marked,
+        "pinned": is_pinned & ~is_marked,
+        "highlight": is_marked,
     }
     for name, mask in groups.items():
-        sub = ordered[mask]
+        sub = shown[mask]
         colour = ACCENT if name == "highlight" else INK
-        fill = effect_color(sub["mean"].to_numpy(float), vmax) if name != "pinned" else "white"
+        fill = effect_color(ordered["mean"].to_numpy(float)[mask], vmax) if name != "pinned" else "white"
         traces.append(_interval_rows(sub, pos[mask], value="mean", color=colour, fill=fill,
                                      size=13 if name == "highlight" else 10,
                                      symbol="diamond" if name == "pinned" else "circle",
                                      custom=custom[mask], hover=hover, name=name))
-    return _row_figure(
-        traces, labels=labels, pos=pos, heights=heights, shapes=shapes, title=title,
+    fig = _row_figure(
+        traces + clip_traces, labels=labels, pos=pos, heights=heights, shapes=shapes, title=title,
         x_title=f"{_esc(effect_label or df.attrs.get('label') or 'Effect')} (mean and {level})",
-        x_range=_padded_range(ordered["lower"], ordered["upper"], *(draws.values() if draws is not None else [])))
+        x_range=x_range)
+    if notes:
+        fig.layout.annotations = list(fig.layout.annotations) + notes
+    return fig
+
+
+def _as_list(highlight) -> list:
+    """``highlight`` as a list of subgroup ids (None: none; a string or number is one id)."""
+    if highlight is None:
+        return []
+    if isinstance(highlight, (list, tuple, set, frozenset, np.ndarray, pd.Series, pd.Index)):
+        return [h.item() if isinstance(h, np.generic) else h for h in highlight]
+    return [highlight.item() if isinstance(highlight, np.generic) else highlight]
+
+
+def _weak_mask(df: pd.DataFrame) -> np.ndarray:
+    """Rows flagged for weak uptake (all False when the table has no such column)."""
+    if "weak_uptake" not in df.columns:
+        return np.zeros(len(df), bool)
+    return df["weak_uptake"].fillna(False).astype(bool).to_numpy()
+
+
+def _signed(x: float) -> str:
+    return f"{x:.3g}".replace("-", "\u2212")
+
+
+def _clip_to_axis(d: pd.DataFrame, value: str, pos, heights, x_range):
+    """Rows whose interval leaves ``x_range`` drawn cut at its edge: an arrow there, numbers in text.
+
+    Returns the table to draw (``value``, ``lower``, ``upper`` clamped to the axis), a list
+    with one trace of edge arrows (empty if nothing is cut) and a list of annotations.
+    """
+    lo, hi = x_range
+    values = d[[value, "lower", "upper"]].to_numpy(float)
+    out = d.copy()
+    out[[value, "lower", "upper"]] = np.clip(values, lo, hi)
+    arrows_x, arrows_y, symbols, notes = [], [], [], []
+    for i, (m, low, up) in enumerate(values):
+        if not (low < lo or up > hi or m < lo or m > hi):
+            continue
+        if low < lo:
+            arrows_x.append(lo)
+            arrows_y.append(pos[i])
+            symbols.append("triangle-left")
+        if up > hi:
+            arrows_x.append(hi)
+            arrows_y.append(pos[i])
+            symbols.append("triangle-right")
+        right = up > hi and not low < lo or m > hi
+        notes.append(dict(
+            x=hi if right else lo, y=pos[i] + 0.28 * heights[i], xref="x", yref="y", showarrow=False,
+            xanchor="right" if right else "left", yanchor="middle",
+            text=f"{_signed(m)} [{_signed(low)}, {_signed(up)}]: beyond the axis",
+            font=dict(size=11, color=PALETTE[5]), bgcolor="rgba(255,255,255,0.85)"))
+    if not arrows_x:
+        return out, [], notes
+    arrows = go.Scatter(x=arrows_x, y=arrows_y, mode="markers", name="cut at the axis", showlegend=False,
+                        marker=dict(symbol=symbols, size=12, color=PALETTE[5], line=dict(color="white", width=1)),
+                        hoverinfo="skip")
+    return out, [arrows], notes
 
 
 def plot_subgroups(result, *, level: float = 0.95, interval: str = "equal-tailed", highlight=None,
@@ -692,7 +771,7 @@ def _oriented_contrasts(df: pd.DataFrame, subgroup) -> pd.DataFrame:
     return pd.concat([as_a[_CONTRAST_COLS], flipped], ignore_index=True)
 
 
-def contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) -> go.Figure:
+def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None = None) -> go.Figure:
     """Difference between ``subgroup`` and each other subgroup, with interval and P(A > B).
 
     Parameters
@@ -701,6 +780,10 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) ->
         ``contrasts()`` output (all pairs, or only pairs involving ``subgroup``).
     subgroup : subgroup id
         The subgroup compared with the others (A in "A minus B").
+    weak : collection of subgroup ids, default ()
+        Subgroups flagged for weak uptake (complier-weighted draws): marked in their labels;
+        when A is not one of them, the axis is set by the other contrasts and a flagged
+        contrast's interval is drawn cut at its edge with its numbers written beside it.
     """
     df = _require(df, _CONTRAST_COLS, "contrasts")
     ids = list(dict.fromkeys(df["subgroup_a"].tolist() + df["subgroup_b"].tolist()))
@@ -712,23 +795,34 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, title: str | None = None) ->
     named = isinstance(subgroup, str)
     name_a = subgroup if named else d["rule_a"].iloc[0]
     names_b = [b if isinstance(b, str) else r for b, r in zip(d["subgroup_b"], d["rule_b"])]
-    labels = [_wrap(r, 42) for r in names_b]
+    weak = set(_as_list(list(weak)))
+    flag = f"<br><span style='font-size:11px;color:{PALETTE[5]}'><b>\u2020 weak uptake: unstable</b></span>"
+    flagged = np.array([b in weak for b in d["subgroup_b"]], bool)
+    labels = [_wrap(r, 42) + (flag if f else "") for r, f in zip(names_b, flagged)]
     pos, heights = _rows(labels)
     level = _level_text(df.attrs)
-    vmax = float(np.nanmax(np.abs(d["difference"].to_numpy(float))))
+    steady = ~flagged if subgroup not in weak and (~flagged).any() else np.ones(len(d), bool)
+    vmax = float(np.nanmax(np.abs(d.loc[steady, "difference"].to_numpy(float))))
+    x_range = _padded_range(d.loc[steady, "lower"], d.loc[steady, "upper"])
+    shown, clip_traces, notes = _clip_to_axis(d, "difference", pos, heights, x_range)
     custom = np.column_stack([[_wrap(r, 60) for r in d["rule_b"]], d["lower"].astype(float),
-                              d["upper"].astype(float), d["prob_a_greater"].astype(float)]).astype(object)
-    trace = _interval_rows(d, pos, value="difference", color=INK,
+                              d["upper"].astype(float), d["prob_a_greater"].astype(float),
+                              d["difference"].astype(float)]).astype(object)
+    trace = _interval_rows(shown, pos, value="difference", color=INK,
                            fill=effect_color(d["difference"].to_numpy(float), vmax), size=10, custom=custom,
-                           name="contrasts", hover=("minus <b>%{customdata[0]}</b><br>difference %{x:.4g}<br>" + level +
-                          " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(A > B) = %{customdata[3]:.3f}"
+                           name="contrasts", hover=("minus <b>%{customdata[0]}</b><br>difference %{customdata[4]:.4g}<br>"
+                          + level + " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(A > B) = %{customdata[3]:.3f}"
                           "<extra></extra>"))
     head = f"A: <span style='color:{ACCENT}'><b>{_wrap(name_a, 70)}</b></span>"
+    if subgroup in weak:
+        head += f" <span style='font-size:12px;color:{PALETTE[5]}'><b>\u2020 weak uptake: unstable</b></span>"
     top = 90 + 16 * head.count("<br>") if not title else None
-    return _row_figure([trace], labels=labels, pos=pos, heights=heights, top=top, title=title,
-                       title_markup=None if title else f"{head}<br>minus each other subgroup B",
-                       x_title=f"Difference in effect, A minus B (mean and {level})",
-                       x_range=_padded_range(d["lower"], d["upper"]))
+    fig = _row_figure([trace] + clip_traces, labels=labels, pos=pos, heights=heights, top=top, title=title,
+                      title_markup=None if title else f"{head}<br>minus each other subgroup B",
+                      x_title=f"Difference in effect, A minus B (mean and {level})", x_range=x_range)
+    if notes:
+        fig.layout.annotations = list(fig.layout.annotations) + notes
+    return fig
 
 
 def plot_contrasts(result, subgroup, *, level: float = 0.95, interval: str = "equal-tailed",

@@ -26,7 +26,9 @@ import plotly.graph_objects as go
 
 from ..core.validate import SummaryError, check_columns, check_int, check_interval, check_level
 from ..core.draws import EffectDraws
+from ..summaries.bundle import DEFAULT_DEPTH
 from . import panels as P
+from .controls import CovariateChooser, explorer_style, in_control_words
 from .results import Results
 from .tree_view import TreeView, node_records
 from .evidence_panel import EvidencePanel
@@ -62,7 +64,7 @@ class Explorer(widgets.VBox):
     max_depth : int, default 4
         Deepest tree offered by the "Tree depth" control (1 to 8).
     depth : int, optional
-        Depth shown first; default ``min(2, max_depth)``.
+        Depth shown first; default ``min(DEFAULT_DEPTH, max_depth)`` (3, as on the command line).
     min_size : int, optional
         Smallest subgroup in units; default that of :func:`summarize_tree`.
     columns : list of str, optional
@@ -96,7 +98,7 @@ class Explorer(widgets.VBox):
             raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); "
                                f"got {type(draws).__name__}.")
         max_depth = check_int(max_depth, "max_depth", low=1, high=8)
-        depth = min(2, max_depth) if depth is None else check_int(depth, "depth", low=1, high=max_depth)
+        depth = min(DEFAULT_DEPTH, max_depth) if depth is None else check_int(depth, "depth", low=1, high=max_depth)
         level = check_level(level)
         interval = check_interval(interval)
         columns = check_columns(columns, list(draws.covariates.columns))
@@ -210,7 +212,7 @@ class Explorer(widgets.VBox):
     def _build_controls(self, max_depth, level, interval, columns):
         d = self._draws
         kind = "complier-weighted (LATE) draws" if d.is_complier_weighted else "draws"
-        self._header = widgets.HTML(P.header_html(
+        self._header = widgets.HTML(explorer_style() + P.header_html(
             d.label, f"{d.n_draws:,} {kind} \u00d7 {d.n_units:,} units, {d.covariates.shape[1]} covariates"))
         self.depth_control = widgets.IntSlider(value=self._state["depth"], min=1, max=max_depth, step=1,
                                                description="Tree depth", continuous_update=False, style=_WIDE,
@@ -219,20 +221,19 @@ class Explorer(widgets.VBox):
                                               value=level, description="Interval level", style=_WIDE,
                                               layout=widgets.Layout(width="190px"))
         self.interval_control = widgets.ToggleButtons(options=INTERVALS, value=interval, description="Interval type",
-                                                      style={**_WIDE, "button_width": "136px"})
+                                                      style={**_WIDE, "button_width": "146px"})
+        self.interval_control.add_class("swx-interval")
         self.min_size_control = widgets.IntText(value=self._res.tree.min_size, description="Smallest subgroup (units)",
                                                 continuous_update=False, style=_WIDE,
                                                 layout=widgets.Layout(width="270px"))
-        self.columns_control = widgets.SelectMultiple(options=list(d.covariates.columns), value=tuple(columns),
-                                                      rows=min(5, d.covariates.shape[1]), description="Covariates used",
-                                                      style=_WIDE, layout=widgets.Layout(width="330px"))
+        self.columns_control = CovariateChooser(list(d.covariates.columns), tuple(columns))
         self.progress = widgets.FloatProgress(value=0.0, min=0.0, max=1.0, description="Recomputing",
                                               style=_WIDE, layout=widgets.Layout(width="320px", display="none"))
         self.status = widgets.HTML(self._selection_text())
         self.status.add_class("swx-status-line")
         self.tree_view = TreeView()
         for control in (self.depth_control, self.level_control, self.interval_control, self.min_size_control,
-                        self.columns_control, self.progress):
+                        self.progress):
             control.layout.margin = "2px 18px 2px 0"
         row1 = widgets.HBox([self.depth_control, self.level_control, self.interval_control],
                             layout=widgets.Layout(flex_flow="row wrap", align_items="center"))
@@ -288,7 +289,7 @@ class Explorer(widgets.VBox):
             try:
                 handler(change)
             except SummaryError as exc:
-                self._show_error(str(exc))
+                self._show_error(in_control_words(str(exc)))
             except Exception as exc:  # noqa: BLE001 - the output area must not get a traceback
                 self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
         return run
@@ -378,6 +379,7 @@ class Explorer(widgets.VBox):
         self.status.value = P.status_html("Recomputing the summaries (one pass over the draws each)\u2026", tone="busy")
         try:
             min_size = check_int(min_size, "min_size", low=1, high=self._draws.n_units)
+            previous = self._anchor_rule()
             res = Results.compute(self._draws, max_depth=self._res.tree.max_depth, min_size=min_size,
                                   columns=columns, progress=progress, **self._options)
         except SummaryError as exc:
@@ -386,8 +388,8 @@ class Explorer(widgets.VBox):
                 raise
             self._quietly(lambda: (setattr(self.min_size_control, "value", before["min_size"]),
                                    setattr(self.columns_control, "value", tuple(before["columns"]))))
-            self._show_error(f"Could not recompute: {exc} The previous summaries are still shown "
-                             f"(smallest subgroup {before['min_size']:,} units).")
+            self._show_error(f"Could not recompute: {in_control_words(str(exc))} The previous summaries are still "
+                             f"shown (smallest subgroup {before['min_size']:,} units).")
             return
         finally:
             self.progress.layout.display = "none"
@@ -397,7 +399,12 @@ class Explorer(widgets.VBox):
         with self._lock:
             self._res = res
             s = self._state
-            s["selected"] = s["anchor"] = res.standout(s["depth"])
+            # Keep the user's subgroup when the new tree still has it (the same rule); else the standout.
+            kept = _node_with_rule(res, previous)
+            if kept is None:
+                s["selected"] = s["anchor"] = res.standout(s["depth"])
+            else:
+                s["anchor"], s["selected"] = kept, res.follow(kept, s["depth"])
             if self._options["trends"]:
                 names = res.additive.columns if res.additive is not None else []
                 self._quietly(lambda: setattr(self.covariate_control, "options", names))
@@ -421,6 +428,15 @@ class Explorer(widgets.VBox):
             self.min_size_control.value = self._res.tree.min_size
             self.columns_control.value = tuple(self._res.tree.columns)
         self._quietly(move)
+
+    def _anchor_rule(self):
+        """The rule of the node last picked (None for no pick): what a recompute looks for."""
+        anchor = self._state["anchor"]
+        if anchor < 0:
+            return None
+        full = self._res.nodes(self._res.tree.max_depth, 0.95, "equal-tailed")
+        hit = full.loc[full["node"] == anchor, "rule"]
+        return str(hit.iloc[0]) if len(hit) else None
 
     def _show_error(self, text: str) -> None:
         self.status.value = P.status_html(text, tone="error")
@@ -448,15 +464,23 @@ class Explorer(widgets.VBox):
         nodes = self._res.nodes(s["depth"], s["level"], s["interval"])
         leaves = nodes[nodes["is_leaf"]]
         kind = "highest-density" if s["interval"] == "highest-density" else "equal-tailed"
+        weak = self._weak_ids()
+        steady = leaves[~leaves["node"].isin(list(weak))]
+        # The colour range comes from the subgroups whose ratio is stable (all of them if none is).
+        limit = P.vmax_of((steady if len(steady) else leaves)["mean"])
+        compliers = self._draws.is_complier_weighted
+        shares = "units, shares of units and of compliers" if compliers else "units"
 
         def update_view():
             # Quietly: the view's "selected" observer is for clicks, not for the code's own moves.
             with self.tree_view.hold_sync():
-                self.tree_view.nodes = node_records(nodes)
+                self.tree_view.nodes = node_records(nodes, weak=weak)
                 self.tree_view.selected = s["selected"]
-                self.tree_view.colour_limit = P.vmax_of(leaves["mean"])
-                self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show units, posterior "
-                                          f"mean and {100 * s['level']:g}% {kind} interval. "
+                self.tree_view.colour_limit = limit
+                self.tree_view.share_basis = "compliers" if compliers else "units"
+                self.tree_view.interval_label = f"{100 * s['level']:g}% {kind} interval"
+                self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show {shares}, "
+                                          f"posterior mean and {100 * s['level']:g}% {kind} interval. "
                                           "Click a subgroup to select it.")
         self._quietly(update_view)
         self._refresh_status()
@@ -495,10 +519,34 @@ class Explorer(widgets.VBox):
         sel = self._state["selected"]
         return sel if sel in self._res.leaf_ids(self._state["depth"]) else None
 
+    def _highlighted(self) -> list[int]:
+        """The subgroups inside the selected node at the current depth (itself if it is one)."""
+        s = self._state
+        if s["selected"] < 0:
+            return []
+        nodes = self._res.nodes(s["depth"], s["level"], s["interval"])
+        parent = dict(zip(nodes["node"].tolist(), nodes["parent"].tolist()))
+        out = []
+        for leaf in self._res.leaf_ids(s["depth"]):
+            node = leaf
+            while node != -1 and node != s["selected"]:
+                node = parent.get(node, -1)
+            if node == s["selected"]:
+                out.append(leaf)
+        return out
+
+    def _weak_ids(self) -> set[int]:
+        """Subgroups at the current depth flagged for weak uptake (complier-weighted draws)."""
+        s = self._state
+        table = self._res.table(s["depth"], s["level"], s["interval"])
+        if "weak_uptake" not in table.columns:
+            return set()
+        return {int(i) for i in table.loc[table["weak_uptake"].astype(bool), "subgroup"]}
+
     def _draw_effects(self, panel):
         s = self._state
         table = self._res.table(s["depth"], s["level"], s["interval"])
-        self._show(panel, P.subgroups_figure(self.tree, table, highlight=self._highlight(), densities=s["densities"]))
+        self._show(panel, P.subgroups_figure(self.tree, table, highlight=self._highlighted(), densities=s["densities"]))
 
     def _draw_fit(self, panel):
         s = self._state
@@ -526,8 +574,8 @@ class Explorer(widgets.VBox):
     def _draw_table(self, panel):
         s = self._state
         table = self._res.table(s["depth"], s["level"], s["interval"])
-        hit = np.flatnonzero(table["subgroup"].to_numpy() == s["selected"])
-        self._table_html.value = P.table_html(table, selected_row=int(hit[0]) if hit.size else None,
+        hit = np.flatnonzero(np.isin(table["subgroup"].to_numpy(), self._highlighted()))
+        self._table_html.value = P.table_html(table, selected_rows=[int(i) for i in hit],
                                               css_scope=f"swx-table-{self.model_id[:8]}")
 
     def _draw_evidence(self, panel):
@@ -538,9 +586,23 @@ class Explorer(widgets.VBox):
         s = self._state
         sel = self._highlight()
         if sel is None:
-            fig = P.message_figure("Select a subgroup (a coloured box in the tree) to compare it with the others.")
+            inside = self._highlighted()
+            fig = P.message_figure(
+                f"The selected box holds {len(inside)} subgroups (outlined in the tree, marked in the other tabs). "
+                "Select one of them to compare it with the others." if inside else
+                "Select a subgroup (a coloured box in the tree) to compare it with the others.")
         elif len(self._res.leaf_ids(s["depth"])) < 2:
             fig = P.message_figure("Only one subgroup at this depth: nothing to compare.")
         else:
-            fig = P.contrasts_figure(self._res.contrasts(s["depth"], s["level"], s["interval"], sel), sel)
+            fig = P.contrasts_figure(self._res.contrasts(s["depth"], s["level"], s["interval"], sel), sel,
+                                     weak=self._weak_ids())
         self._show(panel, fig)
+
+
+def _node_with_rule(res, rule):
+    """The node of ``res``'s full tree whose rule is ``rule``, or None."""
+    if rule is None:
+        return None
+    full = res.nodes(res.tree.max_depth, 0.95, "equal-tailed")
+    hit = full.loc[full["rule"] == rule, "node"]
+    return int(hit.iloc[0]) if len(hit) else None

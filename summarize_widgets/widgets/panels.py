@@ -107,7 +107,7 @@ def message_figure(text: str, *, height: int = 240) -> go.Figure:
 
 
 def subgroups_figure(tree, table: pd.DataFrame, *, highlight, densities: bool) -> go.Figure:
-    """Subgroup effects with intervals at the tree's current depth; ``highlight`` a node id or None."""
+    """Subgroup effects with intervals at the tree's current depth; ``highlight`` node id(s) or None."""
     draws = None
     if densities:
         mat = tree.leaf_draws
@@ -130,20 +130,20 @@ def coefficients_figure(table: pd.DataFrame) -> go.Figure:
     return _fig.coefficients_figure(table)
 
 
-def contrasts_figure(contrasts: pd.DataFrame, subgroup) -> go.Figure:
-    """The selected subgroup minus each other subgroup."""
-    return _fig.contrasts_figure(contrasts, subgroup)
+def contrasts_figure(contrasts: pd.DataFrame, subgroup, *, weak=()) -> go.Figure:
+    """The selected subgroup minus each other subgroup; ``weak`` the ids flagged for weak uptake."""
+    return _fig.contrasts_figure(contrasts, subgroup, weak=weak)
 
 
-def table_html(table: pd.DataFrame, *, selected_row: int | None, css_scope: str) -> str:
+def table_html(table: pd.DataFrame, *, selected_rows=(), css_scope: str) -> str:
     """The subgroup table as escaped HTML, the selected row shaded.
 
     Parameters
     ----------
     table : DataFrame
         ``TreeSummary.table()`` output.
-    selected_row : int or None
-        0-based row to shade.
+    selected_rows : sequence of int, default ()
+        0-based rows to shade (the selected subgroup, or those inside a selected inner node).
     css_scope : str
         A class name unique to this widget, so the style applies to its own table only.
     """
@@ -159,8 +159,8 @@ def table_html(table: pd.DataFrame, *, selected_row: int | None, css_scope: str)
         f".{scope} caption {{caption-side: top; text-align: left; font-weight: 600; padding: 4px 0;}}",
         f".{scope} .sw-note {{font-size: 12px; color: #555; margin: 2px 0;}}",
     ]
-    if selected_row is not None:
-        style.append(f".{scope} tbody tr:nth-child({int(selected_row) + 1}) {{background: {accent}; font-weight: 600;}}")
+    for row in selected_rows:
+        style.append(f".{scope} tbody tr:nth-child({int(row) + 1}) {{background: {accent}; font-weight: 600;}}")
     body = to_html(table, caption="Subgroups at the chosen depth")
     return f'<div class="{scope}"><style>{" ".join(style)}</style>{body}</div>'
 

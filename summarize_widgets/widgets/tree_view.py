@@ -1,8 +1,8 @@
 """The summary-tree view: an anywidget whose ES module lives in the repository's ``js/``.
 
 The Python side only holds state: the node records of
-:meth:`TreeSummary.nodes` (one dict per node), the selected node id, the
-diverging palette and a caption. Everything drawn is computed in
+:meth:`TreeSummary.nodes` (one dict per node, with the weak-uptake flag), the
+selected node id, the diverging palette, the colour range and a caption. Everything drawn is computed in
 ``js/tree_view.js`` from that state, so the view also renders from saved
 widget state (a static HTML export) with no kernel.
 """
@@ -18,12 +18,16 @@ import traitlets
 from ..core.validate import SummaryError
 from ..figures.palette import EFFECT_PALETTE
 
-__all__ = ["TreeView", "NODE_FIELDS", "node_records", "asset_path", "DEFAULT_PALETTE"]
+__all__ = ["TreeView", "NODE_FIELDS", "RECORD_FIELDS", "node_records", "asset_path", "DEFAULT_PALETTE"]
 
-# Fields the ES module reads from each node record (DEVELOPERS.md, the result contract).
+# Columns of TreeSummary.nodes() the records are made from (DEVELOPERS.md, the result contract).
 NODE_FIELDS = ("node", "parent", "depth", "split", "rule", "is_leaf", "n_units", "share", "mean", "lower", "upper")
+# Fields of every record the ES module reads: the columns above, plus ``unit_share`` (n_units over
+# all units: ``share`` is weighted, a share of compliers for complier-weighted draws) and ``weak``
+# (weak uptake: an unstable ratio, flagged in the box and left out of the colour range).
+RECORD_FIELDS = NODE_FIELDS + ("unit_share", "weak")
 _INT_FIELDS = ("node", "parent", "depth", "n_units")
-_FLOAT_FIELDS = ("share", "mean", "lower", "upper")
+_FLOAT_FIELDS = ("share", "mean", "lower", "upper", "unit_share")
 
 # The figures' diverging scale, so a leaf's fill matches its marker in every figure.
 DEFAULT_PALETTE = EFFECT_PALETTE
@@ -68,18 +72,20 @@ def _clean(value, field):
     return str(value)
 
 
-def node_records(nodes) -> list[dict]:
+def node_records(nodes, weak=()) -> list[dict]:
     """Turn a ``TreeSummary.nodes()`` DataFrame into JSON-ready dicts for the view.
 
     Parameters
     ----------
     nodes : pandas.DataFrame
         One row per node with at least the columns of ``NODE_FIELDS``.
+    weak : iterable of int, default ()
+        Node ids of subgroups flagged for weak uptake (``TreeSummary.table()["weak_uptake"]``).
 
     Returns
     -------
     list of dict
-        One dict per node with exactly the keys of ``NODE_FIELDS``; ids and
+        One dict per node with exactly the keys of ``RECORD_FIELDS``; ids and
         counts as int, numbers as float (None for NaN), flags as bool.
     """
     missing = [f for f in NODE_FIELDS if f not in getattr(nodes, "columns", ())]
@@ -88,10 +94,17 @@ def node_records(nodes) -> list[dict]:
         raise SummaryError(
             f"`nodes` must be a DataFrame with columns {list(NODE_FIELDS)}; missing {missing} (got columns {have})."
         )
-    return [
-        {f: _clean(row[f], f) for f in NODE_FIELDS}
-        for row in nodes.loc[:, list(NODE_FIELDS)].to_dict("records")
-    ]
+    weak = {int(w) for w in weak}
+    rows = nodes.loc[:, list(NODE_FIELDS)].to_dict("records")
+    roots = [r["n_units"] for r in rows if int(r["parent"]) == -1]
+    total = float(roots[0]) if roots and roots[0] else None
+    out = []
+    for row in rows:
+        rec = {f: _clean(row[f], f) for f in NODE_FIELDS}
+        rec["unit_share"] = _clean(rec["n_units"] / total if total else None, "unit_share")
+        rec["weak"] = rec["node"] in weak
+        out.append(rec)
+    return out
 
 
 class TreeView(anywidget.AnyWidget):
@@ -109,9 +122,14 @@ class TreeView(anywidget.AnyWidget):
         Default: figures.py's ``DIVERGING`` and ``MUTED``.
     colour_limit : float, default 0
         The |posterior mean| that gets the full colour; 0 or less means the
-        largest |mean| among the leaves shown.
+        largest |mean| among the leaves shown that are not flagged for weak uptake.
+        Means beyond it are drawn at the end colour and marked.
     caption : str, default ""
         One line above the tree.
+    share_basis : {"units", "compliers"}, default "units"
+        What the records' ``share`` is a share of (the boxes say so).
+    interval_label : str, default ""
+        How the interval is read out, for example "95% equal-tailed interval".
 
     Attributes
     ----------
@@ -127,6 +145,8 @@ class TreeView(anywidget.AnyWidget):
     palette = traitlets.Dict(dict(DEFAULT_PALETTE)).tag(sync=True)
     colour_limit = traitlets.Float(0.0).tag(sync=True)
     caption = traitlets.Unicode("").tag(sync=True)
+    share_basis = traitlets.Enum(("units", "compliers"), "units").tag(sync=True)
+    interval_label = traitlets.Unicode("").tag(sync=True)
     #: Width of the view in px as the browser reports it (0 until drawn); the Explorer sizes its figures by it.
     client_width = traitlets.Int(0).tag(sync=True)
 

@@ -83,10 +83,11 @@ def test_tree_view_shows_one_box_per_subgroup(lab_page):
     from playwright.sync_api import expect
 
     page, explorer, expected = lab_page
-    expect(_leaves(explorer)).to_have_count(len(expected["2"]))
+    # The first view is at the default depth, the command line's (DEFAULT_DEPTH = 3).
+    expect(_leaves(explorer)).to_have_count(len(expected["3"]))
     shown = sorted(int(x) for x in _leaves(explorer).evaluate_all("els => els.map(e => e.dataset.node)"))
-    assert shown == sorted(int(k) for k in expected["2"])
-    assert "subgroups at depth 2" in explorer.locator(".swtv-caption").inner_text()
+    assert shown == sorted(int(k) for k in expected["3"])
+    assert "subgroups at depth 3" in explorer.locator(".swtv-caption").inner_text()
 
 
 def test_depth_control_reshapes_the_tree(lab_page):
@@ -94,12 +95,12 @@ def test_depth_control_reshapes_the_tree(lab_page):
 
     page, explorer, expected = lab_page
     assert len(expected["3"]) != len(expected["2"])
-    _set_depth(page, explorer, 3)
-    expect(_leaves(explorer)).to_have_count(len(expected["3"]))
-    _set_depth(page, explorer, 1)
-    expect(_leaves(explorer)).to_have_count(len(expected["1"]))
     _set_depth(page, explorer, 2)
     expect(_leaves(explorer)).to_have_count(len(expected["2"]))
+    _set_depth(page, explorer, 1)
+    expect(_leaves(explorer)).to_have_count(len(expected["1"]))
+    _set_depth(page, explorer, 3)
+    expect(_leaves(explorer)).to_have_count(len(expected["3"]))
 
 
 def test_clicking_a_leaf_highlights_it_in_the_figure(lab_page, screenshot):
@@ -111,10 +112,10 @@ def test_clicking_a_leaf_highlights_it_in_the_figure(lab_page, screenshot):
     found = page.evaluate(HIGHLIGHTED_RULE)
     before = None if found is None else _plain(found)
     selected = explorer.locator(".swtv-selected").get_attribute("data-node")
-    target = next(k for k in expected["2"] if k != selected and _typeset(expected["2"][k]) != before)
+    target = next(k for k in expected["3"] if k != selected and _typeset(expected["3"][k]) != before)
     explorer.locator(f'.swtv-leaf[data-node="{target}"]').click()
     expect(explorer.locator(".swtv-selected")).to_have_attribute("data-node", target)
-    want = _typeset(expected["2"][target])
+    want = _typeset(expected["3"][target])
     page.wait_for_function(
         f"(want) => {{ const r = ({HIGHLIGHTED_RULE})(); return r !== null && "
         "r.replace(/<br>/g, ' ').replace(/&lt;/g, '<').replace(/&gt;/g, '>').replace(/&amp;/g, '&')"
@@ -148,7 +149,7 @@ def test_every_figure_renders(lab_page, screenshot):
     assert explorer.locator(".js-plotly-plot").count() == len(figure_tabs)
     assert explorer.locator(".js-plotly-plot svg.main-svg").count() >= len(figure_tabs)
     explorer.locator(".widget-tab .lm-TabBar-tab", has_text="Table").click()
-    expect(explorer.locator("table.sw-table tbody tr")).to_have_count(len(expected["2"]))
+    expect(explorer.locator("table.sw-table tbody tr")).to_have_count(len(expected["3"]))
     explorer.locator(".widget-tab .lm-TabBar-tab", has_text="Subgroup effects").click()
 
 
@@ -162,8 +163,11 @@ def test_an_impossible_setting_shows_a_message_in_the_widget(lab_page, screensho
     error = explorer.locator(".swx-status-error")
     expect(error).to_be_visible()
     expect(error).to_contain_text("must be between 1 and")
+    # In the words of the control, not of the Python argument.
+    expect(error).to_contain_text("\u201cSmallest subgroup (units)\u201d")
+    assert "min_size" not in error.inner_text()
     expect(error).to_contain_text("previous summaries are still shown")
-    expect(_leaves(explorer)).to_have_count(len(expected["2"]))
+    expect(_leaves(explorer)).to_have_count(len(expected["3"]))
     assert page.locator(".jp-OutputArea-output[data-mime-type='application/vnd.jupyter.stderr']").count() == 0
     assert "Traceback" not in page.locator(".jp-Notebook").inner_text()
     screenshot(page, "explorer_error.png")

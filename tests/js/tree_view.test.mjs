@@ -20,6 +20,20 @@ import {
   truncate,
   typeset,
   boxLines,
+  sizeLine,
+  ariaLabel,
+  beyondScale,
+  WEAK_MARK,
+  FRAME,
+  frameHeight,
+  fitTransform,
+  fitGeometry,
+  zoomAt,
+  ensureVisible,
+  detailFor,
+  neighbour,
+  depthFirst,
+  leavesUnder,
 } from "../../js/tree_view.js";
 import view from "../../js/tree_view.js";
 
@@ -130,9 +144,13 @@ test("luminance and text colour follow WCAG 2 definitions", () => {
   assert.equal(textColourOn(DEFAULT_PALETTE.stops[4]), "#ffffff");
 });
 
-test("colour limit: largest |mean| among leaves", () => {
+test("colour limit: largest |mean| among leaves, weak-uptake leaves left out", () => {
   const nodes = [rec(0, -1, 0, { mean: 9 }), rec(1, 0, 1, { is_leaf: true, mean: -3 }), rec(2, 0, 1, { is_leaf: true, mean: 2 })];
   assert.equal(colourLimit(nodes), 3);
+  const weak = [rec(0, -1, 0), rec(1, 0, 1, { is_leaf: true, mean: -257, weak: true }), rec(2, 0, 1, { is_leaf: true, mean: 20 })];
+  assert.equal(colourLimit(weak), 20);
+  assert.ok(beyondScale(weak[1], 20) && !beyondScale(weak[2], 20));
+  assert.equal(colourLimit([rec(0, -1, 0, { is_leaf: true, mean: -5, weak: true })]), 5, "all flagged: use them");
   assert.equal(colourLimit([rec(0, -1, 0, { is_leaf: true, mean: 0 })]), 1);
   assert.equal(colourLimit([rec(0, -1, 0, { is_leaf: true, mean: null })]), 1);
 });
@@ -183,4 +201,112 @@ test("estimates share decimals: the largest |value| gets three significant digit
   assert.equal(formatEstimate(null, 1, 2), "n/a [1.00, 2.00]");
   assert.equal(formatFixed(-0.0001, 2), "0.00", "no negative zero");
   assert.equal(formatFixed(-1234.5, 1), "\u22121,234.5");
+});
+
+// Depth-3 tree (scikit-learn's depth-first numbering): 0 -> 1 (-> 2, 3 -> (4, 5)), 6 (-> 7, 8).
+const deeper = [
+  rec(0, -1, 0), rec(1, 0, 1), rec(2, 1, 2, { is_leaf: true }), rec(3, 1, 2), rec(4, 3, 3, { is_leaf: true }),
+  rec(5, 3, 3, { is_leaf: true }), rec(6, 0, 1), rec(7, 6, 2, { is_leaf: true }), rec(8, 6, 2, { is_leaf: true }),
+];
+
+test("keyboard: right to the first child, left to the parent, up/down within a column, home/end", () => {
+  assert.equal(neighbour(deeper, 0, "ArrowRight"), 1);
+  assert.equal(neighbour(deeper, 1, "ArrowRight"), 2);
+  assert.equal(neighbour(deeper, 2, "ArrowRight"), null, "a subgroup has no children");
+  assert.equal(neighbour(deeper, 4, "ArrowLeft"), 3);
+  assert.equal(neighbour(deeper, 0, "ArrowLeft"), null);
+  assert.equal(neighbour(deeper, 1, "ArrowDown"), 6, "the sibling");
+  assert.equal(neighbour(deeper, 6, "ArrowUp"), 1);
+  assert.equal(neighbour(deeper, 6, "ArrowDown"), null);
+  assert.equal(neighbour(deeper, 3, "ArrowDown"), 7, "past the last sibling: the next box of the column");
+  assert.equal(neighbour(deeper, 7, "ArrowUp"), 3);
+  assert.equal(neighbour(deeper, 5, "Home"), 0);
+  assert.equal(neighbour(deeper, 0, "End"), 8);
+  assert.equal(neighbour(deeper, 8, "End"), null);
+  assert.equal(neighbour(deeper, 99, "ArrowDown"), 0, "an unknown node starts at the root");
+  assert.equal(neighbour(deeper, 0, "x"), null);
+  assert.equal(neighbour([], 0, "ArrowDown"), null);
+  // Up/Down follow the drawn order: the same rows as the layout.
+  const lay = layoutTree(deeper);
+  const y = new Map(lay.boxes.map((b) => [b.record.node, b.y]));
+  for (const r of deeper) {
+    const down = neighbour(deeper, r.node, "ArrowDown");
+    if (down !== null) assert.ok(y.get(down) > y.get(r.node), `${r.node} -> ${down} goes down`);
+  }
+  assert.deepEqual(depthFirst(deeper).map((r) => r.node), [0, 1, 2, 3, 4, 5, 6, 7, 8]);
+});
+
+test("the subgroups inside a node", () => {
+  assert.deepEqual([...leavesUnder(deeper, 1)].sort(), [2, 4, 5]);
+  assert.deepEqual([...leavesUnder(deeper, 0)].sort(), [2, 4, 5, 7, 8]);
+  assert.deepEqual([...leavesUnder(deeper, 7)], [7]);
+  assert.equal(leavesUnder(deeper, 42).size, 0);
+});
+
+test("fit: the whole layout inside the frame, never enlarged, detail follows the scale", () => {
+  const lay = { width: 1600, height: 3000 };
+  const t = fitTransform(lay, 900, 600);
+  assert.ok(Math.abs(t.scale - 584 / 3000) < 1e-12);
+  assert.ok(t.x >= 0 && t.x + lay.width * t.scale <= 900);
+  assert.ok(t.y >= 0 && t.y + lay.height * t.scale <= 600 + 1e-9);
+  assert.equal(fitTransform({ width: 100, height: 50 }, 900, 600).scale, 1, "small trees keep their size");
+  assert.deepEqual(fitTransform({ width: 0, height: 0 }, 900, 600), { scale: 1, x: 0, y: 0 });
+  assert.equal(frameHeight({ width: 100, height: 50 }, 900), FRAME.minHeight);
+  assert.equal(frameHeight({ width: 100, height: 5000 }, 900), FRAME.maxHeight);
+  assert.equal(frameHeight({ width: 1800, height: 700 }, 908), Math.round(700 * (892 / 1800) + 16));
+  assert.deepEqual(detailFor(1), { lines: 3, font: 12 });
+  assert.equal(detailFor(0.5).lines, 2);
+  assert.equal(detailFor(0.3).lines, 1);
+  assert.equal(detailFor(0.19).lines, 1, "one label in a box about 11 px tall");
+  assert.equal(detailFor(0.1).lines, 0);
+  for (const s of [0.17, 0.25, 0.4, 0.6]) {
+    const d = detailFor(s);
+    assert.ok(d.lines > 0, `some text at scale ${s}`);
+    assert.ok(d.font * s >= (d.lines === 1 ? 8.5 : 9.5) - 1e-9, "text stays readable on screen");
+    assert.ok(d.lines * 1.1 * d.font <= GEOMETRY.height, "and fits its box");
+  }
+});
+
+test("fit geometry: a tall tree gets wider boxes, the frame still holds it", () => {
+  const leaves = [];
+  const nodes = [rec(0, -1, 0)];
+  // A comb: 40 leaves under a chain of inner nodes, 3 columns deep.
+  for (let i = 1; i <= 40; i += 1) nodes.push(rec(100 + i, i <= 20 ? 1 : 2, 2, { is_leaf: true }));
+  nodes.splice(1, 0, rec(1, 0, 1), rec(2, 0, 1));
+  const { geometry, layout, height } = fitGeometry(nodes, 900);
+  assert.ok(geometry.width > GEOMETRY.width);
+  assert.ok(geometry.width <= 3 * GEOMETRY.width);
+  const t = fitTransform(layout, 900, height);
+  assert.ok(layout.width * t.scale <= 900 - 2 * FRAME.pad + 1e-6);
+  assert.ok(layout.height * t.scale <= height - 2 * FRAME.pad + 1e-6);
+  assert.equal(fitGeometry(balanced, 2000).geometry.width, GEOMETRY.width, "a tree drawn at full size keeps its boxes");
+  void leaves;
+});
+
+test("zoom about a point keeps that point still; ensureVisible pans the least", () => {
+  const t = { scale: 0.5, x: 10, y: 20 };
+  const z = zoomAt(t, 2, 300, 200);
+  assert.equal(z.scale, 1);
+  // World point under (300, 200) before: ((300-10)/0.5, (200-20)/0.5) = (580, 360).
+  assert.ok(Math.abs(z.x + 580 * z.scale - 300) < 1e-9 && Math.abs(z.y + 360 * z.scale - 200) < 1e-9);
+  assert.equal(zoomAt(t, 1000, 0, 0).scale, FRAME.maxScale);
+  const size = { width: 200, height: 50 };
+  const inside = ensureVisible({ scale: 1, x: 0, y: 0 }, { x: 100, y: 100 }, size, 800, 400);
+  assert.deepEqual(inside, { scale: 1, x: 0, y: 0 }, "already visible: no move");
+  const below = ensureVisible({ scale: 1, x: 0, y: 0 }, { x: 100, y: 700 }, size, 800, 400, 10);
+  assert.equal(below.y, 400 - 10 - 750);
+  const left = ensureVisible({ scale: 2, x: 0, y: 0 }, { x: -50, y: 0 }, size, 800, 400, 10);
+  assert.equal(left.x, 10 + 100);
+});
+
+test("complier designs: shares named, weak uptake marked and read out", () => {
+  const r = rec(4, 1, 2, { is_leaf: true, n_units: 109, share: 0.0071, unit_share: 0.0545, mean: -257, lower: -589,
+    upper: -39, weak: true, rule: "tenure = renter", split: "tenure = renter" });
+  assert.equal(sizeLine(r, "compliers"), "109 units (5%) \u00b7 1% of compliers");
+  assert.equal(sizeLine(r), "109 units \u00b7 1%");
+  assert.ok(boxLines(r, "compliers")[2].endsWith(` ${WEAK_MARK}`));
+  const said = ariaLabel(r, { basis: "compliers", interval: "95% equal-tailed interval", limit: 64, selected: true });
+  assert.equal(said, "Subgroup: tenure = renter; 109 units, 5% of units, 1% of compliers; posterior mean \u2212257.0, "
+    + "95% equal-tailed interval [\u2212589, \u221239.0]; weak uptake: the estimate is unstable; beyond the colour scale; selected.");
+  assert.ok(ariaLabel(rec(0, -1, 0)).startsWith("All units (split further); 10 units, 10% of units"));
 });
