@@ -332,7 +332,7 @@ class TargetingResult(SummaryResult):
         per_unit = float(np.mean(self._W.sum(axis=1)))
         labels = list(self._info["label"].astype(str))
         frames = []
-        for h, est in enumerate(ESTIMATES):
+        for est in ESTIMATES:
             q = self.curve_draws[est] / per_unit if scale == "per unit" else self.curve_draws[est] * self._scale_by
             order = self.order if est == "in-sample" else self.order_by_half[0]
             stats = self.statistics([("curve", est, scale, k) for k in range(self._K + 1)], q, level=level, interval=interval)
