@@ -44,7 +44,7 @@ from ..core.validate import SummaryError, check_int, check_interval, check_level
 from .base import SummaryResult
 
 __all__ = ["value_of_targeting", "TargetingResult", "offer_gain_draws", "TARGETING_COLUMNS", "TARGETING_SUBGROUP_COLUMNS",
-           "TARGETING_CURVE_COLUMNS", "TARGETING_CAUTION", "ESTIMATES", "COMPARISONS"]
+           "TARGETING_CURVE_COLUMNS", "TARGETING_HALF_COLUMNS", "TARGETING_CAUTION", "ESTIMATES", "COMPARISONS"]
 
 #: The caution every targeting output carries.
 TARGETING_CAUTION = (
@@ -63,7 +63,10 @@ TARGETING_COLUMNS = ("estimate", "comparison", "scale", "share_offered", "n_subg
                      *MC_COLUMNS)
 #: Columns of :meth:`TargetingResult.subgroups`.
 TARGETING_SUBGROUP_COLUMNS = ("subgroup", "label", "rule", "n_units", "share", "gain_per_offer", "lower", "upper",
-                              "prob_benefit", "rank", "offered", "offered_by_half_a", "offered_by_half_b")
+                              "prob_benefit", "rank", "offered", "share_offered_cross_fitted")
+#: Columns of :meth:`TargetingResult.half_subgroups`.
+TARGETING_HALF_COLUMNS = ("half", "subgroup", "label", "rule", "n_units", "gain_per_offer", "lower", "upper",
+                          "prob_benefit", "rank", "offered")
 #: Columns of :meth:`TargetingResult.curve`.
 TARGETING_CURVE_COLUMNS = ("estimate", "step", "offered", "share_offered", *STAT_COLUMNS, "lower_joint",
                            "upper_joint", *MC_COLUMNS)
@@ -120,10 +123,19 @@ def _halves(member: np.ndarray, seed: int) -> np.ndarray:
     return half
 
 
-def _sums(draws: EffectDraws, cells: np.ndarray, n_cells: int, progress=None):
-    """Per draw ``S`` (sum of w T) and ``W`` (sum of w) of every cell, shape (n_draws, n_cells), one pass."""
-    H = np.zeros((draws.n_units, n_cells))
-    H[np.arange(draws.n_units), cells] = 1.0
+def _sums(draws: EffectDraws, blocks, progress=None):
+    """Per draw ``S`` (sum of w T) and ``W`` (sum of w) of every cell of every block, one pass.
+
+    ``blocks`` is a list of (cell per unit, n_cells); a cell of -1 leaves the unit out of that block.
+    Returns one (S, W) pair per block, each of shape (n_draws, n_cells).
+    """
+    sizes = [k for _, k in blocks]
+    H = np.zeros((draws.n_units, sum(sizes)))
+    at = 0
+    for cells, k in blocks:
+        keep = cells >= 0
+        H[np.flatnonzero(keep), at + cells[keep]] = 1.0
+        at += k
     # Complier-weighted draws: block.wt is the outcome ITT times the unit weight, and an offer counts by the
     # unit weight (not by the uptake, which is what block.w holds for them).
     per_draw = draws.has_draw_weights and not draws.is_complier_weighted
@@ -133,7 +145,46 @@ def _sums(draws: EffectDraws, cells: np.ndarray, n_cells: int, progress=None):
         W = red.weights_out
     else:
         W = np.broadcast_to(draws.unit_weights @ H, red.out.shape)
-    return red.out, np.array(W, dtype=np.float64)
+    W = np.array(W, dtype=np.float64)
+    out, at = [], 0
+    for k in sizes:
+        out.append((red.out[:, at:at + k], W[:, at:at + k]))
+        at += k
+    return out
+
+
+def _half_draws(draws: EffectDraws, rows: np.ndarray) -> EffectDraws:
+    """The draws of some units only (a copy of their columns), same label, unit, direction and chains."""
+    cov = draws.covariates.iloc[rows].reset_index(drop=True)
+    w = draws.weights
+    w = None if w is None else (w[rows] if w.ndim == 1 else w[:, rows])
+    kw = {"label": draws.label, "unit": draws.unit or None, "better": draws.better, "chains": draws.n_chains}
+    vals = np.asarray(draws.values[:, rows])
+    if draws.is_complier_weighted:
+        return EffectDraws.from_itt(vals, np.asarray(draws.uptake_values[:, rows]), cov, weights=w, **kw)
+    return EffectDraws(vals, cov, weights=w, **kw)
+
+
+def _half_structure(summary, draws, rows: np.ndarray, member: np.ndarray, info):
+    """The subgroups half ``rows`` chooses on: its own tree (tree summaries) or the same groups.
+
+    Returns (structure, member index of every unit in it, info DataFrame).
+    """
+    from .tree import TreeSummary, summarize_tree
+
+    if not isinstance(summary, TreeSummary):
+        return summary, member, info
+    sub = _half_draws(draws, rows)
+    depth = int(summary.depth)
+    tree = summarize_tree(sub, max_depth=depth, min_size=max(1, summary.min_size // 2), columns=summary.columns,
+                          progress=lambda done, total: None)
+    tree = tree.at_depth(min(depth, tree.max_depth))
+    ids = [int(i) for i in tree.leaf_ids]
+    pos = {node: k for k, node in enumerate(ids)}
+    nodes = tree.assign(draws.covariates).to_numpy()
+    m = np.array([pos[int(u)] for u in nodes], dtype=np.int64)
+    tab = tree.table()[["subgroup", "label", "rule", "n_units", "share"]].reset_index(drop=True)
+    return tree, m, tab
 
 
 def _check_cost(cost) -> float:
@@ -148,6 +199,25 @@ def _check_prob(min_prob) -> float:
     return float(min_prob)
 
 
+def _unit_weights(draws) -> np.ndarray:
+    """A fixed weight per unit: the unit weights, or the per-draw weights averaged over draws."""
+    w = draws.unit_weights
+    return np.asarray(draws.weights, dtype=np.float64).mean(axis=0) if w is None else np.asarray(w, dtype=np.float64)
+
+
+def _per_offer(G: np.ndarray, W: np.ndarray) -> np.ndarray:
+    """Gain per offer ``G / W`` per draw; NaN where a subgroup has no units (weight 0)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(W > 0, G / np.where(W > 0, W, 1.0), np.nan)
+
+
+def _order(per_offer: np.ndarray) -> np.ndarray:
+    """Subgroups best first by posterior mean gain per offer (empty subgroups last; ties keep table order)."""
+    with np.errstate(all="ignore"):
+        m = np.nanmean(per_offer, axis=0) if per_offer.shape[0] else np.zeros(per_offer.shape[1])
+    return np.argsort(-np.nan_to_num(m, nan=-np.inf), kind="stable")
+
+
 def _direction(draws) -> float:
     return 1.0 if draws.better == "higher" else -1.0
 
@@ -160,57 +230,88 @@ class TargetingResult(SummaryResult):
     Attributes
     ----------
     structure : TreeSummary or GroupSummary
-        Whose subgroups are offered.
+        Whose subgroups are offered (in-sample).
+    half_structures : tuple of two summaries
+        The subgroups each half of the units chose its rule on: for a tree, a tree grown on that
+        half's units alone (same depth and columns); for groups, the same groups.
     min_prob, cost : float
         The rule's threshold on the probability of benefit and the cost per offer.
     offered : ndarray of bool, shape (K,)
         The in-sample rule: which subgroups are offered.
-    offered_by_half : ndarray of bool, shape (2, K)
-        The rule chosen on half A (row 0) and on half B (row 1) of the units.
+    half_offered : tuple of two ndarrays of bool
+        The rule each half chose, over its own subgroups.
     gain_draws : dict
         ``(estimate, comparison)`` -> per-draw total gain, shape (n_draws,).
     curve_draws : dict
-        estimate -> per-draw total gain of offering the first k subgroups, shape (n_draws, K + 1).
+        estimate -> per-draw total gain of offering the first k subgroups, shape (n_draws, steps).
     total_weight : float
-        The number of units (weighted) that totals are counted over.
+        The number of units (weighted) totals are counted over.
     """
 
     summary_type = "targeting"
 
-    def __init__(self, structure, info, S, W, S_half, W_half, *, min_prob, cost, seed, scale_by):
+    def __init__(self, structure, info, S, W, halves, *, min_prob, cost, seed, scale_by, half_units):
         draws = structure.draws
+        refit = structure.summary_type == "tree"
         super().__init__(draws, {"structure": structure.summary_type, "min_prob": min_prob, "cost": cost, "seed": seed,
-                                 "n_subgroups": len(info), "cross_fitting": "two halves, stratified by subgroup",
+                                 "n_subgroups": len(info), "cross_fitting": "two halves of the units, stratified by subgroup"
+                                 + ("; a tree grown on each half" if refit else "; the same groups in each half"),
                                  "effect": "intention-to-treat (offer) effect" if draws.is_complier_weighted else "effect"})
         self.structure = structure
         self.min_prob = min_prob
         self.cost = cost
         self.seed = seed
+        self._refit = refit
         self._info = info.reset_index(drop=True)
+        self._half_units = half_units
         b = _direction(draws)
-        # gain per cell, (n_draws, K) and (2, n_draws, K)
-        G = b * S - cost * W
-        Gh = b * S_half - cost * W_half
+        G = b * S - cost * W  # gain per subgroup, (n_draws, K)
         self._G, self._W = G, W
-        self.total_weight = float(np.mean(W.sum(axis=1))) * scale_by
+        per_unit = float(np.mean(W.sum(axis=1)))
+        self._per_unit = per_unit
         self._scale_by = scale_by
-        with np.errstate(divide="ignore", invalid="ignore"):
-            per_offer = np.where(W > 0, G / np.where(W > 0, W, 1.0), np.nan)
-            per_half = np.where(W_half > 0, Gh / np.where(W_half > 0, W_half, 1.0), np.nan)
-        self.gain_per_offer_draws = per_offer
-        self.prob_benefit = np.nanmean(per_offer > 0, axis=0) if per_offer.size else np.zeros(0)
-        prob_half = (per_half > 0).mean(axis=1)  # NaN > 0 is False: a half without units is never offered
+        self.total_weight = per_unit * scale_by
+        self.gain_per_offer_draws = _per_offer(G, W)
+        self.prob_benefit = (self.gain_per_offer_draws > 0).mean(axis=0)  # NaN > 0 is False
         self.offered = self.prob_benefit >= min_prob
-        self.offered_by_half = prob_half >= min_prob
-        # ordering by posterior mean gain per offer (best first); ties keep the table order
-        mean_half = np.nanmean(per_half, axis=1)
-        self.order = np.argsort(-np.nanmean(per_offer, axis=0), kind="stable")
-        self.order_by_half = np.vstack([np.argsort(-np.nan_to_num(mean_half[h], nan=-np.inf), kind="stable")
-                                        for h in (0, 1)])
+        self.order = _order(self.gain_per_offer_draws)
+        K = len(info)
+        self._K = K
         all_g = G.sum(axis=1)
         rule_in = G @ self.offered
-        # half A's rule judged on half B's units, and the other way round
-        rule_cross = Gh[1] @ self.offered_by_half[0] + Gh[0] @ self.offered_by_half[1]
+        Wm = W.mean(axis=0)
+
+        # Cross-fitting: half h chooses on its own units (cells "choose"), is judged on the other half ("judge").
+        self.half_structures = tuple(h["structure"] for h in halves)
+        self._half_info = [h["info"] for h in halves]
+        self.half_gain_per_offer_draws, self.half_prob_benefit, self.half_offered, self.half_order = [], [], [], []
+        rule_cross = np.zeros_like(all_g)
+        share_cross = 0.0
+        n_steps = max(len(h["info"]) for h in halves) + 1
+        curve_cross = np.zeros((G.shape[0], n_steps))
+        curve_share_cross = np.zeros(n_steps)
+        unit_offer = np.zeros(draws.n_units)
+        for h in halves:
+            Gc = b * h["S_choose"] - cost * h["W_choose"]
+            Gj = b * h["S_judge"] - cost * h["W_judge"]
+            Wj = h["W_judge"].mean(axis=0)
+            per = _per_offer(Gc, h["W_choose"])
+            prob = (per > 0).mean(axis=0)
+            offer = prob >= min_prob
+            order = _order(per)
+            self.half_gain_per_offer_draws.append(per)
+            self.half_prob_benefit.append(prob)
+            self.half_offered.append(offer)
+            self.half_order.append(order)
+            rule_cross = rule_cross + Gj @ offer
+            share_cross += float(Wj @ offer)
+            cum = np.hstack([np.zeros((G.shape[0], 1)), np.cumsum(Gj[:, order], axis=1)])
+            cum_w = np.concatenate([[0.0], np.cumsum(Wj[order])])
+            pad = n_steps - cum.shape[1]  # the half with fewer subgroups stays at offer-to-all
+            curve_cross += np.hstack([cum, np.repeat(cum[:, -1:], pad, axis=1)])
+            curve_share_cross += np.concatenate([cum_w, np.repeat(cum_w[-1:], pad)])
+            judge = h["judge"]
+            unit_offer[judge] = offer[h["member"][judge]]
         self.gain_draws = {
             ("in-sample", COMPARISONS[0]): rule_in,
             ("in-sample", COMPARISONS[1]): rule_in - all_g,
@@ -219,25 +320,22 @@ class TargetingResult(SummaryResult):
             ("cross-fitted", COMPARISONS[1]): rule_cross - all_g,
             ("cross-fitted", COMPARISONS[2]): all_g,
         }
-        Wm = W.mean(axis=0)
-        Whm = W_half.mean(axis=1)
-        self._share = {
-            "in-sample": float(Wm @ self.offered / Wm.sum()),
-            "cross-fitted": float((Whm[1] @ self.offered_by_half[0] + Whm[0] @ self.offered_by_half[1]) / Wm.sum()),
-        }
-        self._n_offered = {"in-sample": int(self.offered.sum()),
-                           "cross-fitted": float(self.offered_by_half.sum(axis=1).mean())}
-        K = len(info)
+        self._share = {"in-sample": float(Wm @ self.offered / Wm.sum()), "cross-fitted": share_cross / Wm.sum()}
+        self._n_offered = {"in-sample": float(self.offered.sum()),
+                           "cross-fitted": float(np.mean([o.sum() for o in self.half_offered]))}
+        self._n_subgroups = {"in-sample": float(K), "cross-fitted": float(np.mean([len(o) for o in self.half_offered]))}
+        uw = _unit_weights(draws)
+        member = half_units["member"]
+        #: Per unit: offered by the in-sample rule, and by the cross-fitted rules (its half's rule chosen on the other).
+        self.offered_units = self.offered[member]
+        self.cross_fitted_offered_units = unit_offer.astype(bool)
+        self._cross_share_by_subgroup = (np.bincount(member, weights=uw * unit_offer, minlength=K)
+                                         / np.bincount(member, weights=uw, minlength=K))
         zero = np.zeros((G.shape[0], 1))
-        curve_in = np.hstack([zero, np.cumsum(G[:, self.order], axis=1)])
-        curve_cross = np.hstack([zero, np.cumsum(Gh[1][:, self.order_by_half[0]], axis=1)
-                                 + np.cumsum(Gh[0][:, self.order_by_half[1]], axis=1)])
-        self.curve_draws = {"in-sample": curve_in, "cross-fitted": curve_cross}
-        share_in = np.concatenate([[0.0], np.cumsum(Wm[self.order])]) / Wm.sum()
-        share_cross = np.concatenate([[0.0], np.cumsum(Whm[1][self.order_by_half[0]])
-                                      + np.cumsum(Whm[0][self.order_by_half[1]])]) / Wm.sum()
-        self._curve_share = {"in-sample": share_in, "cross-fitted": share_cross}
-        self._K = K
+        self.curve_draws = {"in-sample": np.hstack([zero, np.cumsum(G[:, self.order], axis=1)]),
+                            "cross-fitted": curve_cross}
+        self._curve_share = {"in-sample": np.concatenate([[0.0], np.cumsum(Wm[self.order])]) / Wm.sum(),
+                             "cross-fitted": curve_share_cross / Wm.sum()}
 
     # -- attributes ------------------------------------------------------------------------
     @property
@@ -254,9 +352,10 @@ class TargetingResult(SummaryResult):
         cost = f", net of a cost of {self.cost:g} per offer" if self.cost else ""
         return (f"Gain = outcome change in the better direction ({better} counts as a gain){cost}, from {what}. "
                 f"Rule: offer the subgroups whose posterior probability of benefit is at least {self.min_prob:g}. "
-                "In-sample: the rule chosen and judged on the same posterior (optimistic). Cross-fitted: the units of "
-                f"every subgroup split at random into two halves (seed {self.seed}); the rule chosen on one half is "
-                "judged on the other, and the other way round.")
+                "In-sample: the subgroups and the rule chosen and judged on the same posterior (optimistic). "
+                f"Cross-fitted: the units of every subgroup split at random into two halves (seed {self.seed}); "
+                + ("a tree grown on one half's units, " if self._refit else "")
+                + "the rule chosen on one half is judged on the other half's units, and the other way round.")
 
     # -- tables --------------------------------------------------------------------------------
     def _attrs(self, level, interval) -> dict:
@@ -276,7 +375,7 @@ class TargetingResult(SummaryResult):
         level = check_level(level)
         interval = check_interval(interval)
         keys, cols, rows = [], [], []
-        per_unit = float(np.mean(self._W.sum(axis=1)))
+        per_unit = self._per_unit
         for est in ESTIMATES:
             for comp in COMPARISONS:
                 g = self.gain_draws[(est, comp)]
@@ -286,7 +385,7 @@ class TargetingResult(SummaryResult):
                     all_vs_none = comp == COMPARISONS[2]
                     rows.append({"estimate": est, "comparison": comp, "scale": scale,
                                  "share_offered": 1.0 if all_vs_none else self._share[est],
-                                 "n_subgroups_offered": float(self._K) if all_vs_none else float(self._n_offered[est])})
+                                 "n_subgroups_offered": self._n_subgroups[est] if all_vs_none else self._n_offered[est]})
         stats = self.statistics(keys, np.column_stack(cols), level=level, interval=interval)
         out = pd.DataFrame(rows)
         for name in (*STAT_COLUMNS, *MC_COLUMNS):
@@ -312,10 +411,36 @@ class TargetingResult(SummaryResult):
         rank[self.order] = np.arange(1, self._K + 1)
         out["rank"] = rank
         out["offered"] = self.offered
-        out["offered_by_half_a"] = self.offered_by_half[0]
-        out["offered_by_half_b"] = self.offered_by_half[1]
+        out["share_offered_cross_fitted"] = self._cross_share_by_subgroup
         out.attrs.update(self._attrs(level, interval))
         return out[list(TARGETING_SUBGROUP_COLUMNS)]
+
+    def half_subgroups(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
+        """The subgroups each half chose its rule on (``half`` "A" or "B"), from that half's units only:
+        gain per offer, ``prob_benefit``, ``rank`` and ``offered`` (the rule judged on the other half)."""
+        from ..core.intervals import credible_interval
+
+        level = check_level(level)
+        interval = check_interval(interval)
+        frames = []
+        for name, info, per, prob, offer, order in zip("AB", self._half_info, self.half_gain_per_offer_draws,
+                                                        self.half_prob_benefit, self.half_offered, self.half_order):
+            f = info.reset_index(drop=True).copy()
+            f.insert(0, "half", name)
+            lo, hi = credible_interval(np.nan_to_num(per), level, interval)
+            with np.errstate(all="ignore"):
+                f["gain_per_offer"] = np.nanmean(per, axis=0)
+            f["lower"] = lo
+            f["upper"] = hi
+            f["prob_benefit"] = prob
+            rank = np.empty(len(order), dtype=int)
+            rank[order] = np.arange(1, len(order) + 1)
+            f["rank"] = rank
+            f["offered"] = offer
+            frames.append(f[list(TARGETING_HALF_COLUMNS)])
+        out = pd.concat(frames, ignore_index=True)
+        out.attrs.update(self._attrs(level, interval))
+        return out
 
     def curve(self, level: float = 0.95, interval: str = "equal-tailed", scale: str = "per unit") -> pd.DataFrame:
         """Gain against share offered when the subgroups are offered best first (by posterior mean).
@@ -329,16 +454,21 @@ class TargetingResult(SummaryResult):
         interval = check_interval(interval)
         if scale not in _SCALES:
             raise SummaryError(f"`scale` must be 'per unit' or 'total'; got {scale!r}.")
-        per_unit = float(np.mean(self._W.sum(axis=1)))
+        per_unit = self._per_unit
         labels = list(self._info["label"].astype(str))
+        half_labels = [list(i["label"].astype(str)) for i in self._half_info]
         frames = []
         for est in ESTIMATES:
             q = self.curve_draws[est] / per_unit if scale == "per unit" else self.curve_draws[est] * self._scale_by
-            order = self.order if est == "in-sample" else self.order_by_half[0]
-            stats = self.statistics([("curve", est, scale, k) for k in range(self._K + 1)], q, level=level, interval=interval)
+            steps = q.shape[1]
+            if est == "in-sample":
+                offered = [", ".join(labels[j] for j in self.order[:k]) for k in range(steps)]
+            else:
+                offered = ["; ".join(f"half {n}'s {', '.join(hl[j] for j in o[:k]) or 'none'}"
+                                     for n, hl, o in zip("AB", half_labels, self.half_order)) for k in range(steps)]
+            stats = self.statistics([("curve", est, scale, k) for k in range(steps)], q, level=level, interval=interval)
             jl, ju = simultaneous_band(q[:, 1:], level)
-            f = pd.DataFrame({"estimate": est, "step": np.arange(self._K + 1),
-                              "offered": [", ".join(labels[j] for j in order[:k]) for k in range(self._K + 1)],
+            f = pd.DataFrame({"estimate": est, "step": np.arange(steps), "offered": offered,
                               "share_offered": self._curve_share[est]})
             for name in STAT_COLUMNS:
                 f[name] = stats[name]
@@ -357,7 +487,7 @@ class TargetingResult(SummaryResult):
         r = tab[(tab["comparison"] == COMPARISONS[0]) & (tab["scale"] == "per unit")].set_index("estimate")
         unit = f" {self.draws.unit}" if self.draws.unit else ""
         pct = f"{level:.0%}"
-        return (f"Offering to the {self._n_offered['in-sample']} of {self._K} subgroups with P(benefit) >= {self.min_prob:g} "
+        return (f"Offering to the {self._n_offered['in-sample']:.0f} of {self._K} subgroups with P(benefit) >= {self.min_prob:g} "
                 f"({self._share['in-sample']:.0%} of units) gains {r.at['in-sample', 'mean']:.3g}{unit} per unit "
                 f"({pct} interval {r.at['in-sample', 'lower']:.3g} to {r.at['in-sample', 'upper']:.3g}) in-sample; "
                 f"cross-fitted {r.at['cross-fitted', 'mean']:.3g} ({r.at['cross-fitted', 'lower']:.3g} to "
@@ -399,18 +529,28 @@ def value_of_targeting(summary, *, min_prob: float = 0.9, cost: float = 0.0, see
     K = len(info)
     draws = summary.draws
     half = _halves(member, seed)
-    S2, W2 = _sums(draws, member * 2 + half, 2 * K, progress)
-    S_half = np.stack([S2[:, 0::2], S2[:, 1::2]])
-    W_half = np.stack([W2[:, 0::2], W2[:, 1::2]])
-    S, W = S_half.sum(axis=0), W_half.sum(axis=0)
+    halves = []
+    for h in (0, 1):
+        struct, m, hinfo = _half_structure(summary, draws, np.flatnonzero(half == h), member, info)
+        halves.append({"structure": struct, "member": m, "info": hinfo, "judge": half != h})
+    blocks = [(member * 2 + half, 2 * K)]
+    for h, d in enumerate(halves):
+        k = len(d["info"])
+        blocks.append((np.where(half == h, d["member"], -1), k))  # choose on half h
+        blocks.append((np.where(half != h, d["member"], -1), k))  # judge on the other half
+    sums = _sums(draws, blocks, progress)
+    S2, W2 = sums[0]
+    S, W = S2[:, 0::2] + S2[:, 1::2], W2[:, 0::2] + W2[:, 1::2]
+    for h, d in enumerate(halves):
+        (d["S_choose"], d["W_choose"]), (d["S_judge"], d["W_judge"]) = sums[1 + 2 * h], sums[2 + 2 * h]
     scale_by = 1.0
     if population is not None:
         if isinstance(population, bool) or not isinstance(population, (int, float, np.integer, np.floating)) \
                 or not np.isfinite(population) or population <= 0:
             raise SummaryError(f"`population` must be a positive number of units; got {population!r}.")
         scale_by = float(population) / float(np.mean(W.sum(axis=1)))
-    return TargetingResult(summary, info, S, W, S_half, W_half, min_prob=min_prob, cost=cost, seed=seed,
-                           scale_by=scale_by)
+    return TargetingResult(summary, info, S, W, halves, min_prob=min_prob, cost=cost, seed=seed, scale_by=scale_by,
+                           half_units={"half": half, "member": member})
 
 
 def offer_gain_draws(draws: EffectDraws, offer, *, cost: float = 0.0) -> np.ndarray:
@@ -443,5 +583,5 @@ def offer_gain_draws(draws: EffectDraws, offer, *, cost: float = 0.0) -> np.ndar
     if m.dtype != bool or m.shape != (draws.n_units,):
         raise SummaryError(f"`offer` must be a boolean array of shape ({draws.n_units},) or a query string; "
                            f"got dtype {m.dtype}, shape {m.shape}.")
-    S, W = _sums(draws, m.astype(np.int64), 2)
+    ((S, W),) = _sums(draws, [(m.astype(np.int64), 2)])
     return (_direction(draws) * S[:, 1] - cost * W[:, 1]) / W.sum(axis=1)
