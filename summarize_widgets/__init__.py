@@ -17,6 +17,7 @@ from .io.load import load_draws
 from .summaries.linear import LinearSummary, summarize_linear
 from .summaries.targeting import TargetingResult, value_of_targeting
 from .summaries.tree import TreeSummary, summarize_tree
+from .summaries.uptake import UptakeDrivers, uptake_drivers
 
 __all__ = [
     "__version__",
@@ -36,6 +37,8 @@ __all__ = [
     "side_by_side",
     "value_of_targeting",
     "TargetingResult",
+    "uptake_drivers",
+    "UptakeDrivers",
     "simulate_retrofit_study",
     "summarize_all",
     "summarize_draws",
