@@ -196,3 +196,17 @@ def test_cross_fitted_gain_is_less_optimistic_than_in_sample_on_average():
           f"optimism (estimate - truth of its rule): in-sample {optimism_in.mean():.2f}, cross-fitted {optimism_cross.mean():.2f}")
     assert cross.mean() < ins.mean()
     assert optimism_cross.mean() < optimism_in.mean()
+
+
+def test_command_line_targeting_prints_both_estimates_and_the_caution(capsys):
+    from summarize_widgets.cli import main
+
+    assert main(["targeting", "--demo", "--cost", "1", "--table", "gain", "--format", "csv"]) == 0
+    out = capsys.readouterr().out
+    assert "cross-fitted" in out and "in-sample" in out
+    assert main(["targeting", "--demo", "--min-prob", "0.8", "--table", "subgroups"]) == 0
+    out = capsys.readouterr().out
+    assert "Cross-fitted" in out and "standards of your field" in out
+    assert main(["targeting", "--demo", "--min-prob", "2"]) == 2
+    err = capsys.readouterr().err
+    assert "--min-prob" in err and len(err.strip().splitlines()) == 1
