@@ -210,3 +210,20 @@ def test_command_line_targeting_prints_both_estimates_and_the_caution(capsys):
     assert main(["targeting", "--demo", "--min-prob", "2"]) == 2
     err = capsys.readouterr().err
     assert "--min-prob" in err and len(err.strip().splitlines()) == 1
+
+
+def test_curve_figure_draws_both_estimates_and_bands(rng):
+    from summarize_widgets.figures import plot_targeting_curve
+
+    X = household_covariates(200, rng)
+    d = sw.EffectDraws(draws_around(_truth(X), 60, rng), X, label="<b>bill</b>")
+    res = value_of_targeting(sw.summarize_tree(d, max_depth=2, min_size=20))
+    fig = plot_targeting_curve(res)
+    names = [t.name for t in fig.data]
+    assert any("simultaneous" in n for n in names) and any("cross-fitted" in n for n in names)
+    ins = next(t for t in fig.data if t.name == "in-sample (posterior mean)")
+    cur = res.curve()
+    np.testing.assert_allclose(ins.y, cur.loc[cur["estimate"] == "in-sample", "mean"])
+    assert "<b>" not in fig.layout.title.text  # user text is escaped
+    with pytest.raises(SummaryError, match="TargetingResult"):
+        plot_targeting_curve(res.structure)
