@@ -48,3 +48,16 @@ def test_report_carries_the_decisions_section(results, tmp_path):
     assert 'href="#sw-decisions"' in page and "Gain of the rule" in page and "Uptake share" in page
     with pytest.raises(sw.SummaryError, match="decisions"):
         write_report(tmp_path / "b", tree=t.structure, decisions={"nonsense": 1}, figures=None)
+
+
+def test_explorer_has_a_decisions_tab_that_follows_its_controls():
+    study = sw.simulate_retrofit_study(300, 100, seed=3)
+    e = sw.Explorer(study.effect_draws())
+    assert "decisions" in e._panels
+    e._draw_panel(e._panels["decisions"])
+    panel = e.decisions_panel
+    assert panel.result is not None and "cross-fitted" in panel.tables.value
+    panel.cost_control.value = 2.5
+    assert panel.result.cost == 2.5
+    panel.min_prob_control.value = 0.6
+    assert panel.result.min_prob == pytest.approx(0.6)
