@@ -33,12 +33,12 @@ def test_summarize_all_gathers_evidence_only_when_asked(bundle):
     assert ev.group_heterogeneity is not None and ev.stability is not None
     assert ev.tree_path is not None and ev.linear_path is not None
     assert [h for h, _ in ev.messages] == ["Heterogeneity (tree subgroups)", "Heterogeneity (pre-specified groups)",
-                                           "Structure stability", "Tree size", "Linear summary size"]
+                                           "Structure stability", "Tree size", "Linear summary size", "Monte Carlo precision"]
     plain = sw.summarize_all(bundle.draws, depth=2, additive=False)
     assert plain.evidence is None
     quick = gather_evidence(bundle.draws, bundle.tree)
     assert quick.stability is None and quick.linear_path is None
-    assert list(quick.tables()) == ["heterogeneity", "size_path_tree"]
+    assert list(quick.tables()) == ["heterogeneity", "size_path_tree", "precision"]
     with pytest.raises(sw.SummaryError, match="`stability_fits`"):
         gather_evidence(bundle.draws, bundle.tree, stability_fits=1)
 
@@ -46,7 +46,7 @@ def test_summarize_all_gathers_evidence_only_when_asked(bundle):
 def test_every_evidence_table_renders_in_every_format(bundle, tmp_path):
     tables = bundle.evidence.tables()
     assert set(tables) == {"heterogeneity", "heterogeneity_groups", "stability", "stability_agreement",
-                           "size_path_tree", "size_path_linear"}
+                           "size_path_tree", "size_path_linear", "precision"}
     for name, (df, caption) in tables.items():
         tex = to_latex(df, caption=caption)
         assert "<wood>" not in tex and "\\toprule" in tex
@@ -69,7 +69,7 @@ def test_report_has_an_evidence_section_with_the_verdicts(bundle):
     section = page[page.index('id="sw-evidence"'):]
     section = section[: section.index("</section>")]
     assert "Heterogeneity supported" in section and "First split" in section
-    assert section.count('class="sw-verdict"') == 5
+    assert section.count('class="sw-verdict"') == 6  # five evidence verdicts and the Monte Carlo precision one
     assert "<wood>" not in page and "oil &amp; &lt;wood&gt;" in page
     assert 'id="sw-evidence"' not in render_report(tree=bundle.tree, figures=None)
 

@@ -152,3 +152,22 @@ def test_bad_input():
         linear_size_path(d, sw.summarize_tree(d, max_depth=1))
     with pytest.raises(sw.SummaryError, match="`tree` must be a TreeSummary"):
         tree_size_path(lin)
+
+
+def test_lars_order_equals_sklearn_lars_path_on_the_explicit_scaled_design():
+    # Reference: scikit-learn's lars_path (Efron et al. 2004) on the n x p weighted, centred, unit-length
+    # columns, against our Gram-only route (lars_path_gram on the p x p Gram matrix).
+    from sklearn.linear_model import lars_path
+
+    rng, X, f = _study()
+    specs = classify_columns(X, ["age", "fuel", "rooms", "noise", "income"])
+    B, terms, _ = linear_design(X, specs)
+    w = rng.uniform(0.5, 2, len(X))
+    sw_ = np.sqrt(w)
+    Xc = B[:, 1:] - (w @ B[:, 1:]) / w.sum()
+    Xs = sw_[:, None] * Xc
+    Xs /= np.linalg.norm(Xs, axis=0)
+    _, active, _ = lars_path(Xs, sw_ * (f - w @ f / w.sum()), method="lar")
+    ours = term_order(B, f, w, order="lars")
+    assert ours[: len(active)] == [int(j) + 1 for j in active]
+    assert sorted(ours) == list(range(1, B.shape[1]))

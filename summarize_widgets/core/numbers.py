@@ -135,14 +135,20 @@ def shortest_up(x: float) -> float:
     return math.ceil(round(x / mag, 9)) * mag
 
 
-def shortest(x) -> str:
-    """The shortest decimal that reads back as ``x`` (``0.1``, ``40``, ``37.83``)."""
+def shortest(x, precision: int | None = 12) -> str:
+    """The shortest decimal that reads back as ``x`` (``0.1``, ``40``, ``37.83``); very small or very
+    large magnitudes in scientific notation (``4.1e-10``, ``2.5e+18``) rather than a row of zeros.
+
+    ``precision`` caps the decimals of the positional form; None keeps every digit needed to read
+    back exactly (rule thresholds, which must select exactly the same units)."""
     if _missing(x):
         return MISSING_TEXT
     x = float(x)
     if x.is_integer() and abs(x) < 1e15:
         return str(int(x))
-    return np.format_float_positional(x, precision=12, unique=True, trim="-")
+    if x != 0 and not 1e-4 <= abs(x) < 1e15:
+        return np.format_float_scientific(x, unique=True, trim="-")
+    return np.format_float_positional(x, precision=precision, unique=True, trim="-")
 
 
 def percent(share, decimals: int = 1, *, minus: str = MINUS) -> str:

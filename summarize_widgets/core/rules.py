@@ -3,13 +3,18 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["nice_threshold", "Condition", "combine"]
+from .design import MISSING
+from .numbers import shortest
+
+__all__ = ["nice_threshold", "Condition", "combine", "SHOWN_LEVELS"]
+
+#: Category labels a rule lists before abbreviating ("street in {a, b, c, d, e and 9,990 more}");
+#: the full sets stay on the result (:meth:`TreeSummary.rule_levels`).
+SHOWN_LEVELS = 5
 
 
 def _fmt(x: float) -> str:
-    if float(x).is_integer() and abs(x) < 1e15:
-        return str(int(x))
-    return np.format_float_positional(x, precision=12, unique=True, trim="-")
+    return shortest(x, precision=None)
 
 
 def nice_threshold(threshold: float, left_max: float, right_min: float, dtype=np.float64) -> str:
@@ -48,8 +53,14 @@ def _round_up(x: float, digits: int) -> float:
 
 
 class Condition:
-    """One edge condition: numeric (``<=`` / ``>``), one value of a 0/1 column (``op="="``,
-    read ``marr = 0``) or categorical (a set of labels)."""
+    """One edge condition.
+
+    ``op`` is ``"<="`` / ``">"`` (numeric, ``value`` the printed threshold), ``"="`` (one value
+    of a 0/1 column, read ``marr = 0``), ``"missing"`` (``age is missing``), ``"observed"``
+    (``age is not missing``), or None with ``labels`` (a set of categories; the label
+    :data:`~summarize_widgets.core.design.MISSING` reads as "missing"). ``with_missing``:
+    units whose value is missing take this edge too (``age > 50 or missing``).
+    """
 
     def __init__(self, column: str, *, op: str | None = None, value: str | None = None, numeric_value: float | None = None,
                  labels: tuple | None = None, with_missing: bool = False):
@@ -60,54 +71,92 @@ class Condition:
         self.labels = labels
         self.with_missing = with_missing
 
-    def text(self) -> str:
-        if self.op == "=":
-            core = f"{self.column} = {self.value}"
-            return f"({core} or missing)" if self.with_missing else core
-        if self.labels is not None:
-            if len(self.labels) == 1:
-                return f"{self.column} = {self.labels[0]}"
-            return f"{self.column} in {{{', '.join(self.labels)}}}"
-        core = f"{self.column} {self.op} {self.value}"
-        return f"({core} or missing)" if self.with_missing else core
+    def text(self, full: bool = False) -> str:
+        """The condition alone (the edge label); ``full`` lists every category of a long set."""
+        return _render(self.column, _State().add(self), full=full, alone=True)
 
 
-def combine(conditions: list[Condition]) -> str:
-    """Join a path's conditions with " & ", merging bounds on the same numeric column
-    (``age > 30 & age <= 50`` reads ``30 < age <= 50``) and keeping the last (narrowest)
-    set of a categorical column."""
-    if not conditions:
-        return "all units"
-    order: list[str] = []
-    state: dict[str, dict] = {}
-    for c in conditions:
-        if c.column not in state:
-            order.append(c.column)
-            state[c.column] = {"lo": None, "hi": None, "labels": None, "missing": None}
-        st = state[c.column]
-        if c.labels is not None or c.op == "=":  # a set of categories, or one value of a 0/1 column
-            st["labels"] = c
-            continue
-        if c.op == ">":
-            if st["lo"] is None or c.numeric_value > st["lo"].numeric_value:
-                st["lo"] = c
-        else:
-            if st["hi"] is None or c.numeric_value < st["hi"].numeric_value:
-                st["hi"] = c
-        # missing values follow every edge only if every edge on the path takes them
-        st["missing"] = c.with_missing if st["missing"] is None else (st["missing"] and c.with_missing)
-    parts = []
-    for col in order:
-        st = state[col]
-        if st["labels"] is not None:
-            parts.append(st["labels"].text())
-            continue
-        lo, hi = st["lo"], st["hi"]
+class _State:
+    """What a path says about one column: bounds, a value set, and whether missing values pass."""
+
+    def __init__(self):
+        self.lo = self.hi = self.labels = None
+        self.missing = None  # None: not restricted; True: missing values pass; False: they do not
+        self.only_missing = False
+
+    def add(self, c: Condition) -> "_State":
+        if c.op == "missing":
+            self.only_missing = True
+            return self
+        if c.op == "observed":
+            self.missing = False
+            return self
+        if c.labels is not None:  # a set of categories (missing ones are a category): keep the narrowest, the last
+            self.labels = c
+            return self
+        if c.op == "=":
+            self.labels = c
+        elif c.op == ">":
+            if self.lo is None or c.numeric_value > self.lo.numeric_value:
+                self.lo = c
+        elif self.hi is None or c.numeric_value < self.hi.numeric_value:
+            self.hi = c
+        # missing values follow the path only if every edge on it takes them
+        self.missing = c.with_missing if self.missing is None else (self.missing and c.with_missing)
+        return self
+
+
+def _label_set(col: str, labels: tuple, full: bool) -> tuple[str, bool]:
+    """``col = a`` / ``col in {a, b}`` (abbreviated past :data:`SHOWN_LEVELS`) and whether MISSING is in the set."""
+    missing = MISSING in labels
+    shown = [str(x) for x in labels if x != MISSING]
+    if not shown:
+        return "", missing
+    if len(shown) == 1:
+        return f"{col} = {shown[0]}", missing
+    if not full and len(shown) > SHOWN_LEVELS + 1:
+        rest = len(shown) - SHOWN_LEVELS
+        return f"{col} in {{{', '.join(shown[:SHOWN_LEVELS])} and {rest:,} more}}", missing
+    return f"{col} in {{{', '.join(shown)}}}", missing
+
+
+def _render(col: str, st: _State, *, full: bool, alone: bool) -> str:
+    if st.only_missing:
+        return f"{col} is missing"
+    if st.labels is not None and st.labels.labels is not None:
+        core, missing = _label_set(col, st.labels.labels, full)
+        if not core:
+            return f"{col} is missing"
+    elif st.labels is not None:  # one value of a 0/1 column
+        core, missing = f"{col} = {st.labels.value}", bool(st.missing)
+    else:
+        lo, hi = st.lo, st.hi
         if lo is not None and hi is not None:
             core = f"{lo.value} < {col} <= {hi.value}"
         elif lo is not None:
             core = f"{col} > {lo.value}"
-        else:
+        elif hi is not None:
             core = f"{col} <= {hi.value}"
-        parts.append(f"({core} or missing)" if st["missing"] else core)
-    return " & ".join(parts)
+        else:
+            return f"{col} is not missing" if st.missing is False else ""
+        missing = bool(st.missing)
+    if not missing:
+        return core
+    return f"{core} or missing" if alone else f"({core} or missing)"
+
+
+def combine(conditions: list[Condition], full: bool = False) -> str:
+    """Join a path's conditions with " & ", merging bounds on the same numeric column
+    (``age > 30 & age <= 50`` reads ``30 < age <= 50``), keeping the last (narrowest) set of a
+    categorical column, and reading missing values as their own condition (``age is missing``,
+    ``age > 50 or missing``; parenthesized beside other columns). ``full`` lists every category
+    of a long set (by default sets past :data:`SHOWN_LEVELS` labels are abbreviated)."""
+    if not conditions:
+        return "all units"
+    state: dict = {}
+    for c in conditions:
+        state.setdefault(c.column, _State()).add(c)
+    alone = [p for p in (_render(col, st, full=full, alone=True) for col, st in state.items()) if p]
+    if len(alone) <= 1:
+        return alone[0] if alone else "all units"
+    return " & ".join(p for p in (_render(col, st, full=full, alone=False) for col, st in state.items()) if p)

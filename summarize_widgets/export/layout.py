@@ -153,6 +153,7 @@ TABLE_COLUMNS = {
     "evidence": ["quantity", "mean", "lower", "upper", "prob_above"],
     "size_path": ["step", "size", "added", "mean", "lower", "upper", "shortfall", "prob_within", "chosen"],
     "stability": ["covariate", "first_split", "in_summary"],
+    "precision": ["summary", "rows", "flagged", "min_ess_bulk", "min_ess_tail", "max_rhat"],
 }
 
 
@@ -167,7 +168,7 @@ def table_type(df, table=None):
         if missing:
             raise SummaryError(f"`df` lacks the columns a {table!r} table needs: {missing}; it has {list(df.columns)}.")
         return table
-    for name in ("size_path", "stability", "evidence", "contrasts", "curves", "fit_r2", "subgroups", "linear"):
+    for name in ("precision", "size_path", "stability", "evidence", "contrasts", "curves", "fit_r2", "subgroups", "linear"):
         if all(c in df.columns for c in TABLE_COLUMNS[name]):
             return name
     raise SummaryError(
@@ -326,7 +327,7 @@ def _layout(df: pd.DataFrame, table: str) -> _Layout:
                          ("ci", (r.lower_joint, r.upper_joint), di)])
         notes.append(_interval_note(df, "the additive summary's effect at each value")
                      + " Simultaneous intervals cover a covariate's whole curve jointly.")
-    elif table in ("evidence", "size_path", "stability"):
+    elif table in ("evidence", "size_path", "stability", "precision"):
         headers, rows, notes = _evidence_layout(df, table, iv)
     else:  # fit_r2
         headers = [("Depth", "Depth", "r"), ("Subgroups", "Subgroups", "r"), ("Summary R\u00b2", "Summary $R^2$", "r"),
@@ -374,6 +375,18 @@ def _evidence_layout(df: pd.DataFrame, kind: str, iv: str):
                          ("text", "yes" if r.chosen else "")])
         notes.append(_interval_note(df, "the summary R² of each nested summary")
                      + " Shortfall: posterior mean of the largest summary's R² minus this one's, draw by draw.")
+    elif kind == "precision":
+        headers = [("Summary", "Summary", "l"), ("Numbers", "Numbers", "r"), ("Flagged", "Flagged", "r"),
+                   ("Smallest ESS (bulk)", "Smallest ESS (bulk)", "r"), ("Smallest ESS (tail)", "Smallest ESS (tail)", "r"),
+                   ("Largest R-hat", "Largest $\\hat{R}$", "r")]
+        for r in df.itertuples(index=False):
+            rhat = ("text", "one chain") if pd.isna(r.max_rhat) else ("text", f"{r.max_rhat:.3f}")
+            rows.append([("text", r.summary), ("int", r.rows), ("int", r.flagged),
+                         ("int", round(r.min_ess_bulk)) if pd.notna(r.min_ess_bulk) else ("text", "NA"),
+                         ("int", round(r.min_ess_tail)) if pd.notna(r.min_ess_tail) else ("text", "NA"), rhat])
+        lim = f"ESS {df.attrs.get('ess_min', 400)} and R-hat {df.attrs.get('rhat_max', 1.01)}"
+        notes.append(f"Monte Carlo precision of every number in the other tables; flagged: beyond {lim} "
+                     "(Vehtari et al. 2021). R-hat needs two chains or more.")
     else:  # stability
         depths = [c for c in df.columns if str(c).startswith("depth_")]
         headers = [("Covariate", "Covariate", "l"), ("First split (depth 1)", "First split (depth 1)", "r")]

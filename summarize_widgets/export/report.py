@@ -157,7 +157,8 @@ def _section_of(table_name: str) -> str:
     """Which report section a table from :func:`summary_tables` belongs to."""
     for prefix, section in (("subgroups", "tree"), ("fit_r2", "tree"), ("contrasts", "tree"), ("groups", "groups"),
                             ("linear", "linear"), ("trends", "additive"), ("heterogeneity", "evidence"),
-                            ("stability", "evidence"), ("size_path", "evidence")):
+                            ("stability", "evidence"), ("size_path", "evidence"),
+                            ("precision", "evidence")):
         if table_name.startswith(prefix):
             return section
     return "extra"

@@ -13,6 +13,7 @@ import pandas as pd
 
 from ..core.validate import SummaryError, check_int, check_interval, check_level
 from .evidence import HeterogeneityEvidence, heterogeneity_evidence, unit_sd_draws
+from .precision import PrecisionCheck, precision_check
 from .size_path import DEFAULT_TOLERANCE, SizePath, linear_size_path, tree_size_path
 from .stability import StabilityCheck, structure_stability
 
@@ -35,6 +36,8 @@ class EvidenceSet:
     tree_path, linear_path : SizePath or None
     stability : StabilityCheck or None
         Present only when requested.
+    precision : PrecisionCheck or None
+        Monte Carlo precision (ESS, R-hat) of every table of the summaries and of the evidence itself.
     """
 
     heterogeneity: HeterogeneityEvidence
@@ -42,6 +45,7 @@ class EvidenceSet:
     tree_path: SizePath | None = None
     linear_path: SizePath | None = None
     stability: StabilityCheck | None = None
+    precision: PrecisionCheck | None = None
     level: float = 0.95
     interval: str = "equal-tailed"
     settings: dict = field(default_factory=dict)
@@ -58,6 +62,8 @@ class EvidenceSet:
             out.append(("Tree size", self.tree_path.message))
         if self.linear_path is not None:
             out.append(("Linear summary size", self.linear_path.message))
+        if self.precision is not None:
+            out.append(("Monte Carlo precision", self.precision.message))
         return out
 
     def tables(self, level: float | None = None, interval: str | None = None) -> dict[str, tuple[pd.DataFrame, str]]:
@@ -80,6 +86,8 @@ class EvidenceSet:
         if self.linear_path is not None:
             out["size_path_linear"] = (self.linear_path.table(level, interval),
                                        "Summary R\u00b2 of nested linear summaries")
+        if self.precision is not None:
+            out["precision"] = (self.precision.table(), "Monte Carlo precision of every table (ESS, R-hat)")
         return out
 
 
@@ -128,7 +136,15 @@ def gather_evidence(draws, tree, *, linear=None, groups=None, stability_fits: in
     lpath = linear_size_path(draws, linear, order=order, tolerance=tolerance) if linear is not None else None
     stab = structure_stability(tree, n_fits=stability_fits, seed=seed, level=level, progress=progress) \
         if stability_fits else None
+    checked = {"subgroups": tree.table(level=level, interval=interval), "heterogeneity": het.table(level, interval)}
+    if linear is not None:
+        checked["linear"] = linear.table(level=level, interval=interval)
+    if groups is not None:
+        checked["groups"] = groups.table(level=level, interval=interval)
+    if tpath is not None:
+        checked["tree size"] = tpath.table(level, interval)
+    prec = precision_check(checked)
     settings = {"summary": "evidence", "threshold": het.threshold, "threshold_rule": het.threshold_rule,
                 "tolerance": tolerance, "order": order, "stability_fits": stability_fits, "seed": seed}
     return EvidenceSet(heterogeneity=het, group_heterogeneity=ghet, tree_path=tpath, linear_path=lpath,
-                       stability=stab, level=level, interval=interval, settings=settings)
+                       stability=stab, precision=prec, level=level, interval=interval, settings=settings)

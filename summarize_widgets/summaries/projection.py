@@ -47,6 +47,11 @@ class ProjectedFit:
         self._keep = keep
 
     @property
+    def design_matrix(self):
+        """The fixed design over the units that take part, shape (n_kept, p) (dense or sparse; do not modify)."""
+        return self._design
+
+    @property
     def kept_units(self) -> np.ndarray:
         """Which units take part in the summary (positive posterior-mean weight), shape (n_units,)."""
         return self._keep

@@ -2,7 +2,7 @@
 
 Linear summary (after the decoupling of shrinkage and selection, Hahn & Carvalho
 2015, JASA): order the terms once, on the posterior mean, by a path (scikit-learn's
-``lars_path``, least-angle regression, Efron et al. 2004; or greedy forward
+``lars_path_gram``, least-angle regression on the p x p Gram matrix, Efron et al. 2004; or greedy forward
 selection), then project every draw onto each nested set ``{intercept, first k
 terms}`` and report the posterior of the summary R^2 for each ``k``.
 
@@ -121,6 +121,61 @@ def _choose(r2: np.ndarray, tolerance: float) -> int:
     return int(np.flatnonzero(short <= tolerance + 1e-12)[0])
 
 
+def _weighted_gram(B: np.ndarray, target: np.ndarray, weights: np.ndarray):
+    """Gram matrix of the weighted, centred non-intercept columns of ``B`` scaled to unit weighted length,
+    their inner products with the centred target, and the scales (one n x p product, O(n p^2))."""
+    W = weights.sum()
+    X = B[:, 1:]
+    mean = (weights @ X) / W
+    # Centred explicitly (not from raw moments, which cancel badly for columns with a large offset).
+    Xc = X - mean
+    XtW = (Xc * weights[:, None]).T
+    G = XtW @ Xc
+    c = XtW @ (target - (weights @ target) / W)
+    scale = np.sqrt(np.clip(np.diag(G), 0.0, None))
+    safe = np.where(scale > 0, scale, 1.0)
+    G = G / np.outer(safe, safe)
+    c = c / safe
+    return G, c, scale, mean
+
+
+def _order_from_gram(G: np.ndarray, c: np.ndarray, order: str, n_samples: int) -> list[int]:
+    """Order of entry (0-based) of the columns whose Gram matrix is ``G`` and correlations with the target ``c``."""
+    p = G.shape[0]
+    entered: list[int] = []
+    if order == "lars" and p:
+        from sklearn.linear_model import lars_path_gram
+
+        _, active, _ = lars_path_gram(Xy=c.copy(), Gram=G.copy(), n_samples=n_samples, method="lar")
+        entered = [int(j) for j in active]
+    # Forward selection (also completes a lars path that stopped early): after the entered columns are
+    # swept out, the residual Gram and correlations are Schur complements, and the gain of column j is
+    # a_jy^2 / a_jj (the rise in explained sum of squares), all in O(p^2) per step.
+    A = np.zeros((p + 1, p + 1))
+    A[:p, :p], A[:p, p], A[p, :p] = G, c, c
+    tiny = 1e-12 * max(float(np.max(np.diag(G))) if p else 1.0, 1e-300)
+
+    def sweep(k):
+        piv = A[k, k]
+        if piv > tiny:
+            A[:] = A - np.outer(A[:, k], A[k, :]) / piv
+        A[k, :] = 0.0
+        A[:, k] = 0.0
+
+    for j in entered:
+        sweep(j)
+    rest = [j for j in range(p) if j not in entered]
+    while rest:
+        d = np.array([A[j, j] for j in rest])
+        num = np.array([A[j, p] for j in rest]) ** 2
+        gain = np.where(d > tiny, num / np.where(d > tiny, d, 1.0), -1.0)
+        j = rest[int(np.argmax(gain))]
+        entered.append(j)
+        rest.remove(j)
+        sweep(j)
+    return entered
+
+
 def term_order(B: np.ndarray, target: np.ndarray, weights: np.ndarray, *, order: str = "lars") -> list[int]:
     """Order of entry of the non-intercept columns of ``B`` (column 0 is the intercept) for ``target``.
 
@@ -129,10 +184,11 @@ def term_order(B: np.ndarray, target: np.ndarray, weights: np.ndarray, *, order:
     B : ndarray, shape (n, p)
     target, weights : ndarray, shape (n,)
     order : {"lars", "forward"}
-        "lars": least-angle regression (scikit-learn ``lars_path``, ``method="lar"``) on the
-        weighted, centred and unit-length-scaled columns (so a covariate's units do not matter);
-        terms that never enter follow in forward-selection order. "forward": greedy forward
+        "lars": least-angle regression (scikit-learn ``lars_path_gram``, ``method="lar"``, Efron et al.
+        2004) on the weighted, centred and unit-length-scaled columns (so a covariate's units do not
+        matter); terms that never enter follow in forward-selection order. "forward": greedy forward
         selection, each step adding the term that raises the weighted R^2 most.
+        Both work on the p x p Gram matrix: one O(n p^2) product, then no more work in n.
 
     Returns
     -------
@@ -141,35 +197,9 @@ def term_order(B: np.ndarray, target: np.ndarray, weights: np.ndarray, *, order:
     """
     if order not in ("lars", "forward"):
         raise SummaryError(f"`order` must be 'lars' or 'forward'; got {order!r}.")
-    sw = np.sqrt(weights)
-    W = weights.sum()
-    Xc = B[:, 1:] - (weights @ B[:, 1:]) / W
-    yc = target - (weights @ target) / W
-    Xs, ys = sw[:, None] * Xc, sw * yc
-    norms = np.linalg.norm(Xs, axis=0)
-    Xs = Xs / np.where(norms > 0, norms, 1.0)
-    entered: list[int] = []
-    if order == "lars":
-        from sklearn.linear_model import lars_path
-
-        _, active, _ = lars_path(Xs, ys, method="lar")
-        entered = [int(j) for j in active]
-    # Forward selection (also completes a lars path that stopped early), by Gram-Schmidt on the rest.
-    resid_cols = Xs.copy()
-    for j in entered:
-        q = resid_cols[:, j] / max(np.linalg.norm(resid_cols[:, j]), 1e-300)
-        resid_cols -= np.outer(q, q @ resid_cols)
-    rest = [j for j in range(Xs.shape[1]) if j not in entered]
-    while rest:
-        cols = resid_cols[:, rest]
-        nrm = np.einsum("ij,ij->j", cols, cols)
-        gain = np.where(nrm > 1e-24, (ys @ cols) ** 2 / np.where(nrm > 1e-24, nrm, 1.0), -1.0)
-        j = rest[int(np.argmax(gain))]
-        entered.append(j)
-        rest.remove(j)
-        q = resid_cols[:, j] / max(np.linalg.norm(resid_cols[:, j]), 1e-300)
-        resid_cols -= np.outer(q, q @ resid_cols)
-    return [j + 1 for j in entered]
+    G, c, _, _ = _weighted_gram(np.asarray(B, dtype=np.float64), np.asarray(target, dtype=np.float64),
+                                np.asarray(weights, dtype=np.float64))
+    return [j + 1 for j in _order_from_gram(G, c, order, B.shape[0])]
 
 
 def linear_size_path(draws, linear, *, order: str = "lars", tolerance: float = DEFAULT_TOLERANCE) -> SizePath:
@@ -198,23 +228,30 @@ def linear_size_path(draws, linear, *, order: str = "lars", tolerance: float = D
     if not isinstance(linear, LinearSummary):
         raise SummaryError(f"`linear` must be a LinearSummary (from summarize_linear); got {type(linear).__name__}.")
     tolerance = _check_tolerance(tolerance)
-    specs = classify_columns(draws.covariates, linear.columns)
-    B, terms, _ = linear_design(draws.covariates, specs)
-    if list(terms) != list(linear.terms) or linear.coef_draws.shape[0] != draws.n_draws:
-        raise SummaryError("`linear` was built from other draws or covariates than `draws`; pass the draws it summarizes.")
     keep = draws.mean_weights > 0
     w = draws.mean_weights[keep]
-    Bk = B[keep]
-    path = term_order(Bk, draws.posterior_mean[keep], w, order=order)
+    design = linear.design_matrix
+    if linear.draws is draws and isinstance(design, np.ndarray) and np.array_equal(linear.kept_units, keep):
+        # The summary's own design (no rebuild); float32 designs are widened for the Gram products.
+        terms, Bk = list(linear.terms), np.asarray(design, dtype=np.float64)
+    else:
+        specs = classify_columns(draws.covariates, linear.columns)
+        B, terms, _ = linear_design(draws.covariates, specs)
+        if list(terms) != list(linear.terms) or linear.coef_draws.shape[0] != draws.n_draws:
+            raise SummaryError("`linear` was built from other draws or covariates than `draws`; pass the draws it summarizes.")
+        Bk = B[keep]
+    if order not in ("lars", "forward"):
+        raise SummaryError(f"`order` must be 'lars' or 'forward'; got {order!r}.")
+    G, c, scale_all, _ = _weighted_gram(Bk, draws.posterior_mean[keep], w)
+    path = [j + 1 for j in _order_from_gram(G, c, order, Bk.shape[0])]
     perm = [0, *path]
     # The intercept is in every nested set, so centring the other columns (weighted) changes no span and
     # leaves their coefficients as they are; scaled to unit weighted length, their Gram matrix is well
-    # conditioned and its Cholesky factor is the R of their QR (computed in O(n p^2), no n x p QR).
+    # conditioned and its Cholesky factor is the R of their QR (one O(n p^2) product, no n x p QR).
+    idx = np.array(path) - 1
     cols = np.array(path)
-    Xc = Bk[:, cols] - (w @ Bk[:, cols]) / w.sum()
-    scale = np.sqrt(w @ (Xc * Xc))
-    Xs = Xc / scale
-    R = np.linalg.cholesky((Xs * w[:, None]).T @ Xs).T
+    scale = scale_all[idx]
+    R = np.linalg.cholesky(G[np.ix_(idx, idx)]).T
     z = (linear.coef_draws[:, cols] * scale) @ R.T  # coordinates of each draw's projection beyond the intercept
     ssr = np.cumsum(z ** 2, axis=1)
     r2_full = np.asarray(linear.fit_r2, dtype=np.float64)  # raises when no draw has heterogeneity

@@ -68,12 +68,25 @@ def _encode(covariates: pd.DataFrame, specs: list[ColumnSpec], rank: dict, edges
     return np.column_stack(cols)
 
 
-def _bin_edges(x: np.ndarray, n_bins: int) -> np.ndarray | None:
-    """Quantile bin edges when a column has more than ``n_bins`` distinct values, else None."""
+# Largest count of distinct values whose ranks float32 (what scikit-learn's trees split on) holds exactly.
+_MAX_RANKS = 2**24
+
+
+def _bin_edges(x: np.ndarray, n_bins: int | None) -> np.ndarray:
+    """The grid a numeric column is ranked on: its distinct observed values, or quantile bin edges
+    when it has more than ``n_bins`` distinct values.
+
+    The tree sees ``searchsorted(grid, x, side="right")``: a rank among the distinct values (or a
+    bin number), never the value itself. CART's splits depend only on the order of a column, so
+    ranking changes no split, but it makes every column equally visible to scikit-learn, which
+    casts to float32 and ignores differences below 1e-7: a dose in grams (1e-9 apart) or a
+    timestamp with a large offset (1.7e9 + seconds) would otherwise never be split on.
+    """
     obs = x[~np.isnan(x)]
-    if pd.Series(obs).nunique() <= n_bins:  # hash-based count: no sort
-        return None
-    return np.unique(np.quantile(obs, np.linspace(0, 1, n_bins + 1)[1:-1], method="lower"))
+    limit = _MAX_RANKS if n_bins is None else n_bins
+    if pd.Series(obs).nunique() <= limit:  # hash-based count: no sort
+        return np.unique(obs)
+    return np.unique(np.quantile(obs, np.linspace(0, 1, limit + 1)[1:-1], method="lower"))
 
 
 class _Fitted:
@@ -177,7 +190,15 @@ class _Fitted:
                 binary[f] = bool(np.isin(v, (0.0, 1.0)).all())
             return binary[f]
 
+        n_missing: dict[int, np.ndarray] = {}
+
+        def missing_at(f):  # per node, how many units with column f missing reach it
+            if f not in n_missing:
+                n_missing[f] = np.bincount(self.unit_leaf, weights=np.isnan(self.X_raw[:, f]), minlength=L) @ self.M
+            return n_missing[f]
+
         conds = {}
+        self.split_value = np.full(t.node_count, np.nan)  # each split's threshold as assign() compares it
         for node in range(t.node_count):
             left, right = t.children_left[node], t.children_right[node]
             if left < 0:
@@ -185,37 +206,81 @@ class _Fitted:
             f = t.feature[node]
             spec = self.specs[f]
             if spec.kind == "numeric":
-                has_missing = spec.n_missing > 0
+                has_missing = spec.n_missing > 0 and missing_at(f)[node] > 0  # missing units reached this split
                 ml = has_missing and bool(t.missing_go_to_left[node])
+                if not np.isfinite(t.threshold[node]):  # scikit-learn's split of observed (left) from missing (right)
+                    conds[left] = Condition(spec.name, op="observed", numeric_value=np.inf)
+                    conds[right] = Condition(spec.name, op="missing", numeric_value=np.inf)
+                    self.split_value[node] = np.inf
+                    continue
                 if is_binary(f):  # a 0/1 indicator reads "= 0" / "= 1", never "<= 0"
                     conds[left] = Condition(spec.name, op="=", value="0", numeric_value=0.0, with_missing=ml)
                     conds[right] = Condition(spec.name, op="=", value="1", numeric_value=1.0,
                                              with_missing=has_missing and not ml)
+                    self.split_value[node] = 0.0
                     continue
                 dtype = self.draws.covariates[spec.name].dtype
-                value = nice_threshold(t.threshold[node], child_max(left, f), child_min(right, f),
-                                       dtype if getattr(dtype, "kind", "f") == "f" else np.float64)
+                dtype = dtype if getattr(dtype, "kind", "f") == "f" else np.dtype(np.float64)
+                # the tree split on ranks: threshold r keeps grid values below grid[floor(r)] on the left
+                grid = self.edges[spec.name]
+                in_units = float(grid[min(max(int(np.floor(t.threshold[node])) - 1, 0), grid.size - 1)])
+                value = nice_threshold(in_units, child_max(left, f), child_min(right, f), dtype)
+                # compared as the data's own type, so assign() and the printed rule agree on every unit
+                self.split_value[node] = float(dtype.type(float(value)))
                 conds[left] = Condition(spec.name, op="<=", value=value, numeric_value=float(value), with_missing=ml)
                 conds[right] = Condition(spec.name, op=">", value=value, numeric_value=float(value),
                                          with_missing=has_missing and not ml)
             else:
                 names = self.names_by_rank[spec.name]
+                self.split_value[node] = float(t.threshold[node])  # categories stay ranked
                 for child in (left, right):
                     ranks = np.flatnonzero(present[f][member[:, child]].any(axis=0))
                     labels = tuple(sorted((names[r] for r in ranks), key=spec.categories.index))
                     conds[child] = Condition(spec.name, labels=labels)
         return conds
 
+    def path_conditions(self, node: int) -> list:
+        """The conditions on the path from the root to ``node``, root first."""
+        path = []
+        k = node
+        while self.parent[k] >= 0:
+            path.append(self.conditions[k])
+            k = self.parent[k]
+        return path[::-1]
+
     def _rules(self) -> list[str]:
-        rules = []
-        for node in range(self.t.node_count):
-            path = []
-            k = node
-            while self.parent[k] >= 0:
-                path.append(self.conditions[k])
-                k = self.parent[k]
-            rules.append(combine(path[::-1]))
-        return rules
+        return [combine(self.path_conditions(node)) for node in range(self.t.node_count)]
+
+    def route(self, covariates: pd.DataFrame) -> np.ndarray:
+        """The deepest node (scikit-learn id) of each row, following the printed rules.
+
+        Numeric splits compare the row's value, in the fitted column's own type, with the printed
+        threshold; missing values go where the fitted tree sends them; categories by their rank.
+        On the fitted units this is the tree's own assignment; on new rows it is what the rules say.
+        """
+        t = self.t
+        cols = []
+        for spec in self.specs:
+            s = covariates[spec.name]
+            if spec.kind == "numeric":
+                dtype = self.draws.covariates[spec.name].dtype
+                x = numeric_values(s)
+                cols.append(x.astype(dtype).astype(np.float64) if getattr(dtype, "kind", "") == "f" else x)
+            else:
+                cols.append(self.rank[spec.name][category_codes(s, spec)].astype(np.float64))
+        V = np.column_stack(cols)
+        node = np.zeros(len(V), dtype=np.int64)
+        rows = np.arange(len(V))
+        for _ in range(int(self.node_depth.max())):
+            inner = t.children_left[node] >= 0
+            if not inner.any():
+                break
+            nd = node[inner]
+            x = V[rows[inner], t.feature[nd]]
+            with np.errstate(invalid="ignore"):
+                go_left = np.where(np.isnan(x), t.missing_go_to_left[nd].astype(bool), x <= self.split_value[nd])
+            node[inner] = np.where(go_left, t.children_left[nd], t.children_right[nd])
+        return node
 
     def nodes_at(self, depth: int) -> np.ndarray:
         """Node ids of the subgroups of the truncation at ``depth`` (in tree order: left to right)."""
@@ -387,6 +452,22 @@ class TreeSummary(SummaryResult):
         self.label_of(subgroup)  # raises naming the valid ids and labels
         return int(subgroup)
 
+    def full_rule(self, subgroup) -> str:
+        """The rule of a subgroup (label or node id) with every category listed.
+
+        Rules in tables, figures and reports abbreviate long category sets after
+        :data:`~summarize_widgets.core.rules.SHOWN_LEVELS` labels ("and 9,990 more").
+        """
+        return combine(self._f.path_conditions(self.node_of(subgroup)), full=True)
+
+    def rule_levels(self, subgroup) -> dict:
+        """Column -> the full tuple of categories a subgroup's rule keeps, for its categorical columns."""
+        out = {}
+        for c in self._f.path_conditions(self.node_of(subgroup)):
+            if c.labels is not None:
+                out[c.column] = tuple(c.labels)  # the last (narrowest) set on the path
+        return out
+
     def _shares(self, ids):
         """Share of units (by unit weight) and, complier-weighted, share of compliers."""
         f = self._f
@@ -523,15 +604,14 @@ class TreeSummary(SummaryResult):
         """The subgroup (node id at the current depth) of each row of ``covariates``."""
         if not isinstance(covariates, pd.DataFrame):
             raise SummaryError(f"`covariates` must be a pandas DataFrame; got {type(covariates).__name__}.")
+        if any(not isinstance(c, str) for c in covariates.columns):  # integer names, as EffectDraws reads them
+            covariates = covariates.rename(columns=str)
         missing = [c for c in self.columns if c not in covariates.columns]
         if missing:
             raise SummaryError(f"`covariates` lacks the column(s) the tree uses: {', '.join(repr(m) for m in missing)}.")
         f = self._f
-        X = _encode(covariates, f.specs, f.rank, f.edges)
-        sk_leaf = f.est.apply(X)
-        pos = np.searchsorted(f.sk_leaves, sk_leaf)
         anc = self._ancestor_at_depth()
-        return pd.Series(anc[f.sk_leaves[pos]], index=covariates.index, name="subgroup")
+        return pd.Series(anc[f.route(covariates)], index=covariates.index, name="subgroup")
 
     def apply_to(self, draws, *, progress=None) -> "TreeSummary":
         """The same subgroups (this tree, frozen) with effects computed from other draws of the same units.
@@ -575,8 +655,10 @@ class TreeSummary(SummaryResult):
     def encoded_covariates(self) -> np.ndarray:
         """The matrix the tree was fitted on, shape (n_units, n_columns), read-only.
 
-        Numeric columns hold their values (or quantile-bin numbers); categorical columns the
-        rank of each category (see :func:`fit_cart`). Columns in ``columns`` order.
+        Numeric columns hold each value's rank among the column's distinct values (or its
+        quantile-bin number), so the fit does not depend on a column's scale or offset;
+        categorical columns the rank of each category (see :func:`fit_cart`). Columns in
+        ``columns`` order.
         """
         v = self._f.X.view()
         v.flags.writeable = False
@@ -695,13 +777,10 @@ def plan_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns
         names_by_rank[spec.name] = [spec.categories[j] for j in order]
     if n_bins is not None:
         n_bins = check_int(n_bins, "n_bins", low=2, high=2**20)
-    edges = {}
-    for spec in specs:
-        if spec.kind == "numeric" and n_bins is not None:
-            e = _bin_edges(numeric_values(draws.covariates[spec.name]), n_bins)
-            if e is not None:
-                edges[spec.name] = e
-    # float32 is what scikit-learn's trees split on anyway (bin numbers and category ranks are exact in it);
+    # every numeric column is ranked on its grid (distinct values or quantile bins): scale and offset free
+    edges = {spec.name: _bin_edges(numeric_values(draws.covariates[spec.name]), n_bins)
+             for spec in specs if spec.kind == "numeric"}
+    # float32 is what scikit-learn's trees split on anyway (ranks, bin numbers and category ranks are exact in it);
     # it halves the matrix kept for rules on millions of units.
     X = _encode(draws.covariates, specs, rank, edges, codes=all_codes).astype(np.float32)
     X_raw = np.column_stack([numeric_values(draws.covariates[sp.name]) if sp.kind == "numeric" else X[:, j]
