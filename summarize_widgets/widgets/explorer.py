@@ -82,7 +82,12 @@ class Explorer(widgets.VBox):
         Extra keyword arguments for :func:`summarize_widgets.summarize_additive`
         (for example ``{"lam": 1.0}`` to skip the smoothing search).
     background : bool, default True
-        Run recomputations triggered from the controls on a worker thread.
+        Show the first view once the tree is computed (one pass over the draws) and compute the
+        linear and additive summaries on a worker thread (one more pass, shared by both); their
+        tabs say "(computing…)" until they are ready. Recomputations triggered from the controls
+        also run there. False computes everything before the explorer is shown (one fused pass).
+        A notebook run headlessly (nbclient, nbconvert) should call :meth:`wait` before its
+        widget state is saved.
 
     Attributes
     ----------
@@ -370,6 +375,9 @@ class Explorer(widgets.VBox):
                         if panel.name in ("trends", "linear", "evidence"):
                             panel.key = None
                         self._tabs.set_title(i, self._tab_title(panel))
+                        if panel.name in ("trends", "linear"):
+                            # Drawn now, seen or not: a saved notebook's widget state then holds them.
+                            self._draw_panel(panel)
                     self._refresh()
             except Exception as exc:  # noqa: BLE001 - a worker thread has no output area to report to
                 self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
