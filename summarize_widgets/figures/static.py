@@ -108,6 +108,27 @@ def _check_size(value, name: str, *, allow_float: bool = False):
     return float(value) if allow_float else int(value)
 
 
+# kaleido prints a PDF through Chromium's printToPDF with 0.1 inch page margins, on a page the size
+# of the figure: Chromium shrinks the figure to the narrower printable width and cuts off what falls
+# below the printable height, so the bottom line of text (an axis title, a note) lost its lower
+# part while PNG and SVG kept it. A CSS page rule with no margin, in kaleido's own page template
+# (its public ``PageGenerator``), makes the printable area the whole page: the PDF page is the
+# figure, drawn at full size, as in the PNG and the SVG.
+_PAGE_STYLE = "<style>@page { margin: 0; } html, body { margin: 0; padding: 0; } img { display: block; }</style>"
+
+
+def _page_template(kaleido, plotly=None):
+    """kaleido's page template with zero page margins (see ``_PAGE_STYLE``); MathJax off (no CDN)."""
+
+    class FullBleedPage(kaleido.PageGenerator):
+        header = kaleido.PageGenerator.header.replace("</style>", "</style>\n        " + _PAGE_STYLE, 1)
+
+    kwargs = {"mathjax": False}
+    if plotly:
+        kwargs["plotly"] = plotly
+    return FullBleedPage(**kwargs)
+
+
 def _render(jobs: list[tuple[dict, dict]]) -> list[bytes]:
     """Render (figure dict, options) pairs in one browser session; returns the bytes of each."""
     try:
@@ -118,9 +139,8 @@ def _render(jobs: list[tuple[dict, dict]]) -> list[bytes]:
     import plotly
 
     plotly_js = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
-    kopts = dict(n=1, mathjax=False, path=browser)
-    if plotly_js.is_file():
-        kopts["plotlyjs"] = str(plotly_js)
+    page = _page_template(kaleido, plotly=str(plotly_js) if plotly_js.is_file() else None)
+    kopts = dict(n=1, path=browser, page_generator=page)
 
     async def run():
         async with kaleido.Kaleido(**kopts) as k:
