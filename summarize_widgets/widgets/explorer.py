@@ -31,6 +31,7 @@ from . import panels as P
 from .controls import CovariateChooser, explorer_style, in_control_words
 from .results import Results
 from .tree_view import TreeView, node_records
+from ..export.layout import subgroup_texts
 from .evidence_panel import EvidencePanel
 
 __all__ = ["Explorer"]
@@ -452,8 +453,10 @@ class Explorer(widgets.VBox):
         if not bool(r["is_leaf"]):
             return P.status_html(f"Selected: {rule} (split further at this depth; click one of its coloured "
                                  "subgroups to compare it with the others).")
-        return P.status_html(f"Selected: {rule} ({int(r['n_units']):,} units): posterior mean and "
-                             f"{100 * s['level']:g}% interval {P.estimate_text(r['mean'], r['lower'], r['upper'])}.")
+        t = subgroup_texts(nodes).loc[row.index[0]]  # the tables' digits (one formatter for every output)
+        label = f"{r['label']}: " if r.get("label") else ""
+        return P.status_html(f"Selected: {label}{rule} ({t['n_text']} units): posterior mean and "
+                             f"{100 * s['level']:g}% interval {t['mean_text']} {t['interval_text']}.")
 
     def _refresh_status(self):
         self.status.value = self._selection_text()
