@@ -331,7 +331,7 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
     notes_html = ('<aside class="sw-shared-notes">' + "".join(f'<p class="sw-note">{esc(n)}</p>' for n in shared)
                   + "</aside>\n") if shared else ""
     cautions = "".join(f"<li>{esc(c)}</li>" for c in CAUTIONS)
-    scripts = f"<script>{_plotly_js()}</script><script>{_PRINT_FIT}</script>" if fig_no else ""
+    scripts = f"<script>{_plotly_js()}\n{_PRINT_FIT}</script>" if fig_no else ""  # one script: the library, then its print fit
     return (
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
         f'<meta http-equiv="Content-Security-Policy" content="{esc(_CSP)}">\n'
