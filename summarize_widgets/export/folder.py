@@ -93,7 +93,7 @@ def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -
             "fit_r2_by_depth": F.plot_fit_by_depth(bundle.tree, level=level, interval=interval)}
     ids = list(bundle.tree.leaf_ids)
     if len(ids) > 1:
-        best = int(bundle.tree.table(level=level, interval=interval).sort_values("mean").iloc[-1]["subgroup"])
+        best = bundle.tree.best_subgroup(level=level, interval=interval)
         figs["contrasts"] = F.plot_contrasts(bundle.tree, best, level=level, interval=interval)
     if bundle.additive is not None:
         figs["trends"] = F.plot_curves(bundle.additive, level=level, interval=interval)

@@ -30,7 +30,7 @@ from .projection import SummaryPlan, checked_r2, no_heterogeneity, offset_centre
 from ..core.passes import LeafSums
 from ..core.rules import Condition, combine, nice_threshold
 from .base import SummaryResult
-from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from .subgroups import UPTAKE_FLOOR, best_position, contrast_table, effect_table, ratio_draws
 from ..core.validate import SummaryError, check_columns, check_int, check_level
 
 __all__ = ["summarize_tree", "plan_tree", "TreeSummary", "default_min_size", "fit_cart"]
@@ -539,6 +539,14 @@ class TreeSummary(SummaryResult):
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
         return out
 
+    def best_subgroup(self, level: float = 0.95, interval: str = "equal-tailed") -> int:
+        """Node id of the subgroup with the largest benefit in the draws' direction (``draws.better``):
+        the lowest posterior mean when lower is better, else the highest; weak-uptake subgroups only
+        when no other is left (:func:`~summarize_widgets.summaries.subgroups.best_position`).
+        ``level`` and ``interval`` matter only for the weak-uptake flag."""
+        table = self.table(level=level, interval=interval)
+        return int(table["subgroup"].iloc[best_position(table)])
+
     def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
         """Every pair of subgroups (or ``subgroup`` against each other): difference per draw,
         its interval and ``P(A > B)``; never two marginal intervals combined."""
@@ -547,7 +555,7 @@ class TreeSummary(SummaryResult):
             subgroup = self.node_of(subgroup)
         return contrast_table(self.leaf_draws, [int(i) for i in ids], [self._f.rules[i] for i in ids],
                               level=level, interval=interval, subgroup=subgroup, attrs=self._attrs(),
-                              labels=[self.labels[int(i)] for i in ids],
+                              labels=[self.labels[int(i)] for i in ids], best=self.best_subgroup(level, interval),
                               stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     # -- summary R^2 ---------------------------------------------------------------------
