@@ -93,7 +93,9 @@ def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -
             "fit_r2_by_depth": F.plot_fit_by_depth(bundle.tree, level=level, interval=interval)}
     ids = list(bundle.tree.leaf_ids)
     if len(ids) > 1:
-        best = int(bundle.tree.table(level=level, interval=interval).sort_values("mean").iloc[-1]["subgroup"])
+        # the subgroup with the largest benefit: the highest mean, or the lowest when lower is better
+        tab = bundle.tree.table(level=level, interval=interval)
+        best = int(tab.sort_values("mean").iloc[0 if tab.attrs.get("better") == "lower" else -1]["subgroup"])
         figs["contrasts"] = F.plot_contrasts(bundle.tree, best, level=level, interval=interval)
     if bundle.additive is not None:
         figs["trends"] = F.plot_curves(bundle.additive, level=level, interval=interval)
