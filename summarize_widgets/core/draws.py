@@ -18,6 +18,9 @@ from .validate import SummaryError, check_covariates, check_int, describe_nonfin
 
 __all__ = ["EffectDraws", "DrawBlock", "ScanRecord", "DIRECTIONS"]
 
+#: Smallest spread of a draw across units that float64 can square with digits to spare (about 1e-140).
+_SMALLEST_SPREAD = 1e-140
+
 # Rows per block in a pass: about 8 MB of float64 at 100,000 units.
 _BLOCK_BYTES = 8 * 2**20
 
@@ -450,6 +453,7 @@ class EffectDraws:
             self._raise_nonfinite([slice(int(r[0]), int(r[-1]) + 1) for r in runs], name)
         if not (np.isfinite(colsum_wt).all() and np.isfinite(self._q).all()):
             self._raise_overflow(name)
+        self._check_underflow(name)
         if self._den is not None:
             self._check_uptake()
         self._colsum_w = colsum_w
@@ -496,6 +500,27 @@ class EffectDraws:
             f"`{name}`{weighted} is too large in magnitude (largest |value| {biggest:.4g}): sums over units or "
             "draws overflow float64. Rescale the values (for example to thousands of the currency unit)."
         )
+
+    def _check_underflow(self, name):
+        """Refuse draws whose spread across units is real but too small for float64 to square.
+
+        A spread below about 1e-140 (effects on a 1e-200 scale) makes every centred sum of squares
+        underflow to zero, and every draw would read "no heterogeneity", which is false. Only draws
+        whose centred sum of squares is that small are read again, and only a few.
+        """
+        with np.errstate(over="ignore", invalid="ignore"):
+            tiny = np.flatnonzero((self._q >= 0) & (self._q < self._wsum * _SMALLEST_SPREAD**2))
+        for r in tiny[:8]:
+            row = np.asarray(self._values[int(r)], dtype=np.float64)
+            biggest = float(np.max(np.abs(row)))
+            spread = float(np.max(row) - np.min(row))
+            if spread > 64 * np.finfo(np.float64).eps * biggest:
+                power = -int(np.floor(np.log10(biggest)))
+                raise SummaryError(
+                    f"`{name}` is too small in magnitude (largest |value| {biggest:.4g} in draw {int(r)}): the squares of "
+                    f"its spread across units underflow float64, so no spread or summary R^2 can be computed. Rescale the "
+                    f"values (for example multiply them by 1e{power})."
+                )
 
     def _check_uptake(self):
         """Refuse negative uptake effects (counted during the scan)."""

@@ -31,7 +31,7 @@ import numpy as np
 
 from .validate import SummaryError
 
-__all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts"]
+__all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts", "centred_block"]
 
 
 class Reducer(Protocol):
@@ -181,6 +181,20 @@ def _run_pass(draws, reducers, progress, threads, rows_per_block) -> None:
         reducers[k].store(None, total_part)
 
 
+def centred_block(block, centre):
+    """``w_si (T_si - c_s)`` of a block: its weighted draws with each draw's constant ``c_s`` taken out.
+
+    Summing these instead of ``w_si T_si`` keeps the digits of the spread when the effects carry a
+    large common offset (1e9 plus effects of 1e-3): the offset never enters a sum.
+    """
+    c = np.asarray(centre, dtype=np.float64)[block.rows, None]
+    wt = np.asarray(block.wt, dtype=np.float64)
+    w = block.w
+    if w is None:
+        return wt - c
+    return wt - c * (np.asarray(w, dtype=np.float64) if w.ndim == 2 else np.asarray(w, dtype=np.float64)[None, :])
+
+
 class LeafSums(BlockReducer):
     """Per draw and group: ``A_sg = sum_{i in g} w_si T_si`` and, with per-draw weights, ``W_sg = sum_{i in g} w_si``.
 
@@ -189,9 +203,13 @@ class LeafSums(BlockReducer):
     codes : ndarray of int, shape (n_units,)
         Group of each unit, 0..n_groups-1 (units with code -1 are left out).
     n_groups : int
+    centre : None or ndarray, shape (n_draws,)
+        Per-draw constants ``c_s``: the sums are then accumulated centred, ``sum_{i in g} w_si (T_si - c_s)``
+        (kept as ``centred_sums``), and ``sums`` is rebuilt from them (see :func:`centred_block`).
     """
 
-    def __init__(self, codes: np.ndarray, n_groups: int):
+    def __init__(self, codes: np.ndarray, n_groups: int, centre=None):
+        self.centre = centre
         codes = np.asarray(codes)
         self._keep = None if (codes >= 0).all() else np.flatnonzero(codes >= 0)
         kept = codes if self._keep is None else codes[self._keep]
@@ -201,6 +219,7 @@ class LeafSums(BlockReducer):
 
     def start(self, n_draws: int) -> None:
         self.sums = np.zeros((n_draws, self.n_groups))
+        self.centred_sums = None if self.centre is None else np.zeros((n_draws, self.n_groups))
         self.weights = None  # filled only when weights vary by draw
 
     def _rows_bincount(self, mat):
@@ -212,15 +231,24 @@ class LeafSums(BlockReducer):
         return out
 
     def partial(self, block):
-        sums = self._rows_bincount(block.wt)
         weights = None
         if block.w is not None and block.w.ndim == 2:
             weights = self._rows_bincount(block.w)
-        return sums, weights
+        if self.centre is None:
+            return self._rows_bincount(block.wt), weights, None
+        centred = self._rows_bincount(centred_block(block, self.centre))
+        if weights is not None:
+            wg = weights
+        else:
+            w = np.ones(self.codes.size) if block.w is None else (block.w if self._keep is None else block.w[self._keep])
+            wg = np.bincount(self.codes, weights=w, minlength=self.n_groups)[None, :]
+        return centred + np.asarray(self.centre, dtype=np.float64)[block.rows, None] * wg, weights, centred
 
     def store(self, rows, part) -> None:
-        sums, weights = part
+        sums, weights, centred = part
         self.sums[rows] = sums
+        if centred is not None:
+            self.centred_sums[rows] = centred
         if weights is not None:
             if self.weights is None:
                 self.weights = np.zeros_like(self.sums)
@@ -228,7 +256,8 @@ class LeafSums(BlockReducer):
 
 
 class LinearMap(BlockReducer):
-    """Per draw: ``wt_s @ H`` for a fixed (n_units, k) matrix H (a frozen linear smoother or projection).
+    """Per draw: ``wt_s @ H`` for a fixed (n_units, k) matrix H (a frozen linear smoother or projection);
+    with ``centre``, ``(wt_s - c_s w_s) @ H``.
 
     With per-draw weights it also stores ``w_s @ H`` when ``with_weights`` is set.
     Accumulates in float64 whatever the draws' dtype, unless H is float32 (a design too large
@@ -241,7 +270,8 @@ class LinearMap(BlockReducer):
     #: Units per float32 product slice (bounds float32 accumulation error to ~2^8 roundings).
     slice_units = 2**16
 
-    def __init__(self, H: np.ndarray, *, with_weights: bool = False):
+    def __init__(self, H: np.ndarray, *, with_weights: bool = False, centre=None):
+        self.centre = centre  # per-draw constants: ``(wt_s - c_s w_s) @ H`` instead (see centred_block)
         H = np.asarray(H)
         self.H = np.ascontiguousarray(H, dtype=np.float32 if H.dtype == np.float32 else np.float64)
         self.with_weights = with_weights
@@ -262,7 +292,7 @@ class LinearMap(BlockReducer):
         return out
 
     def partial(self, block):
-        out = self._product(block.wt)
+        out = self._product(block.wt if self.centre is None else centred_block(block, self.centre))
         w_out = None
         if self.with_weights and block.w is not None:
             w_out = self._product(block.w) if block.w.ndim == 2 else np.broadcast_to(

@@ -93,9 +93,7 @@ def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -
             "fit_r2_by_depth": F.plot_fit_by_depth(bundle.tree, level=level, interval=interval)}
     ids = list(bundle.tree.leaf_ids)
     if len(ids) > 1:
-        # the subgroup with the largest benefit: the highest mean, or the lowest when lower is better
-        tab = bundle.tree.table(level=level, interval=interval)
-        best = int(tab.sort_values("mean").iloc[0 if tab.attrs.get("better") == "lower" else -1]["subgroup"])
+        best = bundle.tree.best_subgroup(level=level, interval=interval)
         figs["contrasts"] = F.plot_contrasts(bundle.tree, best, level=level, interval=interval)
     if bundle.additive is not None:
         figs["trends"] = F.plot_curves(bundle.additive, level=level, interval=interval)

@@ -138,6 +138,10 @@ def _unit_note(df) -> str | None:
     return text[0].upper() + text[1:] + "."
 
 
+def _better_text(df) -> str:
+    return "lower values are better" if df.attrs.get("better") == "lower" else "higher values are better"
+
+
 def _subgroup_label_cell(r, by_id: bool):
     if by_id:
         return ("text", getattr(r, "label", None) or str(r.subgroup))
@@ -219,6 +223,10 @@ def _layout(df: pd.DataFrame, table: str) -> _Layout:
                      + " P(A > B): posterior probability that A's effect exceeds B's.")
         if by_id and has_labels:
             notes.append("Subgroups are labelled as in the subgroup table.")
+        best = df.attrs.get("best_label")
+        if best is not None:
+            side = "lowest" if df.attrs.get("better") == "lower" else "highest"
+            notes.append(f"Largest benefit: {best} (the {side} posterior mean; {_better_text(df)}).")
     elif table == "linear":
         std = "std_mean" in df.columns
         headers = [("Term", "Term", "X"), ("Per unit", "Per unit", "r"), (iv, escape_latex(iv), "c")]

@@ -91,11 +91,10 @@ def default_figures(*, tree=None, groups=None, additive=None, linear=None, level
     if tree is not None:
         out["tree"] = [("Subgroup effects", F.plot_subgroups(tree, level=level, interval=interval)),
                        ("Summary R\u00b2 by depth", F.plot_fit_by_depth(tree, level=level, interval=interval))]
-        table = tree.table(level=level, interval=interval)
-        if len(table) > 1:  # contrasts of the subgroup with the largest posterior mean against the others
-            top = table["subgroup"].iloc[int(table["mean"].to_numpy().argmax())]
-            out["tree"].append(("Differences from the subgroup with the largest effect",
-                                F.plot_contrasts(tree, top, level=level, interval=interval)))
+        if len(tree.leaf_ids) > 1:  # the subgroup with the largest benefit (in the draws' direction) against the others
+            best = tree.best_subgroup(level=level, interval=interval)
+            out["tree"].append((f"Differences from the subgroup with the largest benefit ({tree.label_of(best)})",
+                                F.plot_contrasts(tree, best, level=level, interval=interval)))
     if groups is not None:
         out["groups"] = [("Pre-specified group effects", F.plot_subgroups(groups, level=level, interval=interval))]
     if additive is not None:

@@ -403,8 +403,16 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
     specs = classify_columns(draws.covariates, cols)
     X, info = _features(draws.covariates, specs, keep)
     wk = draws.mean_weights[keep]
+    # The structure (knots, GCV's smoothing choice) is fitted to the standardized posterior mean: GCV's
+    # choice does not change under a + b * target (the intercept is unpenalized), and its sums of
+    # squares would lose every digit to a large common offset (1e9 + small effects) or underflow
+    # on a tiny scale. The draws are projected as they are.
     target = draws.posterior_mean[keep]
     n_kept = target.size
+    target = target - np.average(target, weights=wk)
+    spread = float(np.sqrt(np.average(target * target, weights=wk)))
+    if spread > 0 and np.isfinite(spread):
+        target = target / spread
 
     # The terms are compiled (knots from the data) once; the model matrix and penalties come from pygam.
     gam = _pygam_model(X, info, n_splines, {c: 1.0 for c in cols} if lam is None else lam)

@@ -10,7 +10,7 @@ from ..core.draws import EffectDraws
 from ..core.passes import LinearMap
 from .projection import SummaryPlan, project
 from .base import SummaryResult
-from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from .subgroups import UPTAKE_FLOOR, best_position, contrast_table, effect_table, ratio_draws
 from ..core.query import query_mask
 from ..core.validate import SummaryError
 
@@ -80,10 +80,17 @@ class GroupSummary(SummaryResult):
         return effect_table(cols, self._info(), level=level, interval=interval, uptake=self._uptake,
                             uptake_floor=uptake_floor, attrs=self._attrs())
 
+    def best_subgroup(self, level: float = 0.95, interval: str = "equal-tailed") -> str:
+        """Name of the group with the largest benefit in the draws' direction (``draws.better``), as
+        :meth:`TreeSummary.best_subgroup` picks it."""
+        table = self.table(level=level, interval=interval)
+        return table["subgroup"].iloc[best_position(table)]
+
     def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
         """Every pair of groups (the "All units" row included): difference, interval, P(A > B)."""
         return contrast_table(self.group_draws, self.labels, self.queries, level=level, interval=interval,
                               subgroup=subgroup, attrs=self._attrs(), labels=self.labels,
+                              best=self.best_subgroup(level, interval),
                               stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     def apply_to(self, draws, *, progress=None) -> "GroupSummary":

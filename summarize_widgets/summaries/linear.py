@@ -25,7 +25,7 @@ from scipy.linalg import solve_triangular
 from ..core.design import classify_columns, linear_design
 from ..core.passes import BlockReducer, LinearMap, run_pass
 from . import projection
-from .projection import ProjectedFit, SummaryPlan, project, weighted_map
+from .projection import ProjectedFit, SummaryPlan, no_heterogeneity, offset_centre, project, weighted_map
 from ..core.validate import SummaryError, check_columns
 from ..core.draws import EffectDraws
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
@@ -42,10 +42,6 @@ STANDARD_COLUMNS = ("per_sd", "std_mean", "std_sd", "std_lower", "std_upper", "s
                     "std_mcse_mean", "std_mcse_lower", "std_mcse_upper")
 #: Columns of the linear summary's table, in order.
 LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS, *STANDARD_COLUMNS)
-
-# A draw whose centred total sum of squares is below this share of W * c^2 has no heterogeneity
-# (rounding level; the same rule as the tree summary).
-_NO_HETEROGENEITY = 1e-20
 
 
 class _PseudoSquares(BlockReducer):
@@ -192,7 +188,7 @@ class FrozenProjection:
 
     def reducers(self, draws) -> list:
         """The reducers of the projection pass (to share one pass with other summaries)."""
-        self._lmap = LinearMap(self.H)
+        self._lmap = LinearMap(self.H, centre=offset_centre(draws))
         self._squares = None
         if draws.has_draw_weights:
             self._squares = _PseudoSquares(draws.mean_weights, self.keep, draws.scan.centre)
@@ -206,14 +202,23 @@ class FrozenProjection:
         z = lmap.out
         q = squares.out if squares is not None else draws.scan.centred_squares
         c = draws.scan.centre
-        coef = z @ self.coef_map.T
-        zc = z - c[:, None] * self.q1
-        dc = coef.copy()
-        dc[:, self.intercept] -= c
+        if lmap.centre is None:
+            coef = z @ self.coef_map.T
+            zc = z - c[:, None] * self.q1
+            dc = coef.copy()
+            dc[:, self.intercept] -= c
+        else:
+            # The pass summed centred draws (a large common offset): z is already z^c. Each draw's
+            # summary is the summary of T - c_s plus c_s on the intercept, so an offset is carried
+            # exactly, not shrunk by a penalty's ridge on the constant direction.
+            zc = z
+            dc = zc @ self.coef_map.T
+            coef = dc.copy()
+            coef[:, self.intercept] += c
         resid = zc - dc @ self.R.T
         sse = q - np.einsum("ij,ij->i", zc, zc) + np.einsum("ij,ij->i", resid, resid)
         sst = q - (zc @ self.q1) ** 2 / self.wsum
-        none = sst <= _NO_HETEROGENEITY * self.wsum * np.maximum(c * c, 1e-300)
+        none = no_heterogeneity(sst, self.wsum, c)  # the same scale-free rule as the tree summary
         with np.errstate(divide="ignore", invalid="ignore"):
             r2 = np.where(none, np.nan, 1.0 - np.clip(sse, 0.0, None) / np.where(none, 1.0, sst))
         # Excursions beyond [0, 1] are rounding only (SSE <= SST for a fit with an intercept).

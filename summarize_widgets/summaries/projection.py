@@ -5,8 +5,50 @@ import numpy as np
 
 from ..core.validate import SummaryError
 
-__all__ = ["checked_r2", "r2_note", "ProjectedFit", "SummaryPlan", "project", "weighted_map", "ChunkedDesign",
-           "FLOAT64_MAP_BYTES", "CHUNK_UNITS"]
+__all__ = ["no_heterogeneity", "RESOLUTION", "offset_centre", "checked_r2", "r2_note", "ProjectedFit", "SummaryPlan",
+           "project", "weighted_map", "ChunkedDesign", "FLOAT64_MAP_BYTES", "CHUNK_UNITS"]
+
+
+#: Relative resolution below which a draw's spread across units is rounding, not heterogeneity:
+#: 64 float64 epsilons (about 1.4e-14) of the draw's typical value.
+RESOLUTION = 64 * np.finfo(np.float64).eps
+
+
+def no_heterogeneity(sst, wsum, centre) -> np.ndarray:
+    """Which draws have no heterogeneity: a spread across units at float64's own rounding level.
+
+    ``sst`` is the centred total sum of squares of each draw, ``wsum`` its total weight and
+    ``centre`` its centring constant (a typical value). The test compares the draw's spread
+    ``sqrt(SST / W)`` with the resolution of the numbers themselves, ``RESOLUTION * |centre|``:
+    the only digits that cannot carry information are those float64 rounds away. So it is
+    scale-free (multiplying every effect by 1e-12 or 1e12 changes no verdict) and a large common
+    offset hides only a spread below about 1e-14 of it (1e12 + a spread of 4 is heterogeneous;
+    the old rule, a spread below 1e-10 of the centre, called it constant). A spread of exactly
+    zero is none.
+    """
+    sst = np.asarray(sst, dtype=np.float64)
+    wsum = np.asarray(wsum, dtype=np.float64)
+    scale = RESOLUTION * np.abs(np.asarray(centre, dtype=np.float64))
+    with np.errstate(over="ignore", invalid="ignore"):
+        return ~(sst > wsum * scale * scale)
+
+
+def offset_centre(draws):
+    """Per-draw centring constants when the draws carry a large common offset, else None.
+
+    With ``c_s`` the scan's typical value of draw ``s`` and ``Q_s`` its centred sum of squares,
+    a pass that sums ``w T`` directly keeps about ``log10(Q_s / (c_s^2 W_s)) + 16`` digits of the
+    spread; when that falls below 13 digits (``c_s^2 W_s > 1e3 Q_s``) the projection passes sum
+    ``w (T - c_s)`` instead (docs/method.md section 3, numerics), so effects of 1e9 plus a spread of
+    1e-3 give the summary R^2 of the spread itself. Ordinary draws skip the extra subtraction.
+    """
+    scan = draws.scan
+    c = np.asarray(scan.centre, dtype=np.float64)
+    q = np.asarray(scan.centred_squares, dtype=np.float64)
+    W = np.asarray(scan.weight_sums, dtype=np.float64)
+    with np.errstate(over="ignore", invalid="ignore"):
+        heavy = c * c * W > 1e3 * np.maximum(q, 0.0)
+    return c if bool(np.any(heavy & (c != 0))) else None
 
 
 def checked_r2(r2: np.ndarray) -> np.ndarray:

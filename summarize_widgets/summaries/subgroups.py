@@ -15,7 +15,7 @@ from ..core.validate import SummaryError, check_interval, check_level
 from ..core.intervals import credible_interval
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 
-__all__ = ["ratio_draws", "effect_table", "contrast_table", "UPTAKE_FLOOR", "SUBGROUP_COLUMNS", "CONTRAST_COLUMNS",
+__all__ = ["ratio_draws", "effect_table", "contrast_table", "best_position", "UPTAKE_FLOOR", "SUBGROUP_COLUMNS", "CONTRAST_COLUMNS",
            "UPTAKE_COLUMNS"]
 
 #: A complier-weighted subgroup is flagged when the lower credible limit of its
@@ -84,13 +84,36 @@ def effect_table(columns: dict, info: pd.DataFrame, *, level: float, interval: s
     return out
 
 
+def best_position(table: pd.DataFrame) -> int:
+    """Row position of the subgroup with the largest benefit in a subgroup table.
+
+    The benefit follows the draws' direction (``table.attrs["better"]``, from
+    ``EffectDraws(better=...)``): the lowest posterior mean when lower is better, the highest
+    otherwise. Subgroups flagged for weak uptake (an unstable ratio) are passed over while any
+    other subgroup is left, so an erratic complier ratio is never the reference.
+    """
+    if len(table) == 0:
+        raise SummaryError("The subgroup table is empty: there is no subgroup with the largest benefit.")
+    means = table["mean"].to_numpy(dtype=float)
+    usable = np.isfinite(means)
+    if "weak_uptake" in table.columns:
+        steady = usable & ~table["weak_uptake"].to_numpy(dtype=bool)
+        usable = steady if steady.any() else usable
+    if not usable.any():
+        raise SummaryError("Every subgroup's posterior mean is missing: there is no subgroup with the largest benefit.")
+    score = -means if table.attrs.get("better", "higher") == "lower" else means
+    return int(np.argmax(np.where(usable, score, -np.inf)))
+
+
 def contrast_table(theta: np.ndarray, ids, rules, *, level: float, interval: str, stats, subgroup=None,
-                   attrs=None, labels=None) -> pd.DataFrame:
+                   attrs=None, labels=None, best=None) -> pd.DataFrame:
     """Every pair (a, b) of subgroups: posterior of ``theta_a - theta_b`` per draw (docs/method.md section 6).
 
     With ``subgroup`` given, only the pairs (subgroup, other) are returned. ``stats(keys, diff)``
     turns per-draw differences into the statistics core's columns (the result's ``_columns``).
-    ``labels`` are the printed names of the subgroups (default: the ids as text).
+    ``labels`` are the printed names of the subgroups (default: the ids as text). ``best`` is the
+    id of the subgroup with the largest benefit (:func:`best_position`); the table carries it
+    and its label in ``attrs["best"]`` and ``attrs["best_label"]``.
     """
     level = check_level(level)
     interval = check_interval(interval)
@@ -126,4 +149,7 @@ def contrast_table(theta: np.ndarray, ids, rules, *, level: float, interval: str
             **{name: cols[name] for name in MC_COLUMNS},
         })
     out.attrs.update({"level": level, "interval": interval, **(attrs or {})})
+    if best is not None:
+        out.attrs["best"] = best
+        out.attrs["best_label"] = labels[ids.index(best)]
     return out

@@ -26,11 +26,11 @@ from sklearn.tree import DecisionTreeRegressor
 
 from ..core.draws import EffectDraws
 from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
-from .projection import SummaryPlan, checked_r2, project, r2_note
+from .projection import SummaryPlan, checked_r2, no_heterogeneity, offset_centre, project, r2_note
 from ..core.passes import LeafSums
 from ..core.rules import Condition, combine, nice_threshold
 from .base import SummaryResult
-from .subgroups import UPTAKE_FLOOR, contrast_table, effect_table, ratio_draws
+from .subgroups import UPTAKE_FLOOR, best_position, contrast_table, effect_table, ratio_draws
 from ..core.validate import SummaryError, check_columns, check_int, check_level
 
 __all__ = ["summarize_tree", "plan_tree", "TreeSummary", "default_min_size", "fit_cart"]
@@ -41,11 +41,6 @@ _MAX_DEPTH_LIMIT = 8
 def default_min_size(n_units: int) -> int:
     """Default smallest subgroup: 5% of the units, at most 1,000 and at least 1 (common practice for readable subgroups)."""
     return int(max(1, min(1000, round(0.05 * n_units))))
-
-
-def _no_heterogeneity(sst, wsum, centre):
-    # A draw whose centred total sum of squares is at rounding level has no heterogeneity.
-    return sst <= 1e-20 * wsum * np.maximum(centre * centre, 1e-300) + 0.0
 
 
 def _encode(covariates: pd.DataFrame, specs: list[ColumnSpec], rank: dict, edges: dict, codes=None) -> np.ndarray:
@@ -93,7 +88,7 @@ class _Fitted:
     """Everything shared by a tree and its truncations (computed once)."""
 
     def __init__(self, draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, A, W_draw, W_fixed,
-                 names_by_rank, grown_on=None):
+                 names_by_rank, grown_on=None, A_centred=None):
         self.draws = draws
         self.grown_on = draws.label if grown_on is None else grown_on  # label of the draws the tree was grown on
         self.specs = specs
@@ -130,6 +125,8 @@ class _Fitted:
         self.M = M
         self.unit_leaf = unit_leaf  # index into sk_leaves, per unit
         self.A_nodes = A @ M  # (S, n_nodes)
+        # sums of w (T - c_s), when the pass centred them (large common offsets); else rebuilt from A_nodes
+        self.Ac_nodes = None if A_centred is None else A_centred @ M
         wbar = draws.mean_weights
         self.n_units_node = np.bincount(unit_leaf, minlength=L) @ M
         self.wbar_node = np.bincount(unit_leaf, weights=wbar, minlength=L) @ M
@@ -542,6 +539,14 @@ class TreeSummary(SummaryResult):
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
         return out
 
+    def best_subgroup(self, level: float = 0.95, interval: str = "equal-tailed") -> int:
+        """Node id of the subgroup with the largest benefit in the draws' direction (``draws.better``):
+        the lowest posterior mean when lower is better, else the highest; weak-uptake subgroups only
+        when no other is left (:func:`~summarize_widgets.summaries.subgroups.best_position`).
+        ``level`` and ``interval`` matter only for the weak-uptake flag."""
+        table = self.table(level=level, interval=interval)
+        return int(table["subgroup"].iloc[best_position(table)])
+
     def contrasts(self, level: float = 0.95, interval: str = "equal-tailed", subgroup=None) -> pd.DataFrame:
         """Every pair of subgroups (or ``subgroup`` against each other): difference per draw,
         its interval and ``P(A > B)``; never two marginal intervals combined."""
@@ -550,7 +555,7 @@ class TreeSummary(SummaryResult):
             subgroup = self.node_of(subgroup)
         return contrast_table(self.leaf_draws, [int(i) for i in ids], [self._f.rules[i] for i in ids],
                               level=level, interval=interval, subgroup=subgroup, attrs=self._attrs(),
-                              labels=[self.labels[int(i)] for i in ids],
+                              labels=[self.labels[int(i)] for i in ids], best=self.best_subgroup(level, interval),
                               stats=lambda keys, diff: self.statistics(keys, diff, level=level, interval=interval))
 
     # -- summary R^2 ---------------------------------------------------------------------
@@ -560,13 +565,16 @@ class TreeSummary(SummaryResult):
         ids = f.nodes_at(depth)
         c = d.scan.centre[:, None]
         W = f.W_nodes[:, ids]
-        Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (docs/method.md section 3 numerics)
         Wt = f.W_nodes[:, 0]
-        Atc = f.A_nodes[:, 0] - d.scan.centre * Wt
+        if f.Ac_nodes is not None:  # summed centred in the pass: every digit of the spread kept
+            Ac, Atc = f.Ac_nodes[:, ids], f.Ac_nodes[:, 0]
+        else:
+            Ac = f.A_nodes[:, ids] - c * W  # centred leaf sums (docs/method.md section 3 numerics)
+            Atc = f.A_nodes[:, 0] - d.scan.centre * Wt
         with np.errstate(divide="ignore", invalid="ignore"):
             sse = d.scan.centred_squares - np.where(W > 0, Ac * Ac / np.where(W > 0, W, 1.0), 0.0).sum(axis=1)
             sst = d.scan.centred_squares - Atc * Atc / Wt
-            none = _no_heterogeneity(sst, Wt, d.scan.centre)
+            none = no_heterogeneity(sst, Wt, d.scan.centre)
             r2 = np.where(none, np.nan, 1.0 - np.clip(sse, 0.0, None) / np.where(none, 1.0, sst))
         return np.clip(r2, 0.0, 1.0)
 
@@ -693,7 +701,7 @@ def _leaf_plan(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, un
                grown_on=None, depth=None) -> SummaryPlan:
     """The projection step of a tree: per-draw sums of every deepest leaf (so of every node at every depth)."""
     n_leaves = int(np.flatnonzero(est.tree_.children_left < 0).size)
-    sums = LeafSums(unit_leaf, n_leaves)
+    sums = LeafSums(unit_leaf, n_leaves, centre=offset_centre(draws))
 
     def finish():
         W_draw = sums.weights
@@ -701,7 +709,7 @@ def _leaf_plan(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, un
         if W_draw is None:
             W_fixed = np.bincount(unit_leaf, weights=draws.unit_weights, minlength=n_leaves)
         fitted = _Fitted(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, sums.sums, W_draw,
-                         W_fixed, names_by_rank, grown_on=grown_on)
+                         W_fixed, names_by_rank, grown_on=grown_on, A_centred=sums.centred_sums)
         return TreeSummary(fitted, max_depth if depth is None else depth)
 
     return SummaryPlan([sums], finish, "tree")
@@ -787,14 +795,24 @@ def plan_tree(draws, *, max_depth: int = 4, min_size: int | None = None, columns
                              for j, sp in enumerate(specs)])
 
     est = DecisionTreeRegressor(max_depth=max_depth, min_samples_leaf=min_size, random_state=0)
-    # Splits do not change when a constant is subtracted, but the tree's variance sums lose digits
-    # when the effects are large relative to their spread: fit to the centred target.
-    y = target[fit_rows] - np.average(target[fit_rows], weights=wbar[fit_rows])
-    est.fit(X[fit_rows], y, sample_weight=wbar[fit_rows])
+    est.fit(X[fit_rows], _standardized(target[fit_rows], wbar[fit_rows]), sample_weight=wbar[fit_rows])
     sk_leaves = np.flatnonzero(est.tree_.children_left < 0)
     unit_leaf = np.searchsorted(sk_leaves, est.apply(X))
 
     return _leaf_plan(draws, specs, est, X, X_raw, rank, edges, max_depth, min_size, unit_leaf, names_by_rank)
+
+
+def _standardized(y: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """``(y - mean) / sd`` (weighted): the target CART is fitted to.
+
+    Splits do not change under ``a + b y``, but scikit-learn's variance sums lose digits when the
+    effects are large relative to their spread, and it treats a node whose variance is below
+    float64's epsilon as pure, so effects on a 1e-12 scale were never split. A constant target is
+    returned centred (no split is possible).
+    """
+    yc = y - np.average(y, weights=w)
+    sd = float(np.sqrt(np.average(yc * yc, weights=w)))
+    return yc / sd if sd > 0 and np.isfinite(sd) else yc
 
 
 def fit_cart(X: np.ndarray, y: np.ndarray, weights: np.ndarray, *, depth: int, min_size: int,
@@ -819,7 +837,7 @@ def fit_cart(X: np.ndarray, y: np.ndarray, weights: np.ndarray, *, depth: int, m
     Returns
     -------
     DecisionTreeRegressor
-        Fitted on the re-ranked matrix and the centred target; ``random_state=0`` as the summary tree.
+        Fitted on the re-ranked matrix and the standardized target; ``random_state=0`` as the summary tree.
     """
     X = np.asarray(X, dtype=np.float64)
     y = np.asarray(y, dtype=np.float64)
@@ -843,5 +861,5 @@ def fit_cart(X: np.ndarray, y: np.ndarray, weights: np.ndarray, *, depth: int, m
             r[order] = np.arange(k)
             X[:, j] = r[codes]
     est = DecisionTreeRegressor(max_depth=depth, min_samples_leaf=min_size, random_state=0)
-    est.fit(X, y - (w @ y) / total, sample_weight=w)
+    est.fit(X, _standardized(y, w), sample_weight=w)
     return est
