@@ -473,7 +473,7 @@ def test_plot_coefficients_on_a_real_linear_summary(draws):
     slopes = tab[tab.term != "(intercept)"]
     np.testing.assert_allclose(tr.x, slopes["std_mean"].to_numpy()[::-1])
     np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, slopes["std_lower"].to_numpy()[::-1])
-    assert "per SD" in fig.layout.xaxis.title.text and any("age (per SD = " in t for t in fig.layout.yaxis.ticktext)
+    assert "per standard deviation (SD" in fig.layout.xaxis.title.text and any("age (per SD = " in t for t in fig.layout.yaxis.ticktext)
     raw = _trace(F.plot_coefficients(lin, level=0.9, scale="unit"), "coefficients")
     np.testing.assert_allclose(raw.x, slopes["mean"].to_numpy()[::-1])
     with_icpt = F.plot_coefficients(lin, intercept=True)

@@ -78,7 +78,9 @@ def _effect_title(attrs: Mapping, effect_label, what: str) -> str:
     """Axis title of an effect: its label, its unit (``draws.unit``), then ``what`` in parentheses."""
     name = _esc(effect_label or attrs.get("label") or "Effect")
     unit = attrs.get("unit")
-    return f"{name}, {_esc(unit)} ({what})" if unit else f"{name} ({what})"
+    head = f"{name}, {_esc(unit)}" if unit else name
+    # plotly never wraps a title: a long one is broken before its parenthesis, so it stays on the page
+    return f"{head}<br>({what})" if len(head) + len(what) > 80 else f"{head} ({what})"
 
 
 def _direction_note(attrs: Mapping) -> str | None:
@@ -364,10 +366,10 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
                                      symbol="diamond" if name == "pinned" else "circle",
                                      custom=custom[mask], hover=hover, name=name))
     note = _direction_note(df.attrs)
+    x_title = _effect_title(df.attrs, effect_label, f"mean and {level}") + (_SMALL.format(_esc(note)) if note else "")
     fig = _row_figure(
         traces + clip_traces, labels=labels, pos=pos, heights=heights, shapes=shapes, title=title,
-        x_title=_effect_title(df.attrs, effect_label, f"mean and {level}") + (_SMALL.format(_esc(note)) if note else ""),
-        x_range=x_range, extra_height=16 * bool(note))
+        x_title=x_title, x_range=x_range, extra_height=16 * x_title.count("<br>"))
     if notes:
         fig.layout.annotations = list(fig.layout.annotations) + notes
     return fig
@@ -795,11 +797,10 @@ def coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=Non
                            hover=("<b>%{customdata[0]}</b><br>posterior mean %{x:.4g}<br>" + level +
                           " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(coefficient > 0) = "
                           "%{customdata[3]:.3f}<extra></extra>"))
-    what = ("Coefficient per SD of each numeric covariate, per switch of a category" if scale == "sd"
-            else "Coefficient per unit of each covariate")
     unit = table.attrs.get("unit")
-    x_title = f"{what}{', ' + _esc(unit) if unit else ''} (mean and {level})"
-    notes = []
+    x_title = _effect_title({"unit": unit}, "Coefficient", f"mean and {level}")
+    notes = [("numeric covariates per standard deviation (SD, given in each label); categories per switch "
+              "from the reference") if scale == "sd" else "per unit of each covariate"]
     reference = table.attrs.get("reference") or {}
     if reference:  # dummies are read against these categories
         notes.append("compared with " + "; ".join(f"{k} = {v}" for k, v in reference.items()))
@@ -810,7 +811,7 @@ def coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=Non
         x_title += _SMALL.format(_wrap(note, 110))
     return _row_figure([trace], labels=labels, pos=pos, heights=heights, title=title, x_title=x_title,
                        x_range=_padded_range(d["lower"], d["upper"]),
-                       extra_height=sum(16 * (1 + n.count("<br>")) for n in (_wrap(x, 110) for x in notes)))
+                       extra_height=16 * x_title.count("<br>"))
 
 
 def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tailed", intercept: bool = False,
@@ -922,7 +923,8 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None =
     top = 90 + 16 * head.count("<br>") if not title else None
     fig = _row_figure([trace] + clip_traces, labels=labels, pos=pos, heights=heights, top=top, title=title,
                       title_markup=None if title else f"{head}<br>minus each other subgroup B",
-                      x_title=_contrast_title(df.attrs, level), x_range=x_range, extra_height=16 * bool(_direction_note(df.attrs)))
+                      x_title=_contrast_title(df.attrs, level), x_range=x_range,
+                      extra_height=16 * _contrast_title(df.attrs, level).count("<br>"))
     if notes:
         fig.layout.annotations = list(fig.layout.annotations) + notes
     return fig
@@ -930,7 +932,7 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None =
 
 def _contrast_title(attrs: Mapping, level: str) -> str:
     unit = attrs.get("unit")
-    title = f"Difference in effect, A minus B{', ' + _esc(unit) if unit else ''} (mean and {level})"
+    title = _effect_title({"unit": unit}, "Difference in effect, A minus B", f"mean and {level}")
     note = _direction_note(attrs)
     return title + (_SMALL.format(_esc(note)) if note else "")
 
