@@ -391,10 +391,6 @@ def _weak_mask(df: pd.DataFrame) -> np.ndarray:
     return df["weak_uptake"].fillna(False).astype(bool).to_numpy()
 
 
-def _signed(x: float) -> str:
-    return f"{x:.3g}".replace("-", "\u2212")
-
-
 def _clip_to_axis(d: pd.DataFrame, value: str, pos, heights, x_range):
     """Rows whose interval leaves ``x_range`` drawn cut at its edge: an arrow there, numbers in text.
 
@@ -403,6 +399,7 @@ def _clip_to_axis(d: pd.DataFrame, value: str, pos, heights, x_range):
     """
     lo, hi = x_range
     values = d[[value, "lower", "upper"]].to_numpy(float)
+    dv, di = N.effect_decimals(d, value)  # the tables' digits (core.numbers), so the note reads as the table
     out = d.copy()
     out[[value, "lower", "upper"]] = np.clip(values, lo, hi)
     arrows_x, arrows_y, symbols, notes = [], [], [], []
@@ -421,7 +418,7 @@ def _clip_to_axis(d: pd.DataFrame, value: str, pos, heights, x_range):
         notes.append(dict(
             x=hi if right else lo, y=pos[i] + 0.28 * heights[i], xref="x", yref="y", showarrow=False,
             xanchor="right" if right else "left", yanchor="middle",
-            text=f"{_signed(m)} [{_signed(low)}, {_signed(up)}]: beyond the axis",
+            text=f"{N.fixed(m, dv)} {N.interval(low, up, di)}: beyond the axis",
             font=dict(size=11, color=PALETTE[5]), bgcolor="rgba(255,255,255,0.85)"))
     if not arrows_x:
         return out, [], notes
