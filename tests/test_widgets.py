@@ -223,7 +223,8 @@ def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
     tab = reference.table()
     z = np.abs(tab["mean"].to_numpy()) / tab["sd"].to_numpy()
     assert explorer.tree_view.selected == int(tab["subgroup"].iloc[np.argmax(z)])
-    assert explorer.tree_view.palette["stops"] == list(DIVERGING)
+    # the warm end marks the better direction, as in the figures: reversed stops when lower is better
+    assert explorer.tree_view.palette["stops"] == (list(DIVERGING)[::-1] if draws.better == "lower" else list(DIVERGING))
     assert explorer.tree_view.colour_limit == pytest.approx(np.abs(tab["mean"]).max())
     # Every panel was drawn at start, so a saved notebook shows them all.
     assert all(p.key is not None for p in explorer._panels.values())
