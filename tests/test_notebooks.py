@@ -7,7 +7,6 @@ figure, and nbconvert's HTML must carry that state for the widget renderer.
 from __future__ import annotations
 
 import json
-import shutil
 from pathlib import Path
 
 import nbformat
@@ -39,7 +38,14 @@ def executed(tmp_path_factory):
     def run(name):
         if name not in cache:
             work = tmp_path_factory.mktemp(name.replace(".ipynb", ""))
-            shutil.copy2(REPO / "example_notebooks" / name, work / name)
+            nb = nbformat.read(REPO / "example_notebooks" / name, as_version=4)
+            # The linear and additive summaries fill in on a worker thread after the first view; a
+            # headless run waits for them (Explorer.wait) so the widget state saved at the end holds them.
+            names = [line.split("=")[0].strip() for c in nb.cells if c.cell_type == "code"
+                     for line in c.source.splitlines() if "sw.Explorer(" in line and "=" in line.split("sw.Explorer(")[0]]
+            if names:
+                nb.cells.append(nbformat.v4.new_code_cell("".join(f"{n}.wait(600)\n" for n in names)))
+            nbformat.write(nb, work / name)
             cache[name] = _execute(work / name, work)
         return cache[name]
     return run

@@ -83,3 +83,25 @@ def test_memory_error_in_a_pass_names_the_blocks(draws, monkeypatch):
     monkeypatch.setattr(LinearMap, "partial", no_memory)
     with pytest.raises(sw.SummaryError, match=r"Ran out of memory in a pass .* MiB per worker .*Memory"):
         sw.summarize_linear(draws)
+
+
+def test_float32_block_is_widened_once_for_reducers_that_share_it():
+    from summarize_widgets.core.draws import assemble_block
+    from summarize_widgets.core.passes import LeafSums, LinearMap, widen_shared
+
+    rng = np.random.default_rng(5)
+    vals = rng.normal(size=(4, 50)).astype(np.float32)
+    block = assemble_block(slice(0, 4), vals, None, None)
+    H = rng.normal(size=(50, 3))
+    leaf = LeafSums(rng.integers(0, 4, 50), 4)
+    one = widen_shared(block, [leaf])
+    assert one is block  # a single reducer widens for itself
+    two = widen_shared(block, [leaf, LinearMap(H)])
+    assert two.wt.dtype == np.float64 and two.values is two.wt
+    np.testing.assert_array_equal(two.wt, vals.astype(np.float64))
+    assert widen_shared(block, [leaf, LinearMap(H.astype(np.float32))]) is block  # float32 maps keep float32 blocks
+    # Same sums and products either way (bincount and float64 products widen internally anyway).
+    for r in (leaf, LinearMap(H)):
+        r.start(4)
+    np.testing.assert_array_equal(leaf.partial(block)[0], leaf.partial(two)[0])
+    np.testing.assert_array_equal(LinearMap(H).partial(block)[0], LinearMap(H).partial(two)[0])

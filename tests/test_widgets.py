@@ -574,3 +574,61 @@ def test_plotly_widget_internals_we_use_are_present():
     assert isinstance(w._layout_obj._props, dict)
     assert isinstance(w._data, list) and w._data[0]["x"] == [1, 2] or list(w._data[0]["x"]) == [1, 2]
     assert hasattr(w, "_widget_layout") and hasattr(w, "_widget_data")
+
+
+# -- start-up: the tree first, the linear and additive summaries on a worker thread ------------------
+def test_first_view_needs_the_tree_only_and_the_extras_fill_in(draws, monkeypatch):
+    import threading
+
+    from summarize_widgets.summaries import bundle as _bundle
+    from summarize_widgets.widgets import results as _results
+
+    gate, started = threading.Event(), threading.Event()
+    real = _bundle.summarize_extras
+
+    def held(*args, **kwargs):
+        started.set()
+        assert gate.wait(30)
+        return real(*args, **kwargs)
+    monkeypatch.setattr(_results, "summarize_extras", held)
+    ex = Explorer(draws, max_depth=3, depth=2, additive_options={"lam": 1.0})
+    assert started.wait(30)
+    # The first view is there while the extras wait: tree, table, and the tabs say what is coming.
+    assert ex.tree_view.leaf_ids == [int(i) for i in summarize_tree(draws, max_depth=3).at_depth(2).leaf_ids]
+    assert ex.pending == {"linear", "additive"} and ex.linear is None and ex.additive is None
+    titles = list(ex._tabs.titles)
+    assert "Trends (computing\u2026)" in titles and "Linear fit (computing\u2026)" in titles
+    ex.apply(depth=3)  # view changes work meanwhile
+    assert ex.settings["depth"] == 3
+    ex._tabs.selected_index = titles.index("Linear fit (computing\u2026)")
+    box = ex._waiting["linear"][0]
+    assert box.layout.display is None and "in the background" in ex._waiting["linear"][1].value
+    gate.set()
+    assert ex.wait(timeout=60)
+    assert ex.pending == set() and "computing" not in " ".join(ex._tabs.titles)
+    assert box.layout.display == "none"
+    # The same numbers as the one-call orchestrator (summarize_all fuses the same plans).
+    ref = _bundle.summarize_all(draws, depth=3, max_depth=3, additive_options={"lam": 1.0})
+    np.testing.assert_allclose(ex.linear.table()["mean"], ref.linear.table()["mean"], rtol=1e-10)
+    np.testing.assert_allclose(ex.additive.curves()["mean"], ref.additive.curves()["mean"], rtol=1e-10)
+    assert list(ex.covariate_control.options) == list(ref.additive.columns)
+    lin = ex._panels["linear"].figure
+    assert any(len(t.y or ()) > 1 or len(t.x or ()) > 1 for t in lin.data)  # the coefficients are drawn
+
+
+def test_a_failure_on_the_extras_thread_is_shown_in_their_tabs(draws, monkeypatch):
+    from summarize_widgets.widgets import results as _results
+
+    def broken(*args, **kwargs):
+        raise RuntimeError("disk on fire")
+    monkeypatch.setattr(_results, "summarize_extras", broken)
+    ex = Explorer(draws, max_depth=3, depth=2, additive_options={"lam": 1.0})
+    assert ex.wait(timeout=60)
+    assert ex.pending == set()
+    for name, tab in (("linear", "Linear fit"), ("additive", "Trends")):
+        assert "Unexpected error (RuntimeError): disk on fire" in ex._res.errors[name]
+        ex._tabs.selected_index = list(ex._tabs.titles).index(tab)
+        box, text, _ = ex._waiting[name]
+        assert box.layout.display is None and "swx-status-error" in text.value and "disk on fire" in text.value
+    fig = ex._panels["linear"].figure
+    assert "disk on fire" in json.dumps(fig.to_dict()["layout"].get("annotations", []))

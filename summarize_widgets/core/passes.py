@@ -31,7 +31,7 @@ import numpy as np
 
 from .validate import SummaryError
 
-__all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts", "centred_block"]
+__all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts", "centred_block", "widen_shared"]
 
 
 class Reducer(Protocol):
@@ -75,6 +75,22 @@ def add_parts(a, b):
     if isinstance(a, tuple):
         return tuple(add_parts(x, y) for x, y in zip(a, b))
     return a + b
+
+
+def widen_shared(block, reducers):
+    """``block`` with float32 values widened to float64 once, when two or more reducers would each widen it.
+
+    Reducers say so with a true ``widens`` attribute (float64 matrix products, per-group sums);
+    without this each of them converts the same block again (the conversion costs about as much as
+    a float64 product with a few columns).
+    """
+    wt = block.wt
+    if wt.dtype != np.float32 or sum(bool(getattr(r, "widens", False)) for r in reducers) < 2:
+        return block
+    from .draws import DrawBlock
+
+    wt64 = wt.astype(np.float64)
+    return DrawBlock(block.rows, wt64, block.w, wt64 if block.values is wt else block.values, block.uptake)
 
 
 def _default_threads() -> int:
@@ -147,7 +163,7 @@ def _run_pass(draws, reducers, progress, threads, rows_per_block) -> None:
     sums = {}
 
     def work(start):
-        block = draws.block(slice(start, min(start + step, draws.n_draws)))
+        block = widen_shared(draws.block(slice(start, min(start + step, draws.n_draws))), reducers)
         parts = []
         for r in reducers:
             if hasattr(r, "partial"):
@@ -217,6 +233,9 @@ class LeafSums(BlockReducer):
         self.codes = kept.astype(np.int32 if n_groups < 2**31 else np.int64)
         self.n_groups = int(n_groups)
 
+    #: Per-group sums accumulate float64 weights (see :func:`widen_shared`).
+    widens = True
+
     def start(self, n_draws: int) -> None:
         self.sums = np.zeros((n_draws, self.n_groups))
         self.centred_sums = None if self.centre is None else np.zeros((n_draws, self.n_groups))
@@ -275,6 +294,11 @@ class LinearMap(BlockReducer):
         H = np.asarray(H)
         self.H = np.ascontiguousarray(H, dtype=np.float32 if H.dtype == np.float32 else np.float64)
         self.with_weights = with_weights
+
+    @property
+    def widens(self) -> bool:
+        """A float64 map widens float32 blocks (see :func:`widen_shared`)."""
+        return self.H.dtype == np.float64
 
     def start(self, n_draws: int) -> None:
         self.out = np.zeros((n_draws, self.H.shape[1]))

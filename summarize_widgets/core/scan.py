@@ -95,7 +95,8 @@ class ScanRows(BlockReducer):
         """
         k = min(CENTRE_UNITS, wt.shape[1])
         if not self.complier:
-            vals = np.asarray(block.values[rr], dtype=np.float64)
+            # Unweighted draws: the block's weighted values are its values, already widened above.
+            vals = wt if block.wt is block.values else np.asarray(block.values[rr], dtype=np.float64)
             c = vals[:, :k].mean(axis=1)
             ss = np.einsum("ij,ij->i", wt, vals)
             q = ss - 2.0 * c * rowsum + c * c * wsum

@@ -13,7 +13,7 @@ from .linear import plan_linear
 from .projection import project
 from .tree import plan_tree
 
-__all__ = ["SummaryBundle", "summarize_all", "summarize_draws", "DEFAULT_DEPTH", "STAGES"]
+__all__ = ["SummaryBundle", "summarize_all", "summarize_extras", "summarize_draws", "DEFAULT_DEPTH", "STAGES"]
 
 #: Depth of the reported subgroups, shared by the command line, the report and the explorer.
 DEFAULT_DEPTH = 3
@@ -114,16 +114,7 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         plans["groups"] = plan_groups(draws, groups)
     extra_plans = {"linear": lambda: plan_linear(draws, columns=columns),
                    "additive": lambda: plan_additive(draws, columns=columns, **dict(additive_options or {}))}
-    errors = {}
-    for name, make in extra_plans.items():
-        if name not in wanted:
-            continue
-        try:
-            plans[name] = make()
-        except SummaryError as exc:
-            if extras == "raise":
-                raise
-            errors[name] = str(exc)
+    errors = _plan_extras(plans, extra_plans, wanted, extras)
     # ... then project the draws onto all of them in ONE pass.
     results = dict(zip(plans, project(draws, list(plans.values()), progress=tick)))
     bundle = SummaryBundle(draws=draws, tree=results["tree"].at_depth(depth), groups=results.get("groups"),
@@ -136,6 +127,58 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
                                           stability_fits=stability_fits, threshold=threshold, tolerance=tolerance,
                                           level=level, interval=interval)
     return bundle
+
+
+def _plan_extras(plans: dict, makers: dict, wanted, extras: str) -> dict:
+    """Add the plans of the wanted extras to ``plans``; return {name: message} of those that failed."""
+    errors = {}
+    for name, make in makers.items():
+        if name not in wanted:
+            continue
+        try:
+            plans[name] = make()
+        except SummaryError as exc:
+            if extras == "raise":
+                raise
+            errors[name] = str(exc)
+    return errors
+
+
+def summarize_extras(draws, *, columns=None, linear: bool = True, additive: bool = True, additive_options=None,
+                     extras: str = "raise", progress=None) -> SummaryBundle:
+    """The linear and additive summaries alone, in ONE pass shared by both (the explorer's second step).
+
+    The explorer shows its tree from :func:`summarize_all` with ``linear=False, additive=False``
+    (one pass), then fills in these two from this call on a worker thread. The plans and the
+    fused projection are those of :func:`summarize_all`, so the results are the same.
+
+    Parameters
+    ----------
+    draws : EffectDraws
+    columns, linear, additive, additive_options, extras
+        As for :func:`summarize_all`.
+    progress : callable(stage, stage_index, n_stages, done_blocks, total_blocks), optional
+        ``stage`` is "linear" (or "additive" when the linear summary is not asked for).
+
+    Returns
+    -------
+    SummaryBundle
+        With ``tree`` None; ``linear``, ``additive`` and ``errors`` filled.
+    """
+    if extras not in ("raise", "record"):
+        raise SummaryError(f"`extras` must be 'raise' or 'record'; got {extras!r}.")
+    wanted = [name for name, on in (("linear", linear), ("additive", additive)) if on]
+    tick = None
+    if progress is not None and wanted:
+        def tick(done, total):
+            progress(wanted[0], 0, 1, done, total)
+    plans: dict = {}
+    errors = _plan_extras(plans, {"linear": lambda: plan_linear(draws, columns=columns),
+                                  "additive": lambda: plan_additive(draws, columns=columns,
+                                                                    **dict(additive_options or {}))}, wanted, extras)
+    results = dict(zip(plans, project(draws, list(plans.values()), progress=tick))) if plans else {}
+    return SummaryBundle(draws=draws, tree=None, linear=results.get("linear"), additive=results.get("additive"),
+                         errors=errors, notes=list(draws.notes))
 
 
 def summarize_draws(values, covariates, *, weights=None, chains=None, label: str = "effect", unit=None,

@@ -42,6 +42,7 @@ INTERVALS = (("Equal-tailed", "equal-tailed"), ("Highest density", "highest-dens
 PROGRESS_AFTER_S = 0.3
 MIN_FIGURE_WIDTH = 420
 _WIDE = {"description_width": "initial"}
+_PANEL_SUMMARY = {"trends": "additive", "linear": "linear"}
 _STAGES = {"tree": "Regrouping", "groups": "Groups", "linear": "Linear fit", "additive": "Trends"}
 
 
@@ -82,7 +83,12 @@ class Explorer(widgets.VBox):
         Extra keyword arguments for :func:`summarize_widgets.summarize_additive`
         (for example ``{"lam": 1.0}`` to skip the smoothing search).
     background : bool, default True
-        Run recomputations triggered from the controls on a worker thread.
+        Show the first view once the tree is computed (one pass over the draws) and compute the
+        linear and additive summaries on a worker thread (one more pass, shared by both); their
+        tabs say "(computing…)" until they are ready. Recomputations triggered from the controls
+        also run there. False computes everything before the explorer is shown (one fused pass).
+        A notebook run headlessly (nbclient, nbconvert) should call :meth:`wait` before its
+        widget state is saved.
 
     Attributes
     ----------
@@ -117,7 +123,12 @@ class Explorer(widgets.VBox):
         self._local = threading.local()
         self._figure_width = None  # px, once the browser has reported the explorer's width
 
-        self._res = Results.compute(draws, max_depth=max_depth, min_size=min_size, columns=columns, **self._options)
+        self._extras_pending = None  # Results whose linear/additive summaries are still to compute
+        self._extras_worker: threading.Thread | None = None
+        # With a worker thread the first view needs the tree only (one pass); the linear and
+        # additive summaries follow on the thread (one more pass, shared) and fill their tabs.
+        self._res = Results.compute(draws, max_depth=max_depth, min_size=min_size, columns=columns,
+                                    extras_later=self._background, **self._options)
         first = self._res.standout(depth)
         # "anchor" is the node last picked; "selected" is what is shown: the anchor, or its
         # ancestor while the tree is shallower than the anchor (so depth 3 -> 1 -> 3 comes back).
@@ -128,6 +139,7 @@ class Explorer(widgets.VBox):
         super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs])
         self.add_class("swx-explorer")
         self._refresh(all_panels=True)
+        self._start_extras(self._res)
 
     # -- public API --------------------------------------------------------------------------
     def apply(self, *, depth: int | None = None, level: float | None = None, interval: str | None = None,
@@ -182,11 +194,22 @@ class Explorer(widgets.VBox):
         self._regroup(min_size, columns, progress=None, raise_errors=True)
 
     def wait(self, timeout: float | None = None) -> bool:
-        """Wait for a background recomputation to finish; True if none is running."""
-        worker = self._worker
-        if worker is not None:
-            worker.join(timeout)
-        return self._worker is None or not self._worker.is_alive()
+        """Wait for the background work (a recomputation, the linear and additive summaries) to finish;
+        True if none is running."""
+        end = None if timeout is None else time.monotonic() + timeout
+        while True:
+            busy = [w for w in (self._worker, self._extras_worker) if w is not None and w.is_alive()]
+            if not busy:
+                return True
+            left = None if end is None else end - time.monotonic()
+            if left is not None and left <= 0:
+                return False
+            busy[0].join(left)
+
+    @property
+    def pending(self) -> set:
+        """The summaries ("linear", "additive") still being computed in the background."""
+        return set(self._res.pending)
 
     @property
     def tree(self):
@@ -261,16 +284,18 @@ class Explorer(widgets.VBox):
         panels.append(_Panel("effects", "Subgroup effects", widgets.VBox([self.densities_control, effects]), effects))
         fit = fig_widget()
         panels.append(_Panel("fit", "Fit by depth", widgets.VBox([fit]), fit))
+        self._waiting = {}
         if self._options["trends"]:
             trend = fig_widget()
             names = self._res.additive.columns if self._res.additive is not None else []
             self.covariate_control = widgets.Dropdown(options=names, value=names[0] if names else None,
                                                       description="Covariate", style=_WIDE)
             self.covariate_control.observe(self._guard(self._on_panel_control), names="value")
-            panels.append(_Panel("trends", "Trends", widgets.VBox([self.covariate_control, trend]), trend))
+            panels.append(_Panel("trends", "Trends", widgets.VBox([self._waiting_box("additive"),
+                                                                   self.covariate_control, trend]), trend))
         if self._options["linear"]:
             lin = fig_widget()
-            panels.append(_Panel("linear", "Linear fit", widgets.VBox([lin]), lin))
+            panels.append(_Panel("linear", "Linear fit", widgets.VBox([self._waiting_box("linear"), lin]), lin))
         self._table_html = widgets.HTML()
         panels.append(_Panel("table", "Table", widgets.VBox([self._table_html])))
         con = fig_widget()
@@ -278,8 +303,85 @@ class Explorer(widgets.VBox):
         self.evidence_panel = EvidencePanel(self._draws, background=self._background)
         panels.append(_Panel("evidence", "Evidence", self.evidence_panel))
         self._panels = {p.name: p for p in panels}
-        self._tabs = widgets.Tab(children=[p.body for p in panels], titles=[p.title for p in panels])
+        self._tabs = widgets.Tab(children=[p.body for p in panels], titles=[self._tab_title(p) for p in panels])
         self._tabs.observe(self._guard(self._on_tab), names="selected_index")
+
+    def _waiting_box(self, summary: str):
+        """The line a background summary's tab shows while it is computed: a message and a progress bar."""
+        text = widgets.HTML()
+        bar = widgets.FloatProgress(value=0.0, min=0.0, max=1.0, description="Progress", style=_WIDE,
+                                    layout=widgets.Layout(width="260px"))
+        box = widgets.HBox([text, bar], layout=widgets.Layout(align_items="center", display="none"))
+        box.add_class("swx-waiting")
+        self._waiting[summary] = (box, text, bar)
+        return box
+
+    def _tab_title(self, panel) -> str:
+        summary = _PANEL_SUMMARY.get(panel.name)
+        return f"{panel.title} (computing…)" if summary in self._res.pending else panel.title
+
+    def _show_waiting(self, summary: str) -> None:
+        """Show or hide the waiting line of ``summary``'s tab, and its error if it failed."""
+        if summary not in self._waiting:
+            return
+        box, text, bar = self._waiting[summary]
+        if summary in self._res.pending:
+            what = {"additive": "the trends (additive summary)", "linear": "the linear summary"}[summary]
+            text.value = P.status_html(f"Computing {what} in the background: one pass over the draws, shared by "
+                                       "the linear and additive summaries. The other tabs are ready.", tone="busy")
+            bar.layout.display = None
+            box.layout.display = None
+        elif summary in self._res.errors:
+            text.value = P.status_html(f"Could not compute: {self._res.errors[summary]}", tone="error")
+            bar.layout.display = "none"
+            box.layout.display = None
+        else:
+            box.layout.display = "none"
+
+    def _start_extras(self, res) -> None:
+        """Compute ``res``'s pending linear and additive summaries on the worker thread (newest request wins)."""
+        if not res.pending:
+            return
+        with self._lock:
+            self._extras_pending = res
+            if self._extras_worker is None or not self._extras_worker.is_alive():
+                self._extras_worker = threading.Thread(target=self._extras_work, name="summarize-widgets-extras",
+                                                       daemon=True)
+                self._extras_worker.start()
+
+    def _extras_work(self):
+        while True:
+            with self._lock:
+                res, self._extras_pending = self._extras_pending, None
+                if res is None:
+                    self._extras_worker = None
+                    return
+            if res is not self._res:  # overtaken by a recompute before it started
+                continue
+            bars = [self._waiting[name][2] for name in res.pending if name in self._waiting]
+
+            def progress(stage, k, n_stages, done, total, bars=bars):
+                for bar in bars:
+                    bar.value = done / max(total, 1)
+            res.fill_extras(self._draws, progress=progress)  # never raises: failures go to res.errors
+            try:
+                with self._lock:
+                    if res is not self._res:
+                        continue
+                    if self._options["trends"]:
+                        names = res.additive.columns if res.additive is not None else []
+                        self._quietly(lambda names=names: setattr(self.covariate_control, "options", names))
+                        self._state["covariate"] = self.covariate_control.value
+                    for i, panel in enumerate(self._panels.values()):
+                        if panel.name in ("trends", "linear", "evidence"):
+                            panel.key = None
+                        self._tabs.set_title(i, self._tab_title(panel))
+                        if panel.name in ("trends", "linear"):
+                            # Drawn now, seen or not: a saved notebook's widget state then holds them.
+                            self._draw_panel(panel)
+                    self._refresh()
+            except Exception as exc:  # noqa: BLE001 - a worker thread has no output area to report to
+                self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
 
     # -- event handlers ------------------------------------------------------------------
     def _guard(self, handler):
@@ -382,7 +484,7 @@ class Explorer(widgets.VBox):
             min_size = check_int(min_size, "min_size", low=1, high=self._draws.n_units)
             previous = self._anchor_rule()
             res = Results.compute(self._draws, max_depth=self._res.tree.max_depth, min_size=min_size,
-                                  columns=columns, progress=progress, **self._options)
+                                  columns=columns, progress=progress, extras_later=self._background, **self._options)
         except SummaryError as exc:
             if raise_errors:
                 self._refresh_status()
@@ -411,9 +513,11 @@ class Explorer(widgets.VBox):
                 self._quietly(lambda: setattr(self.covariate_control, "options", names))
                 s["covariate"] = self.covariate_control.value
             self._sync_controls()
-            for p in self._panels.values():
+            for i, p in enumerate(self._panels.values()):
                 p.key = None
+                self._tabs.set_title(i, self._tab_title(p))
             self._refresh()
+        self._start_extras(res)
 
     # -- drawing -------------------------------------------------------------------------------
     def _sync_controls(self):
@@ -500,7 +604,7 @@ class Explorer(widgets.VBox):
             "linear": (s["level"], s["interval"]),
             "table": (*view, s["selected"]),
             "contrasts": (*view, s["selected"]),
-            "evidence": (*view, id(self._res)),
+            "evidence": (*view, id(self._res), id(self._res.linear)),
         }[name]
 
     def _draw_panel(self, panel: _Panel) -> None:
@@ -556,6 +660,10 @@ class Explorer(widgets.VBox):
 
     def _draw_trends(self, panel):
         s = self._state
+        self._show_waiting("additive")
+        if "additive" in self._res.pending:
+            self._show(panel, P.message_figure("The trends appear here when the additive summary is ready."))
+            return
         if self._res.additive is None:
             why = self._res.errors.get("additive", "The additive summary was not computed.")
             self._show(panel, P.message_figure(f"No trends: {why}"))
@@ -566,6 +674,10 @@ class Explorer(widgets.VBox):
 
     def _draw_linear(self, panel):
         s = self._state
+        self._show_waiting("linear")
+        if "linear" in self._res.pending:
+            self._show(panel, P.message_figure("The linear summary appears here when it is ready."))
+            return
         if self._res.linear is None:
             why = self._res.errors.get("linear", "The linear summary was not computed.")
             self._show(panel, P.message_figure(f"No linear fit: {why}"))

@@ -11,7 +11,7 @@ from collections.abc import Callable, Mapping
 import numpy as np
 import pandas as pd
 
-from ..summaries.bundle import summarize_all
+from ..summaries.bundle import summarize_all, summarize_extras
 from ..summaries.tree import TreeSummary
 
 __all__ = ["Results"]
@@ -39,21 +39,58 @@ class Results:
         self.linear = linear
         self.errors = dict(errors or {})
         self.fit_draws = tree.fit_r2_draws_by_depth()
+        #: Extras ("linear", "additive") still to come from :meth:`fill_extras`.
+        self.pending: set = set()
+        self.extras_request: dict = {}
         self._cache: dict = {}
 
     @classmethod
     def compute(cls, draws, *, max_depth: int, min_size, columns, trends: bool, linear: bool,
-                additive_options: Mapping | None = None, progress: Progress | None = None) -> "Results":
-        """Every summary for these settings, through the one orchestrator (:func:`summarize_all`).
+                additive_options: Mapping | None = None, progress: Progress | None = None,
+                extras_later: bool = False) -> "Results":
+        """The summaries for these settings, through the one orchestrator (:func:`summarize_all`).
+
+        With ``extras_later`` only the tree is computed (one pass over the draws); the
+        linear and additive summaries asked for are listed in ``pending`` and come from
+        :meth:`fill_extras` (one more pass, shared by both).
 
         Raises :class:`SummaryError` when the tree cannot be built (for example a
         ``min_size`` larger than the data); the additive and linear summaries are extras whose
         failure is recorded in ``errors`` instead.
         """
+        now_trends, now_linear = (False, False) if extras_later else (trends, linear)
         bundle = summarize_all(draws, depth=max_depth, max_depth=max_depth, min_size=min_size, columns=columns,
-                               additive=trends, linear=linear, additive_options=additive_options, extras="record",
-                               progress=progress)
-        return cls(bundle.tree, additive=bundle.additive, linear=bundle.linear, errors=bundle.errors)
+                               additive=now_trends, linear=now_linear, additive_options=additive_options,
+                               extras="record", progress=progress)
+        res = cls(bundle.tree, additive=bundle.additive, linear=bundle.linear, errors=bundle.errors)
+        if extras_later:
+            res.pending = {name for name, on in (("linear", linear), ("additive", trends)) if on}
+            res.extras_request = {"columns": list(bundle.tree.columns), "additive_options": dict(additive_options or {})}
+        return res
+
+    def fill_extras(self, draws, *, progress: Progress | None = None) -> None:
+        """Compute the pending linear and additive summaries (one pass shared by both).
+
+        Any failure, expected or not, ends up in ``errors`` under the summary's name (the
+        explorer shows it in that summary's tab); ``pending`` is empty afterwards.
+        """
+        wanted = set(self.pending)
+        if not wanted:
+            return
+        try:
+            bundle = summarize_extras(draws, columns=self.extras_request["columns"], linear="linear" in wanted,
+                                      additive="additive" in wanted,
+                                      additive_options=self.extras_request["additive_options"], extras="record",
+                                      progress=progress)
+        except Exception as exc:  # noqa: BLE001 - runs on a worker thread: the message goes to the tabs
+            text = f"Unexpected error ({type(exc).__name__}): {exc}"
+            self.errors.update({name: text for name in wanted})
+        else:
+            self.linear = bundle.linear if "linear" in wanted else self.linear
+            self.additive = bundle.additive if "additive" in wanted else self.additive
+            self.errors.update(bundle.errors)
+        finally:
+            self.pending = set()
 
     # -- cached reads --------------------------------------------------------------------------
     def _cached(self, key, make):
