@@ -22,11 +22,11 @@ import numpy as np
 import pandas as pd
 from scipy.linalg import solve_triangular
 
-from ..core.design import classify_columns, linear_design
+from ..core.design import MAX_LEVELS, classify_columns, linear_design
 from ..core.passes import BlockReducer, LinearMap, run_pass
 from . import projection
 from .projection import ProjectedFit, SummaryPlan, no_heterogeneity, offset_centre, project, weighted_map
-from ..core.validate import SummaryError, check_columns
+from ..core.validate import SummaryError, check_columns, check_levels
 from ..core.draws import EffectDraws
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 from .base import SummaryResult
@@ -326,7 +326,8 @@ class LinearSummary(SummaryResult, ProjectedFit):
 
         check_draws(draws)
         check_same_units(self.draws, draws, self.columns)
-        out = summarize_linear(draws, columns=self.columns, progress=progress)
+        out = summarize_linear(draws, columns=self.columns, max_levels=self.settings["max_levels"],
+                               pool_levels=self.settings["pool_levels"], progress=progress)
         out.settings["structure_from"] = self.settings.get("structure_from", self.label)
         return out
 
@@ -334,7 +335,8 @@ class LinearSummary(SummaryResult, ProjectedFit):
         return f"LinearSummary('{self.label}': {len(self.terms)} terms, {self.coef_draws.shape[0]} draws)"
 
 
-def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
+def summarize_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_levels: int | None = None,
+                     progress=None) -> LinearSummary:
     """Project every draw onto a linear model in the covariates.
 
     Parameters
@@ -344,6 +346,12 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
         Covariates (default: all). Numeric columns enter as they are (missing values:
         filled with the column mean plus a missing indicator); categorical columns are
         dummy-coded against their first category.
+    max_levels : int, default 50
+        A categorical column with more levels is refused (one coefficient per level), with a
+        message naming it and its count, unless ``pool_levels`` is given.
+    pool_levels : int, optional
+        Keep the ``pool_levels`` most common levels of every column with more than ``max_levels``
+        and pool the rest into one category ``"(other)"``.
     progress : callable(done, total), optional
         Called after each block of the single pass over the draws.
 
@@ -359,15 +367,16 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
     fitted values is ``sum_i w_si T_si / sum_i wbar_i``, whose denominator is fixed at its
     posterior mean (not the per-draw ratio of :attr:`EffectDraws.overall`).
     """
-    plan = plan_linear(draws, columns=columns)
+    plan = plan_linear(draws, columns=columns, max_levels=max_levels, pool_levels=pool_levels)
     return project(draws, [plan], progress=progress)[0]
 
 
-def plan_linear(draws, *, columns=None) -> SummaryPlan:
+def plan_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_levels: int | None = None) -> SummaryPlan:
     """The fit-structure step of :func:`summarize_linear` (design, its QR; no pass over the draws)."""
     keep = check_draws(draws)
     cols = check_columns(columns, list(draws.covariates.columns))
-    specs = classify_columns(draws.covariates, cols)
+    max_levels, pool_levels = check_levels(max_levels, pool_levels)
+    specs = classify_columns(draws.covariates, cols, max_levels=max_levels, pool_levels=pool_levels, summary="linear")
     B, terms, fill = linear_design(draws.covariates, specs)
     Bk = B if keep.all() else B[keep]
     del B
@@ -376,6 +385,8 @@ def plan_linear(draws, *, columns=None) -> SummaryPlan:
         Bk = Bk.astype(np.float32)
     settings = {
         "columns": cols,
+        "max_levels": max_levels,
+        "pool_levels": pool_levels,
         "terms": list(terms),
         "n_draws": draws.n_draws,
         "n_units": draws.n_units,
