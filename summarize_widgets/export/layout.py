@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from ..core import numbers as N
+from ..core.rules import RULE_OPERATORS as _OPS, lex_rule as _lex_rule, rule_text
 from ..core.validate import SummaryError, check_int
 
 __all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_type", "TABLE_COLUMNS", "format_cell",
@@ -34,65 +35,6 @@ _LATEX_TABLE = str.maketrans(_LATEX_ESCAPES)
 def escape_latex(text) -> str:
     """Escape LaTeX specials ``& % $ # _ { } ~ ^ \\`` (and ``< > |``) in plain text; newlines become spaces."""
     return "".join(ch for ch in str(text).translate(_LATEX_TABLE) if ch >= " ")
-
-
-# Operators are recognized only between spaces, so a name such as "R&D" stays text.
-_OPS = {
-    "<=": (r"$\leq$", "\u2264"), ">=": (r"$\geq$", "\u2265"), "<": ("$<$", "<"), ">": ("$>$", ">"),
-    "=": ("$=$", "="), "==": ("$=$", "="), "!=": (r"$\neq$", "\u2260"),
-    "&": ("and", "and"), "and": ("and", "and"), "|": ("or", "or"), "or": ("or", "or"),
-    "in": (r"$\in$", "\u2208"), "not in": (r"$\notin$", "\u2209"),
-}
-_CLOSE = {"{": "}", "[": "]"}
-
-
-def _lex_rule(rule: str) -> list[tuple[str, str]]:
-    """Split a rule into ("op", op), ("set", "{inner}"), ("str", '"x"'), ("name", "x"), ("text", s), ("sp", " ")."""
-    out: list[tuple[str, str]] = []
-    i, n = 0, len(rule)
-    while i < n:
-        ch = rule[i]
-        if ch.isspace():
-            out.append(("sp", " "))
-            while i < n and rule[i].isspace():
-                i += 1
-            continue
-        if ch in "\"'`":
-            j = rule.find(ch, i + 1)
-            j = n - 1 if j < 0 else j
-            out.append(("name" if ch == "`" else "str", rule[i:j + 1]))
-            i = j + 1
-            continue
-        if ch in _CLOSE:
-            depth, j = 0, i
-            while j < n:
-                if rule[j] == ch:
-                    depth += 1
-                elif rule[j] == _CLOSE[ch]:
-                    depth -= 1
-                    if depth == 0:
-                        break
-                j += 1
-            out.append(("set", rule[i:j + 1]))
-            i = j + 1
-            continue
-        j = i
-        while j < n and not rule[j].isspace() and rule[j] not in "\"'`{[":
-            j += 1
-        out.append(("text", rule[i:j]))
-        i = j
-    # A text token that is an operator, standing between spaces (or at an end), is an operator.
-    for k, (kind, tok) in enumerate(out):
-        spaced = (k == 0 or out[k - 1][0] == "sp") and (k == len(out) - 1 or out[k + 1][0] == "sp")
-        if kind == "text" and spaced and tok in _OPS:
-            out[k] = ("op", tok)
-    merged: list[tuple[str, str]] = []
-    for kind, tok in out:  # "not in" is one operator
-        if kind == "op" and tok == "in" and len(merged) >= 2 and merged[-2] == ("text", "not") and merged[-1][0] == "sp":
-            merged[-2:] = [("op", "not in")]
-        else:
-            merged.append((kind, tok))
-    return merged
 
 
 def rule_to_latex(rule) -> str:
@@ -121,17 +63,8 @@ def rule_to_latex(rule) -> str:
     return "".join(parts)
 
 
-def rule_to_text(rule) -> str:
-    """A rule for screen formats (HTML, Markdown): unicode comparison signs, "and"/"or"; not escaped."""
-    parts = []
-    for kind, tok in _lex_rule(str(rule)):
-        if kind == "op":
-            parts.append(_OPS[tok][1])
-        elif kind == "name" and len(tok) >= 2 and tok[-1] == "`":
-            parts.append(tok[1:-1])
-        else:
-            parts.append(tok)
-    return "".join(parts).strip()
+#: Screen formats (HTML, Markdown, terminal, figures) print rules with the one core formatter.
+rule_to_text = rule_text
 
 
 # -- layout ----------------------------------------------------------------------------

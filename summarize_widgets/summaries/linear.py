@@ -31,10 +31,17 @@ from ..core.draws import EffectDraws
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 from .base import SummaryResult
 
-__all__ = ["summarize_linear", "plan_linear", "LinearSummary", "FrozenProjection", "LINEAR_COLUMNS"]
+__all__ = ["summarize_linear", "plan_linear", "LinearSummary", "FrozenProjection", "LINEAR_COLUMNS", "STANDARD_COLUMNS"]
 
+#: The standardized scale of every coefficient (docs/method.md section 4): ``per_sd`` is the
+#: standard deviation of a numeric covariate (weighted as in the fit; NaN for the intercept and
+#: for category and missing-indicator terms, which stay per switch); ``std_*`` summarize the
+#: coefficient per that SD, and for the intercept the effect at the covariates' means and
+#: reference categories.
+STANDARD_COLUMNS = ("per_sd", "std_mean", "std_sd", "std_lower", "std_upper", "std_prob_positive",
+                    "std_mcse_mean", "std_mcse_lower", "std_mcse_upper")
 #: Columns of the linear summary's table, in order.
-LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS)
+LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS, *STANDARD_COLUMNS)
 
 
 class _PseudoSquares(BlockReducer):
@@ -241,6 +248,10 @@ class LinearSummary(SummaryResult, ProjectedFit):
     coef_draws : ndarray, shape (n_draws, n_terms)
     reference : dict
         Reference (omitted) category of each categorical covariate.
+    centre, spread : dict
+        Weighted mean and standard deviation (divisor the summed weight) of each numeric
+        covariate's design column among the units used, with the fit's weights ``wbar``:
+        the standardized scale (coefficient x SD; intercept at the means).
     fill : dict
         Value put in place of missing values of each numeric covariate.
     label : str
@@ -256,6 +267,32 @@ class LinearSummary(SummaryResult, ProjectedFit):
         self.columns = [s.name for s in specs]
         self.reference = {s.name: s.categories[0] for s in specs if s.kind == "categorical"}
         self.fill = {k: v for k, v in fill.items() if any(s.name == k and s.n_missing for s in specs)}
+        numeric = {s.name for s in specs if s.kind == "numeric"}
+        w = np.asarray(draws.mean_weights, dtype=np.float64)[keep]
+        self.centre, self.spread = {}, {}
+        for j, term in enumerate(self.terms):
+            if term in numeric:
+                x = np.asarray(design[:, j], dtype=np.float64)
+                m = float(np.dot(w, x) / w.sum())
+                self.centre[term] = m
+                self.spread[term] = float(np.sqrt(np.dot(w, (x - m) ** 2) / w.sum()))
+
+    def standardized_draws(self) -> np.ndarray:
+        """Coefficient draws on the standardized scale, shape (n_draws, n_terms).
+
+        A numeric covariate's coefficient times its SD (:attr:`spread`); category and
+        missing-indicator terms unchanged (per switch from the reference); the intercept
+        replaced by the fitted effect at the numeric covariates' means (:attr:`centre`) with
+        every category at its reference and no value missing: ``gamma_0 + sum_j gamma_j mean_j``.
+        This is the same fit as the projection onto standardized columns ``(x - mean) / SD``.
+        """
+        coef = np.asarray(self.coef_draws, dtype=np.float64)
+        out = coef.copy()
+        for j, term in enumerate(self.terms):
+            if term in self.spread:
+                out[:, j] = coef[:, j] * self.spread[term]
+                out[:, 0] += coef[:, j] * self.centre[term]
+        return out
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """One row per coefficient.
@@ -267,8 +304,14 @@ class LinearSummary(SummaryResult, ProjectedFit):
         """
         cols = self.statistics(self.terms, self.coef_draws, level=level, interval=interval)
         out = pd.DataFrame({"term": self.terms, **cols})
+        std_keys = [f"{t} [standardized]" for t in self.terms]
+        std = self.statistics(std_keys, self.standardized_draws(), level=level, interval=interval)
+        out["per_sd"] = [self.spread.get(t, np.nan) for t in self.terms]
+        for c in STANDARD_COLUMNS[1:]:
+            out[c] = std[c[len("std_"):]]
         out.attrs.update({"level": float(level), "interval": interval, "label": self.label, "unit": self.draws.unit,
-                          "better": self.draws.better, "reference": dict(self.reference), "summary": "linear"})
+                          "better": self.draws.better, "reference": dict(self.reference), "summary": "linear",
+                          "standardized": "sd"})
         return out
 
     def apply_to(self, draws, *, progress=None) -> "LinearSummary":

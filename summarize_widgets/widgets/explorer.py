@@ -26,6 +26,7 @@ import plotly.graph_objects as go
 
 from ..core.validate import SummaryError, check_columns, check_int, check_interval, check_level
 from ..core.draws import EffectDraws
+from ..figures.palette import effect_palette
 from ..summaries.bundle import DEFAULT_DEPTH
 from . import panels as P
 from .controls import CovariateChooser, explorer_style, in_control_words
@@ -255,7 +256,7 @@ class Explorer(widgets.VBox):
                                               style=_WIDE, layout=widgets.Layout(width="320px", display="none"))
         self.status = widgets.HTML(self._selection_text())
         self.status.add_class("swx-status-line")
-        self.tree_view = TreeView()
+        self.tree_view = TreeView(palette=effect_palette(d.better))  # warm end = the better direction, as in the figures
         for control in (self.depth_control, self.level_control, self.interval_control, self.min_size_control,
                         self.progress):
             control.layout.margin = "2px 18px 2px 0"
