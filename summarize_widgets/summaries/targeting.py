@@ -29,7 +29,8 @@ Cross-fitting: choosing a rule and judging it on the same posterior is optimisti
 looks good by chance is both picked and credited). The units of every subgroup are split at random
 into two halves (seeded; stratified by subgroup, so each subgroup is in both halves); the rule is
 chosen from half A's sums and its gain evaluated on half B's units, and the other way round; the
-cross-fitted gain adds the two evaluations. Tables show it beside the in-sample figure.
+cross-fitted gain adds the two evaluations. For a tree, each half chooses on a tree grown on its own
+units (same depth and covariates); groups stay as they are. Tables show it beside the in-sample figure.
 """
 from __future__ import annotations
 
