@@ -32,6 +32,7 @@ from .controls import CovariateChooser, explorer_style, in_control_words
 from .results import Results
 from .tree_view import TreeView, node_records
 from .evidence_panel import EvidencePanel
+from ..export.view import write_view_folder
 
 __all__ = ["Explorer"]
 
@@ -135,7 +136,9 @@ class Explorer(widgets.VBox):
                        "selected": first, "densities": False, "covariate": None}
         self._build_controls(max_depth, level, interval, columns)
         self._build_panels()
-        super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs])
+        self._build_save_row()
+        super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs,
+                                   self._save_row])
         self.add_class("swx-explorer")
         self._refresh(all_panels=True)
         self._start_extras(self._res)
@@ -230,6 +233,64 @@ class Explorer(widgets.VBox):
         """What the view shows: depth, level, interval kind, selection and the tree's settings."""
         s = self._state
         return {**self.tree.settings, "level": s["level"], "interval": s["interval"], "selected": s["selected"]}
+
+    def save_view(self, folder, *, figures="auto") -> list:
+        """Write what is shown (subgroup table and the other tables, the figures) into a new folder.
+
+        The folder must not exist or be empty; it appears whole or not at all
+        (:func:`summarize_widgets.export.view.write_view_folder`). Returns the written paths.
+        """
+        with self._lock:
+            s = dict(self._state)
+            res = self._res
+            tree = res.at(s["depth"])
+            rule = self._rule_of(s["selected"])
+            view = {"depth": s["depth"], "min_size": tree.min_size, "columns": list(tree.columns),
+                    "selected_rule": rule or "", "covariate": s["covariate"] or ""}
+        return write_view_folder(folder, tree=tree, level=s["level"], interval=s["interval"], selected=s["selected"],
+                                 linear=res.linear, additive=res.additive,
+                                 covariate=s["covariate"] if res.additive is not None else None, view=view,
+                                 figures=figures)
+
+    def _build_save_row(self):
+        self.save_folder_control = widgets.Text(value="", placeholder="a new folder, e.g. views/depth3",
+                                                description="Folder", style=_WIDE, layout=widgets.Layout(width="340px"))
+        self.save_button = widgets.Button(description="Save this view", icon="download",
+                                          tooltip="Write the subgroup table, the other tables and the figures "
+                                                  "into a new folder (never over existing files)",
+                                          layout=widgets.Layout(width="160px"))
+        self.save_button.add_class("swx-save")
+        self.save_status = widgets.HTML()
+        self.save_status.add_class("swx-save-status")
+        self.save_button.on_click(lambda _: self._guard_save())
+        self._save_row = widgets.HBox([self.save_folder_control, self.save_button, self.save_status],
+                                      layout=widgets.Layout(align_items="center", flex_flow="row wrap",
+                                                            margin="8px 0 0 0"))
+
+    def _guard_save(self):
+        folder = self.save_folder_control.value
+        self.save_button.disabled = True
+        self.save_status.value = P.status_html("Saving the view…", tone="busy")
+        try:
+            written = self.save_view(folder)
+        except (SummaryError, FileExistsError, PermissionError) as exc:
+            self.save_status.value = P.status_html(in_control_words(str(exc)), tone="error")
+        except Exception as exc:  # noqa: BLE001 - the output area must not get a traceback
+            self.save_status.value = P.status_html(f"Could not save ({type(exc).__name__}): {exc}", tone="error")
+        else:
+            where = written[0].parent if written else folder
+            n_fig = sum(1 for p in written if p.parent.name == "figures")
+            self.save_status.value = P.status_html(f"Saved {len(written)} files ({n_fig} figure files) into "
+                                                   f"{where.resolve() if hasattr(where, 'resolve') else where}.")
+        finally:
+            self.save_button.disabled = False
+
+    def _rule_of(self, node):
+        if node is None or node < 0:
+            return None
+        full = self._res.nodes(self._res.tree.max_depth, 0.95, "equal-tailed")
+        hit = full.loc[full["node"] == node, "rule"]
+        return str(hit.iloc[0]) if len(hit) else None
 
     # -- controls and panels -----------------------------------------------------------
     def _build_controls(self, max_depth, level, interval, columns):
