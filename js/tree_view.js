@@ -48,6 +48,11 @@
  * @property {number|null} mean  posterior mean effect
  * @property {number|null} lower interval lower end
  * @property {number|null} upper interval upper end
+ * @property {string} [label]          the subgroup's printed label (S1..Sk), "" for inner nodes
+ * @property {string} [mean_text]      the mean as every table prints it (core/numbers.py)
+ * @property {string} [interval_text]  "[lower, upper]" as every table prints it
+ * @property {string} [share_text]     `share` as a percentage, as the tables print it
+ * @property {string} [unit_share_text] `unit_share` as a percentage
  */
 
 /**
@@ -395,12 +400,45 @@ export const WEAK_MARK = "\u2020";
  * @returns {string}
  */
 export function sizeLine(rec, basis = "units") {
+  const share = rec.share_text ?? formatShare(rec.share);
   if (basis === "compliers") {
     const units = rec.unit_share ?? null;
-    const ofUnits = units === null ? "" : ` (${formatShare(units)})`;
-    return `${formatCount(rec.n_units)} units${ofUnits} \u00b7 ${formatShare(rec.share)} of compliers`;
+    const unitText = rec.unit_share_text ?? (units === null ? null : formatShare(units));
+    const ofUnits = unitText === null ? "" : ` (${unitText})`;
+    return `${formatCount(rec.n_units)} units${ofUnits} \u00b7 ${share} of compliers`;
   }
-  return `${formatCount(rec.n_units)} units \u00b7 ${formatShare(rec.share)}`;
+  return `${formatCount(rec.n_units)} units \u00b7 ${share}`;
+}
+
+/**
+ * The posterior mean as printed: the record's `mean_text` (the tables' formatter, sent from
+ * Python) when present, else formatted here.
+ * @param {NodeRecord} rec
+ * @returns {string}
+ */
+export function meanText(rec) {
+  return rec.mean_text ?? formatNumber(rec.mean);
+}
+
+/**
+ * "mean [lower, upper]" as printed: the record's texts when present, else formatted here.
+ * @param {NodeRecord} rec
+ * @returns {string}
+ */
+export function estimateText(rec) {
+  if (rec.mean_text !== undefined && rec.interval_text !== undefined) return `${rec.mean_text} ${rec.interval_text}`;
+  return formatEstimate(rec.mean, rec.lower, rec.upper);
+}
+
+/**
+ * The first line of a box: "All units" for the root, else the subgroup label (leaves) and
+ * the split condition.
+ * @param {NodeRecord} rec
+ * @returns {string}
+ */
+export function headLine(rec) {
+  if (rec.parent === -1 || !rec.split) return "All units";
+  return rec.label ? `${rec.label} \u00b7 ${typeset(rec.split)}` : typeset(rec.split);
 }
 
 /**
@@ -410,9 +448,8 @@ export function sizeLine(rec, basis = "units") {
  * @returns {[string, string, string]}
  */
 export function boxLines(rec, basis = "units") {
-  const head = rec.parent === -1 || !rec.split ? "All units" : typeset(rec.split);
   const mark = rec.weak ? ` ${WEAK_MARK}` : "";
-  return [head, sizeLine(rec, basis), formatEstimate(rec.mean, rec.lower, rec.upper) + mark];
+  return [headLine(rec), sizeLine(rec, basis), estimateText(rec) + mark];
 }
 
 /**
@@ -425,16 +462,19 @@ export function ariaLabel(rec, ctx = {}) {
   const basis = ctx.basis ?? "units";
   const rule = typeset(rec.rule) || "All units";
   let size = `${formatCount(rec.n_units)} units`;
+  const share = rec.share_text ?? formatShare(rec.share);
   if (basis === "compliers") {
-    if (rec.unit_share !== undefined && rec.unit_share !== null) size += `, ${formatShare(rec.unit_share)} of units`;
-    size += `, ${formatShare(rec.share)} of compliers`;
+    if (rec.unit_share !== undefined && rec.unit_share !== null) size += `, ${rec.unit_share_text ?? formatShare(rec.unit_share)} of units`;
+    size += `, ${share} of compliers`;
   } else {
-    size += `, ${formatShare(rec.share)} of units`;
+    size += `, ${share} of units`;
   }
+  const mean = rec.mean_text ?? formatNumber(rec.mean, 4);
+  const iv = rec.interval_text ?? formatInterval(rec.lower, rec.upper);
   const parts = [
-    rec.is_leaf ? `Subgroup: ${rule}` : `${rule} (split further)`,
+    rec.is_leaf ? `Subgroup${rec.label ? ` ${rec.label}` : ""}: ${rule}` : `${rule} (split further)`,
     size,
-    `posterior mean ${formatNumber(rec.mean, 4)}, ${ctx.interval || "interval"} ${formatInterval(rec.lower, rec.upper)}`,
+    `posterior mean ${mean}, ${ctx.interval || "interval"} ${iv}`,
   ];
   if (rec.weak) parts.push("weak uptake: the estimate is unstable");
   if (ctx.limit !== undefined && rec.is_leaf && beyondScale(rec, ctx.limit)) parts.push("beyond the colour scale");
@@ -729,8 +769,9 @@ function drawBoxes(world, layout, o) {
     if (!rec.is_leaf) group.setAttribute("aria-expanded", "true");
     const title = svgEl("title", {});
     const lines = boxLines(rec, o.basis);
-    title.textContent = `${typeset(rec.rule) || "All units"}\n${lines[1]}\nmean ${formatNumber(rec.mean, 4)}, ` +
-      `${o.interval || "interval"} ${formatInterval(rec.lower, rec.upper)}` +
+    title.textContent = `${rec.label ? `${rec.label}: ` : ""}${typeset(rec.rule) || "All units"}\n${lines[1]}\n` +
+      `mean ${rec.mean_text ?? formatNumber(rec.mean, 4)}, ` +
+      `${o.interval || "interval"} ${rec.interval_text ?? formatInterval(rec.lower, rec.upper)}` +
       (rec.weak ? `\n${WEAK_MARK} weak uptake: the estimate is unstable` : "") +
       (beyond ? "\nbeyond the colour scale: drawn at its end colour" : "");
     group.appendChild(title);
@@ -741,7 +782,7 @@ function drawBoxes(world, layout, o) {
       group.appendChild(svgEl("path", { class: "swtv-beyond-mark", d: `M${g.width - s},0 L${g.width - 5},0 Q${g.width},0 ${g.width},5 L${g.width},${s} Z`, fill: ink }));
     }
     const d = o.detail;
-    const mean = formatNumber(rec.mean) + (rec.weak ? ` ${WEAK_MARK}` : "");
+    const mean = meanText(rec) + (rec.weak ? ` ${WEAK_MARK}` : "");
     // [text, class, shorter text to use before truncating]
     /** @type {[string, string, string][]} */
     const shown = d.lines >= 3 ? [[lines[0], "swtv-split", ""], [lines[1], "swtv-size", ""], [lines[2], "swtv-effect", mean]]

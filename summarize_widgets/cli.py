@@ -170,23 +170,29 @@ def _load(args):
 
 
 def _text_table(df) -> str:
-    """A terminal rendering of a summary table: readable columns, rounded numbers."""
-    import pandas as pd
+    """A terminal rendering of a summary table: the exporters' own layout and number formatter.
 
-    show = df.copy()
-    if {"lower", "upper"} <= set(show.columns):
-        show["interval"] = [f"[{lo:.3g}, {hi:.3g}]" for lo, hi in zip(show["lower"], show["upper"])]
-    keep = [c for c in ("subgroup", "rule", "term", "covariate", "x", "subgroup_a", "subgroup_b", "depth", "n_subgroups",
-                        "n_units", "share", "mean", "difference", "interval", "prob_positive", "prob_a_greater",
-                        "uptake_share", "weak_uptake") if c in show.columns]
-    show = show[keep]
-    for c in show.columns:
-        if pd.api.types.is_float_dtype(show[c]):
-            show[c] = show[c].map(lambda v: f"{v:.3g}")
+    The columns, labels (S1 .. Sk), rule text ("and", "∈", ≤) and numbers (digits per column from
+    the Monte Carlo error, ``<0.001`` for a probability at the end) are those of the Markdown and
+    HTML tables (``export.layout``, ``core.numbers``), so the terminal reads as every other output.
+    """
+    from .export.layout import format_cell, rule_to_text, table_layout
+
+    lay, digits = table_layout(df)
+    heads = [h[0] for h in lay.headers]
+    rows = [[rule_to_text(c[1]) if c[0] == "rule" else str(c[1]) if c[0] == "text" else format_cell(c, digits, "text")
+             for c in row] for row in lay.rows]
+    widths = [max([len(h)] + [len(r[k]) for r in rows]) for k, h in enumerate(heads)]
+    right = [h[2] == "r" for h in lay.headers]
+
+    def line(cells):
+        return "  ".join(c.rjust(w) if r else c.ljust(w) for c, w, r in zip(cells, widths, right)).rstrip()
+
     level = df.attrs.get("level")
     head = f"{df.attrs.get('label', '')}  ({int(round(100 * level))}% {df.attrs.get('interval', '')} intervals)" if level else ""
-    with pd.option_context("display.max_colwidth", 80, "display.width", 200):
-        return (head + "\n" if head else "") + show.to_string(index=False)
+    out = ([head] if head else []) + [line(heads)] + [line(r) for r in rows]
+    out += ["", *(f"Note: {n}" for n in lay.notes)] if lay.notes else []
+    return "\n".join(out)
 
 
 def _render(df, fmt: str) -> str:

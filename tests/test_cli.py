@@ -1,5 +1,6 @@
 """The command line: every command's help, the demo end to end, a user's own files, one-line errors."""
 import json
+import re
 import shutil
 import subprocess
 import sys
@@ -10,6 +11,7 @@ import pytest
 
 from builders import household_study, write_sampler_netcdf, write_sampler_zarr
 
+import summarize_widgets as sw
 from summarize_widgets.cli import main
 
 
@@ -48,7 +50,29 @@ def test_summarize_prints_the_subgroup_table(own_files, capsys):
                  "--depth", "1", "--min-size", "30"])
     out = capsys.readouterr().out
     assert code == 0
-    assert "age <= 50" in out and "age > 50" in out and "interval" in out
+    assert "age \u2264 50" in out and "age > 50" in out and "interval" in out
+
+
+def test_terminal_table_reads_as_the_markdown_table(own_files, capsys):
+    # One formatter: every number, label and rule the terminal prints is the Markdown table's cell text
+    # (export.to_markdown), so no "[-34.6, -24]" (ragged digits, hyphen minus) and no probability "0".
+    from summarize_widgets.cli import _text_table
+    from summarize_widgets.export import to_markdown
+    draws = np.load(own_files / "draws.npy")
+    cov = pd.read_csv(own_files / "cov.csv")
+    tree = sw.summarize_tree(sw.EffectDraws(draws, cov.drop(columns=["unit"], errors="ignore")), max_depth=2, min_size=30)
+    tab = tree.table()
+    text = _text_table(tab)
+    md_rows = [[c.strip().strip("`") for c in line.strip().strip("|").split("|")]
+               for line in to_markdown(tab).splitlines() if re.match(r"\| S\d", line)]
+    assert len(md_rows) == len(tab)
+    for cells in md_rows:
+        line = next(x for x in text.splitlines() if x.startswith(cells[0] + " "))
+        for cell in cells:
+            assert cell.replace("\\", "") in line, (cell, line)
+    rows = text.splitlines()[2:2 + len(tab)]
+    assert not re.search(r"[\[ ]-\d", "\n".join(rows))  # true minus signs only
+    assert all(r.split()[-1] not in ("0", "1") for r in rows)  # P(>0) reads <0.001 / >0.999 at the ends
 
 
 @pytest.mark.parametrize("table", ["subgroups", "contrasts", "fit", "linear", "trends"])
@@ -72,7 +96,8 @@ def test_complier_weighted_from_two_files(own_files, capsys):
     code = main(["summarize", str(own_files / "outcome_itt.npy"), "--uptake", str(own_files / "uptake_itt.npy"),
                  "--covariates", str(own_files / "cov.csv"), "--depth", "1"])
     out = capsys.readouterr().out
-    assert code == 0 and "LATE" in out and "uptake_share" in out
+    assert code == 0 and "LATE" in out and "Share of compliers" in out and "Uptake (95% interval)" in out
+    assert "ratio of sums" in out  # the complier note reaches the terminal too
 
 
 def test_errors_are_one_line_without_traceback(own_files, tmp_path):
@@ -93,7 +118,7 @@ def test_demo_writes_everything_and_refuses_to_overwrite(tmp_path):
     out = tmp_path / "demo"
     r = run("demo", "--out", str(out), "--households", "500", "--n-draws", "200")
     assert r.returncode == 0, r.stderr
-    assert "rule" in r.stdout and "interval" in r.stdout and "Summary R^2 at depth 3" in r.stdout
+    assert "Rule" in r.stdout and "interval" in r.stdout and "Summary R^2 at depth 3" in r.stdout
     for name in ["report.html", "provenance.json", "subgroups_depth3.tex", "subgroups_depth3.md",
                  "subgroups_depth3.csv", "subgroups_depth3.html", "linear.tex", "trends.csv"]:
         assert (out / name).stat().st_size > 100, name
@@ -164,7 +189,7 @@ def test_outcome_and_uptake_variables_of_one_file(sampler_files, capsys):
             "--unit-column", "household", "--depth", "1", "--min-size", "10"]
     assert main([*base, "--outcome-var", "itt_y", "--uptake", str(sampler_files / "fit.nc"), "--uptake-var", "itt_d"]) == 0
     out = capsys.readouterr().out
-    assert "LATE" in out and "uptake_share" in out
+    assert "LATE" in out and "Share of compliers" in out
 
 
 def test_the_same_variable_for_outcome_and_uptake_is_refused(sampler_files, capsys):

@@ -4,6 +4,7 @@ import pandas as pd
 import pytest
 
 import summarize_widgets as sw
+from summarize_widgets import SummaryError
 from summarize_widgets.core.query import query_mask
 
 
@@ -114,3 +115,72 @@ def test_rule_text_combines_missing_conditions_readably():
     assert combine([Condition("age", op="missing")]) == "age is missing"
     assert combine([Condition("fuel", labels=("gas", "(missing)"))]) == "fuel = gas or missing"
     assert combine([Condition("fuel", labels=("(missing)",))]) == "fuel is missing"
+
+
+# -- many levels ---------------------------------------------------------------------------------------------
+def _street_study(n=6000, levels=2000, seed=4):
+    rng = np.random.default_rng(seed)
+    X = pd.DataFrame({"age": rng.uniform(20, 80, n), "street": [f"st{k}" for k in rng.integers(0, levels, n)]})
+    X.loc[: n // 4, "street"] = "main"  # one common level
+    f = np.where(X["street"] == "main", 1.0, 0.0) + 0.01 * X["age"].to_numpy()
+    return f + rng.normal(0, 0.3, (20, n)), X
+
+
+@pytest.mark.parametrize("summarize", [sw.summarize_linear, sw.summarize_additive], ids=lambda f: f.__name__)
+def test_high_cardinality_column_is_refused_in_one_line_naming_it_and_its_count(summarize):
+    T, X = _street_study()
+    n_levels = X["street"].nunique()
+    with pytest.raises(SummaryError, match=rf"Covariate 'street' has {n_levels:,} levels, .*pool_levels=k") as err:
+        summarize(sw.EffectDraws(T, X))
+    assert "\n" not in str(err.value)
+
+
+def test_pooled_levels_keep_the_most_common_and_pool_the_rest_into_other():
+    T, X = _street_study()
+    lin = sw.summarize_linear(sw.EffectDraws(T, X), pool_levels=3)
+    street_terms = [t for t in lin.terms if t.startswith("street")]
+    common = set(X["street"].value_counts().index[:3])
+    # the reference is the first kept level (sorted); the other kept ones and "(other)" get coefficients
+    assert len(street_terms) == 3 and "street = (other)" in street_terms
+    assert {t.removeprefix("street = ") for t in street_terms} - {"(other)"} <= common
+    # pooled coding fits what an explicit pooled column fits (reference: pandas' own relabelling; the
+    # reference category may differ, the fitted values may not)
+    Xp = X.assign(street=X["street"].where(X["street"].isin(common), "(other)"))
+    ref = sw.summarize_linear(sw.EffectDraws(T, Xp))
+    np.testing.assert_allclose(lin.fitted_values(), ref.fitted_values(), rtol=1e-9, atol=1e-10)
+    np.testing.assert_allclose(lin.fit_r2, ref.fit_r2, rtol=1e-9)
+    add = sw.summarize_additive(sw.EffectDraws(T, X), pool_levels=3)
+    assert "(other)" in set(add.curves().query("covariate == 'street'")["x"])
+
+
+def test_tree_rule_for_many_levels_is_abbreviated_with_the_full_list_on_the_result():
+    T, X = _street_study()
+    tree = sw.summarize_tree(sw.EffectDraws(T, X), max_depth=1)
+    tab = tree.table()
+    assert tree.split_columns() == [(0, "street")]
+    long_row = max(tab.itertuples(), key=lambda r: len(tree.rule_levels(r.subgroup)["street"]))
+    levels = tree.rule_levels(long_row.subgroup)["street"]
+    assert len(levels) > 100 and len(long_row.rule) < 120, long_row.rule
+    assert long_row.rule.endswith(f"and {len(levels) - 5:,} more}}")
+    assert all(lv in tree.full_rule(long_row.subgroup) for lv in levels)
+    for frame in (tab, tree.nodes()):  # the same abbreviation in every table the outputs are built from
+        assert frame["rule"].map(len).max() < 120
+
+
+# -- column names ---------------------------------------------------------------------------------------------
+def test_empty_column_name_is_refused_naming_its_position():
+    rng = np.random.default_rng(0)
+    X = pd.DataFrame({"age": rng.uniform(size=50), "": rng.uniform(size=50)})
+    with pytest.raises(SummaryError, match=r"empty or blank name \(position 1 of 2\)"):
+        sw.EffectDraws(rng.normal(size=(10, 50)), X)
+
+
+def test_integer_column_names_work_in_columns_and_assign():
+    rng = np.random.default_rng(1)
+    X = pd.DataFrame({0: rng.uniform(20, 80, 300), 1: rng.normal(size=300)})
+    T = np.where(X[0].to_numpy() > 50, 1.0, 0.0) + rng.normal(0, 0.3, (30, 300))
+    d = sw.EffectDraws(T, X)
+    tree = sw.summarize_tree(d, columns=[0], max_depth=1)
+    assert tree.columns == ["0"]
+    np.testing.assert_array_equal(tree.assign(X).to_numpy(), tree.unit_subgroups())
+    assert sw.summarize_linear(d, columns=[0, 1]).terms == ["(intercept)", "0", "1"]

@@ -468,12 +468,19 @@ def test_plot_coefficients_on_a_real_linear_summary(draws):
 
     lin = summarize_linear(draws, columns=["age", INJECT])
     tab = lin.table(level=0.9)
-    fig = F.plot_coefficients(lin, level=0.9)
+    fig = F.plot_coefficients(lin, level=0.9)  # the standardized scale: per SD of a numeric covariate
     tr = _trace(fig, "coefficients")
     slopes = tab[tab.term != "(intercept)"]
-    np.testing.assert_allclose(tr.x, slopes["mean"].to_numpy()[::-1])
-    np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, slopes["lower"].to_numpy()[::-1])
-    assert len(_trace(F.plot_coefficients(lin, intercept=True), "coefficients").x) == len(tab)
+    np.testing.assert_allclose(tr.x, slopes["std_mean"].to_numpy()[::-1])
+    np.testing.assert_allclose(np.array(tr.x) - tr.error_x.arrayminus, slopes["std_lower"].to_numpy()[::-1])
+    assert "per standard deviation (SD" in fig.layout.xaxis.title.text and any("age (per SD = " in t for t in fig.layout.yaxis.ticktext)
+    raw = _trace(F.plot_coefficients(lin, level=0.9, scale="unit"), "coefficients")
+    np.testing.assert_allclose(raw.x, slopes["mean"].to_numpy()[::-1])
+    with_icpt = F.plot_coefficients(lin, intercept=True)
+    assert len(_trace(with_icpt, "coefficients").x) == len(tab)
+    assert any("(intercept) at the means" in t for t in with_icpt.layout.yaxis.ticktext)
+    with pytest.raises(SummaryError, match="`scale` must be 'sd' or 'unit'"):
+        F.plot_coefficients(lin, scale="iqr")
     _assert_no_markup_injected(fig)
 
 
@@ -665,10 +672,61 @@ def test_browser_path_setting_is_honoured(tmp_path, monkeypatch):
 # -- labels and axes -------------------------------------------------------------------------
 def test_wrap_breaks_between_conditions_and_escapes():
     text = "tenure = owner & 52.2 < dwelling_age <= 89.8 & baseline_bill > 166 & x < 3"
-    assert F._wrap(text, 40).split("<br>") == ["tenure = owner &amp;", "52.2 &lt; dwelling_age ≤ 89.8 &amp;",
-                                               "baseline_bill &gt; 166 &amp; x &lt; 3"]
-    assert F._wrap("region in {north, south, west, east, central}", 20).split("<br>") == [
-        "region in {north,", "south, west, east,", "central}"]
+    assert F._rule(text, 40).split("<br>") == ["tenure = owner and", "52.2 &lt; dwelling_age ≤ 89.8 and",
+                                               "baseline_bill &gt; 166 and x &lt; 3"]
+    assert F._rule("region in {north, south, west, east, central}", 20).split("<br>") == [
+        "region ∈ {north,", "south, west, east,", "central}"]
+
+
+def test_figures_print_rules_and_labels_as_the_tables_do(tree):
+    # One rule syntax: the figure's row labels are the table's rule text (export.layout.rule_to_text, the
+    # Markdown/HTML formatter), with the table's printed label (S1 .. Sk) in front; no "&", no "in {".
+    from summarize_widgets.export.layout import rule_to_text
+    tab = tree.table()
+    ticks = [re.sub(r"<[^>]+>", " ", t).replace("&lt;", "<").replace("&gt;", ">").replace("&amp;", "&")
+             for t in F.plot_subgroups(tree).layout.yaxis.ticktext]
+    flat = [" ".join(t.split()) for t in ticks]
+    for label, rule in zip(tab["label"], tab["rule"]):
+        assert any(t.startswith(f"{label} : {rule_to_text(rule)}") or t.startswith(f"{label}: {rule_to_text(rule)}")
+                   for t in flat), (label, rule_to_text(rule), flat)
+    fig = F.plot_contrasts(tree, int(tab["subgroup"].iloc[0]))
+    texts = " ".join(_strings(fig.to_plotly_json()))
+    assert " & " not in texts.replace("&amp;", "") and " in {" not in texts
+    assert f"{tab['label'].iloc[0]}:" in texts
+
+
+def test_unit_and_direction_reach_axis_titles_notes_and_colours():
+    # The demo's effects are in currency units per month and lower is better (saving energy).
+    from summarize_widgets.datasets.retrofit import BILL_UNIT, simulate_retrofit_study
+    study = simulate_retrofit_study(n_households=400, n_draws=120, seed=3)
+    lower = summarize_tree(study.effect_draws(), max_depth=2)
+    assert lower.draws.unit == BILL_UNIT and lower.draws.better == "lower"
+    fig = F.plot_subgroups(lower)
+    assert BILL_UNIT in fig.layout.xaxis.title.text and "Lower (more negative) values are better" in fig.layout.xaxis.title.text
+    tab = lower.table()
+    best, worst = tab["mean"].idxmin(), tab["mean"].idxmax()  # lower is better: the most negative is the best
+    vmax = float(tab["mean"].abs().max())
+    fills = {}
+    for t in fig.data:
+        if t.name in ("subgroups", "highlight") and t.marker.color is not None:
+            for x, c in zip(t.x, t.marker.color):
+                fills[round(float(x), 9)] = c
+    assert fills[round(float(tab.loc[best, "mean"]), 9)] == F.effect_color(-tab.loc[best, "mean"], vmax)
+    assert fills[round(float(tab.loc[worst, "mean"]), 9)] == F.effect_color(-tab.loc[worst, "mean"], vmax)
+    # the better subgroup takes the warm end (the last stops of DIVERGING) whichever direction is better
+    warm = F.effect_color(vmax, vmax)
+    assert fills[round(float(tab.loc[best, "mean"]), 9)] == warm
+    # the same draws declared higher-is-better colour the other way round
+    higher = sw.EffectDraws(np.asarray(study.effect_draws().values), study.covariates, unit=BILL_UNIT, better="higher")
+    fig_h = F.plot_subgroups(summarize_tree(higher, max_depth=2))
+    fills_h = {round(float(x), 9): c for t in fig_h.data if t.name == "subgroups" for x, c in zip(t.x, t.marker.color)}
+    cool = F.effect_color(-vmax, vmax)
+    assert fills_h[round(float(tab.loc[best, "mean"]), 9)] == cool  # the largest saving is now the worst case
+    # the tree view's palette agrees: reversed stops colour v as the plain scale colours -v
+    from summarize_widgets.figures.palette import DIVERGING, effect_palette
+    assert effect_palette("lower")["stops"] == DIVERGING[::-1] and effect_palette("higher")["stops"] == DIVERGING
+    curves = F.plot_curves(sw.summarize_additive(study.effect_draws(), columns=["baseline_bill"]))
+    assert BILL_UNIT in curves.layout.yaxis.title.text
 
 
 def test_effect_axes_always_show_zero():
@@ -751,7 +809,7 @@ def test_weak_uptake_does_not_set_the_effects_axis_and_is_drawn_cut_with_its_num
     assert notes == ["\u2212257 [\u2212589, \u221239]: beyond the axis"]
     # The drawn interval is cut at the edge; the hover keeps the true numbers.
     weak = [t for t in fig.data if t.name == "subgroups"][0]
-    row = list(weak.customdata[:, 0]).index("a &gt; 1 &amp; b &gt; 2")
+    row = list(weak.customdata[:, 0]).index("a &gt; 1 and b &gt; 2")
     assert weak.x[row] == pytest.approx(lo) and float(weak.customdata[row, 6]) == pytest.approx(-257.0)
     assert weak.x[row] - weak.error_x.arrayminus[row] == pytest.approx(lo)
     # Colours come from the stable subgroups: the most negative stable one gets the end colour.

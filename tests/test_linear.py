@@ -247,3 +247,44 @@ def test_per_draw_weights_fix_the_denominator_at_its_posterior_mean():
     mean_fit = (fit * wbar).sum(axis=1) / wbar.sum()
     np.testing.assert_allclose(mean_fit, (W * T).sum(axis=1) / wbar.sum(), rtol=1e-10)
     assert np.abs(mean_fit - d.overall).max() > 1e-4  # the two differ when weights vary by draw
+
+
+@pytest.mark.parametrize("weights", ["none", "unit"])
+def test_standardized_coefficients_equal_statsmodels_wls_on_standardized_columns(weights):
+    # Reference: statsmodels WLS refitted to each draw on a design whose numeric columns are
+    # standardized, (x - weighted mean) / weighted SD (divisor: the summed weight), dummies and
+    # missing indicators as they are. Its slopes are the per-SD coefficients and its intercept is
+    # the effect at the means with every category at its reference (docs/method.md section 4).
+    T, X = _data()
+    w = None
+    if weights == "unit":
+        w = np.random.default_rng(9).uniform(0.2, 3.0, T.shape[1])
+        w[:7] = 0.0
+    d = sw.EffectDraws(T, X, weights=w)
+    lin = summarize_linear(d)
+    B, terms = _design(X)
+    wbar = d.mean_weights
+    keep = wbar > 0
+    Z = B[keep].copy()
+    numeric = [j for j, t in enumerate(terms) if t in ("age", "rooms", "income")]
+    assert numeric, terms
+    for j in numeric:
+        m = np.average(Z[:, j], weights=wbar[keep])
+        Z[:, j] = (Z[:, j] - m) / np.sqrt(np.average((Z[:, j] - m) ** 2, weights=wbar[keep]))
+    ref = np.array([sm.WLS(T[s, keep], Z, weights=wbar[keep]).fit().params for s in range(0, T.shape[0], 10)])
+    std = lin.standardized_draws()[::10]
+    assert _rel(std, ref) < 1e-9
+    tab = lin.table()
+    assert list(tab.columns) == list(LINEAR_COLUMNS)
+    assert np.allclose(tab["std_mean"], lin.standardized_draws().mean(axis=0), rtol=1e-12, atol=1e-12)
+    # the SD column says which scale: each numeric term's SD, NaN for the intercept and the switches
+    for j, t in enumerate(terms):
+        if j in numeric:
+            assert tab["per_sd"].iloc[j] == pytest.approx(lin.spread[t])
+            # slopes: a positive rescaling, so P(>0) is unchanged
+            assert tab["std_prob_positive"].iloc[j] == tab["prob_positive"].iloc[j]
+        else:
+            assert np.isnan(tab["per_sd"].iloc[j])
+            if j > 0:
+                assert tab["std_mean"].iloc[j] == pytest.approx(tab["mean"].iloc[j])
+    assert tab.attrs["standardized"] == "sd"

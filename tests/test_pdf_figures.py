@@ -48,7 +48,7 @@ def _words(pdf, page):
                          capture_output=True, text=True, check=True).stdout
     size = re.search(r'<page width="([\d.]+)" height="([\d.]+)"', out)
     words = [(float(a), float(b), float(c), float(d), w) for a, b, c, d, w in
-             re.findall(r'<word xMin="([\d.]+)" yMin="([\d.]+)" xMax="([\d.]+)" yMax="([\d.]+)">([^<]*)</word>', out)]
+             re.findall(r'<word xMin="(-?[\d.]+)" yMin="(-?[\d.]+)" xMax="(-?[\d.]+)" yMax="(-?[\d.]+)">([^<]*)</word>', out)]
     return (float(size.group(1)), float(size.group(2))), words
 
 
@@ -91,9 +91,9 @@ def exported(tmp_path_factory):
     out = tmp_path_factory.mktemp("pdf_figures")
     study = simulate_retrofit_study(n_households=600, n_draws=200, seed=7)
     bundle = summarize_all(study.effect_draws(), max_depth=3, depth=3)
-    write_summary_folder(bundle, out / "offer", figures=True, figure_formats=("pdf",))
+    write_summary_folder(bundle, out / "offer", figures=True, figure_formats=("pdf", "svg"))
     complier = summarize_all(study.complier_draws(), max_depth=2, depth=2, additive=False)
-    write_summary_folder(complier, out / "late", figures=True, figure_formats=("pdf",))
+    write_summary_folder(complier, out / "late", figures=True, figure_formats=("pdf", "svg"))
     return sorted(out.glob("*/figures/*.pdf"))
 
 
@@ -107,6 +107,29 @@ def test_every_exported_pdf_page_draws_its_lowest_text_line_whole(exported, tmp_
                 failures.append(f"{pdf.parent.parent.name}/{pdf.name} p{page}: {text!r} ink ends at {ink_end:.1f} pt, "
                                 f"baseline at {baseline:.1f} pt")
     assert not failures, "clipped text:\n" + "\n".join(failures)
+
+
+def test_every_axis_title_word_is_on_the_pdf_page(exported):
+    # A title wider than its figure is cut at the page's side; poppler then reports none of the words
+    # beyond the edge. Every word of every axis title and note (the SVG's own text) must be on the page.
+    import xml.etree.ElementTree as ET
+
+    missing = []
+    for pdf in exported:
+        _, words = _words(pdf, 1)
+        on_page = {w[4] for w in words}
+        svg = ET.parse(pdf.with_suffix(".svg")).getroot()
+        titles = []
+        for t in svg.iter("{http://www.w3.org/2000/svg}text"):
+            if not any(k in (t.get("class") or "") for k in ("xtitle", "ytitle", "annotation-text")):
+                continue
+            lines = [ts for ts in t if "line" in (ts.get("class") or "")] or [t]  # plotly draws <br> lines as tspans
+            titles += [" ".join("".join(ln.itertext()).split()) for ln in lines]
+        for title in titles:
+            lost = [w for w in title.split() if w not in on_page]
+            if lost:
+                missing.append(f"{pdf.parent.parent.name}/{pdf.name}: {title!r} lacks {lost}")
+    assert not missing, "\n".join(missing)
 
 
 def test_the_check_catches_a_line_cut_above_its_baseline(exported, tmp_path):

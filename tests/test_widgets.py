@@ -223,7 +223,8 @@ def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
     tab = reference.table()
     z = np.abs(tab["mean"].to_numpy()) / tab["sd"].to_numpy()
     assert explorer.tree_view.selected == int(tab["subgroup"].iloc[np.argmax(z)])
-    assert explorer.tree_view.palette["stops"] == list(DIVERGING)
+    # the warm end marks the better direction, as in the figures: reversed stops when lower is better
+    assert explorer.tree_view.palette["stops"] == (list(DIVERGING)[::-1] if draws.better == "lower" else list(DIVERGING))
     assert explorer.tree_view.colour_limit == pytest.approx(np.abs(tab["mean"]).max())
     # Every panel was drawn at start, so a saved notebook shows them all.
     assert all(p.key is not None for p in explorer._panels.values())
@@ -245,6 +246,9 @@ def _highlighted_rule(fig_widget):
     return html.unescape(str(traces[0].customdata[0][0]).replace("<br>", " "))
 
 
+from summarize_widgets.core.rules import rule_text  # noqa: E402
+
+
 def _plain(rule):
     return rule.replace("<=", "\u2264").replace(">=", "\u2265")
 
@@ -261,7 +265,7 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     leaf = int(leaves3.leaf_ids[0])
     explorer.apply(selected=leaf, level=0.9)
     rule = leaves3.table().set_index("subgroup").loc[leaf, "rule"]
-    assert _highlighted_rule(effects) == _plain(rule)
+    assert _highlighted_rule(effects) == rule_text(rule)  # the figures print the tables' rule text
     assert explorer.status.value.count(html.escape(_plain(rule))) == 1
 
     # Intervals at the new level equal numpy quantiles (type 7) of per-draw means from a pandas groupby.
@@ -280,7 +284,7 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     assert "90% interval" in explorer._table_html.value and "nth-child" in explorer._table_html.value
     explorer._tabs.selected_index = list(explorer._panels).index("contrasts")
     contrasts = explorer._panels["contrasts"].figure
-    assert html.escape(_plain(rule), quote=False)[:30] in contrasts.layout.title.text.replace("<br>", " ")
+    assert html.escape(rule_text(rule), quote=False)[:30] in contrasts.layout.title.text.replace("<br>", " ")
     assert len(_values(contrasts.data[-1].y)) == len(leaves3.leaf_ids) - 1
 
     # Back to depth 2: the selection moves to the ancestor that is a subgroup there...
@@ -288,12 +292,12 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     explorer.apply(depth=2)
     parent = {r["node"]: r["parent"] for r in node_records(leaves3.nodes())}
     assert explorer.tree_view.selected == parent[leaf]
-    assert _highlighted_rule(effects) == _plain(leaves3.at_depth(2).table().set_index("subgroup").loc[parent[leaf], "rule"])
+    assert _highlighted_rule(effects) == rule_text(leaves3.at_depth(2).table().set_index("subgroup").loc[parent[leaf], "rule"])
     # ...and comes back to the picked subgroup when the tree is deep enough again.
     explorer.apply(depth=1)
     explorer.apply(depth=3)
     assert explorer.tree_view.selected == leaf
-    assert _highlighted_rule(effects) == _plain(rule)
+    assert _highlighted_rule(effects) == rule_text(rule)
 
 
 def _highlighted_rules(fig_widget):
@@ -311,7 +315,7 @@ def test_selecting_an_inner_node_highlights_its_subgroups_everywhere(explorer, d
     assert len(inside) >= 2
     explorer.apply(selected=inner)
     assert "split further at this depth" in explorer.status.value
-    assert _highlighted_rules(explorer._panels["effects"].figure) == sorted(_plain(r) for r in inside["rule"])
+    assert _highlighted_rules(explorer._panels["effects"].figure) == sorted(rule_text(r) for r in inside["rule"])
     explorer._tabs.selected_index = list(explorer._panels).index("table")
     rows = tree.table()["subgroup"].tolist()
     for node in inside["node"]:

@@ -13,10 +13,15 @@ import pandas as pd
 
 from .validate import SummaryError
 
-__all__ = ["ColumnSpec", "MISSING", "classify_columns", "category_codes", "linear_design"]
+__all__ = ["ColumnSpec", "MISSING", "OTHER", "MAX_LEVELS", "classify_columns", "category_codes", "linear_design"]
 
 #: Label of the category that holds missing values of a categorical covariate.
 MISSING = "(missing)"
+#: Label of the category that pools rare levels (``pool_levels=``).
+OTHER = "(other)"
+#: Most levels a categorical covariate may have in the linear and additive summaries by default
+#: (one coefficient per level; ``max_levels=`` raises it, ``pool_levels=`` pools the rest).
+MAX_LEVELS = 50
 
 
 @dataclass(frozen=True)
@@ -31,12 +36,15 @@ class ColumnSpec:
         Category labels (categorical only), in the table's own order; ``MISSING``
         last when the column has missing values.
     n_missing : int
+    pooled : bool
+        True when rare levels were pooled into :data:`OTHER` (labels not kept map there).
     """
 
     name: str
     kind: str
     categories: tuple = field(default=())
     n_missing: int = 0
+    pooled: bool = False
 
 
 def _factorize(series: pd.Series) -> tuple[np.ndarray, list[str]]:
@@ -48,8 +56,38 @@ def _factorize(series: pd.Series) -> tuple[np.ndarray, list[str]]:
     return np.asarray(codes, dtype=np.int64), [str(u) for u in uniques]
 
 
-def classify_columns(covariates: pd.DataFrame, columns: list[str]) -> list[ColumnSpec]:
-    """Classify and check each column; raise naming the column when it cannot be used."""
+def classify_columns(covariates: pd.DataFrame, columns: list[str], *, max_levels: int | None = None,
+                     pool_levels: int | None = None, summary: str = "") -> list[ColumnSpec]:
+    """Classify and check each column; raise naming the column when it cannot be used.
+
+    ``max_levels`` (linear and additive summaries: one coefficient per level) refuses a categorical
+    column with more levels, naming it and its count, unless ``pool_levels`` is given: then such a
+    column keeps its ``pool_levels`` most common levels and pools the rest into :data:`OTHER`.
+    """
+    specs = _classify(covariates, columns)
+    if max_levels is None:
+        return specs
+    out = []
+    for spec in specs:
+        n_levels = len([c for c in spec.categories if c != MISSING])
+        if spec.kind != "categorical" or n_levels <= max_levels:
+            out.append(spec)
+            continue
+        if pool_levels is None:
+            raise SummaryError(
+                f"Covariate {spec.name!r} has {n_levels:,} levels, more than the {summary} summary takes "
+                f"(max_levels={max_levels}: one coefficient per level). Drop it from `columns` (the tree summary "
+                f"handles it), pass pool_levels=k to keep its k most common levels and pool the rest into "
+                f"{OTHER!r}, or raise max_levels."
+            )
+        counts = covariates[spec.name].astype(str)[covariates[spec.name].notna()].value_counts(sort=True)
+        kept = set(counts.index[:pool_levels])
+        cats = tuple(c for c in spec.categories if c in kept) + (OTHER,) + ((MISSING,) if spec.n_missing else ())
+        out.append(ColumnSpec(spec.name, "categorical", cats, spec.n_missing, pooled=True))
+    return out
+
+
+def _classify(covariates: pd.DataFrame, columns: list[str]) -> list[ColumnSpec]:
     specs = []
     for name in columns:
         s = covariates[name]
@@ -100,7 +138,8 @@ def category_codes(series: pd.Series, spec: ColumnSpec) -> np.ndarray:
     """
     codes, uniques = _factorize(series)
     lookup = {c: k for k, c in enumerate(spec.categories)}
-    table = np.array([lookup.get(u, -1) for u in uniques] + [lookup.get(MISSING, -1)], dtype=np.int64)
+    other = lookup[OTHER] if spec.pooled else -1  # pooled: every level not kept is "(other)"
+    table = np.array([lookup.get(u, other) for u in uniques] + [lookup.get(MISSING, -1)], dtype=np.int64)
     out = table[codes]  # code -1 (missing) picks the last entry: the MISSING category
     if (out < 0).any():
         unknown = sorted({uniques[c] if c >= 0 else MISSING for c in np.unique(codes[out < 0])})

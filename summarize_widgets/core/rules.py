@@ -160,3 +160,79 @@ def combine(conditions: list[Condition], full: bool = False) -> str:
     if len(alone) <= 1:
         return alone[0] if alone else "all units"
     return " & ".join(p for p in (_render(col, st, full=full, alone=False) for col, st in state.items()) if p)
+
+
+# Operators are recognized only between spaces, so a name such as "R&D" stays text.
+RULE_OPERATORS = {
+    "<=": (r"$\leq$", "\u2264"), ">=": (r"$\geq$", "\u2265"), "<": ("$<$", "<"), ">": ("$>$", ">"),
+    "=": ("$=$", "="), "==": ("$=$", "="), "!=": (r"$\neq$", "\u2260"),
+    "&": ("and", "and"), "and": ("and", "and"), "|": ("or", "or"), "or": ("or", "or"),
+    "in": (r"$\in$", "\u2208"), "not in": (r"$\notin$", "\u2209"),
+}
+_CLOSING = {"{": "}", "[": "]"}
+
+
+def lex_rule(rule: str) -> list[tuple[str, str]]:
+    """Split a rule into ("op", op), ("set", "{inner}"), ("str", '"x"'), ("name", "x"), ("text", s), ("sp", " ")."""
+    out: list[tuple[str, str]] = []
+    i, n = 0, len(rule)
+    while i < n:
+        ch = rule[i]
+        if ch.isspace():
+            out.append(("sp", " "))
+            while i < n and rule[i].isspace():
+                i += 1
+            continue
+        if ch in "\"'`":
+            j = rule.find(ch, i + 1)
+            j = n - 1 if j < 0 else j
+            out.append(("name" if ch == "`" else "str", rule[i:j + 1]))
+            i = j + 1
+            continue
+        if ch in _CLOSING:
+            depth, j = 0, i
+            while j < n:
+                if rule[j] == ch:
+                    depth += 1
+                elif rule[j] == _CLOSING[ch]:
+                    depth -= 1
+                    if depth == 0:
+                        break
+                j += 1
+            out.append(("set", rule[i:j + 1]))
+            i = j + 1
+            continue
+        j = i
+        while j < n and not rule[j].isspace() and rule[j] not in "\"'`{[":
+            j += 1
+        out.append(("text", rule[i:j]))
+        i = j
+    # A text token that is an operator, standing between spaces (or at an end), is an operator.
+    for k, (kind, tok) in enumerate(out):
+        spaced = (k == 0 or out[k - 1][0] == "sp") and (k == len(out) - 1 or out[k + 1][0] == "sp")
+        if kind == "text" and spaced and tok in RULE_OPERATORS:
+            out[k] = ("op", tok)
+    merged: list[tuple[str, str]] = []
+    for kind, tok in out:  # "not in" is one operator
+        if kind == "op" and tok == "in" and len(merged) >= 2 and merged[-2] == ("text", "not") and merged[-1][0] == "sp":
+            merged[-2:] = [("op", "not in")]
+        else:
+            merged.append((kind, tok))
+    return merged
+
+
+def rule_text(rule) -> str:
+    """A rule as every screen output prints it (tables in HTML and Markdown, terminal, figures, widget).
+
+    Unicode comparison signs, conditions joined with "and", set membership as "∈": ``age <= 40 &
+    region in {east, west}`` reads ``age ≤ 40 and region ∈ {east, west}``. Not escaped.
+    """
+    parts = []
+    for kind, tok in lex_rule(str(rule)):
+        if kind == "op":
+            parts.append(RULE_OPERATORS[tok][1])
+        elif kind == "name" and len(tok) >= 2 and tok[-1] == "`":
+            parts.append(tok[1:-1])
+        else:
+            parts.append(tok)
+    return "".join(parts).strip()

@@ -10,7 +10,7 @@ from numbers import Integral, Real
 import numpy as np
 import pandas as pd
 
-__all__ = ["SummaryError", "format_names", "check_int", "check_level", "INTERVAL_TYPES", "check_interval",
+__all__ = ["check_levels", "SummaryError", "format_names", "check_int", "check_level", "INTERVAL_TYPES", "check_interval",
            "check_columns", "check_covariates", "describe_nonfinite"]
 
 
@@ -56,14 +56,24 @@ def check_interval(interval) -> str:
     return interval
 
 
+def check_levels(max_levels, pool_levels) -> tuple[int, int | None]:
+    """Check ``max_levels`` (at least 2) and ``pool_levels`` (None, or 1 to ``max_levels``)."""
+    max_levels = check_int(max_levels, "max_levels", low=2, high=10**9)
+    if pool_levels is not None:
+        pool_levels = check_int(pool_levels, "pool_levels", low=1, high=max_levels)
+    return max_levels, pool_levels
+
+
 def check_columns(columns, available: Sequence[str], name: str = "columns") -> list[str]:
     """Resolve a column selection against the covariate table; unknown names are listed."""
     available = list(available)
     if columns is None:
         return available
-    if isinstance(columns, str):
+    if isinstance(columns, str) or not hasattr(columns, "__iter__"):
         columns = [columns]
-    columns = list(columns)
+    # covariate names are read as text (an integer column name 3 is "3"), so `columns=[3]` names it too
+    columns = [c if c in available or not isinstance(c, (int, np.integer)) or str(c) not in available else str(c)
+               for c in columns]
     if not columns:
         raise SummaryError(f"`{name}` must name at least one covariate; got an empty list.")
     missing = [c for c in columns if c not in available]
@@ -85,6 +95,12 @@ def check_covariates(covariates, n_units: int | None = None, name: str = "covari
             f"`{name}` must be a pandas DataFrame with one row per unit; got {type(covariates).__name__}."
         )
     cols = [str(c) for c in covariates.columns]
+    blank = [k for k, c in enumerate(cols) if not c.strip()]
+    if blank:
+        raise SummaryError(
+            f"`{name}` has a column with an empty or blank name (position {blank[0]} of {len(cols)}); rules and tables "
+            "would show no name. Rename it, e.g. covariates.rename(columns={'': 'my_name'})."
+        )
     dup = sorted({c for c in cols if cols.count(c) > 1})
     if dup:
         raise SummaryError(f"`{name}` has duplicated column names: {format_names(dup)}. Rename them so each is unique.")

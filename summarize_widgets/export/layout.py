@@ -13,9 +13,11 @@ import numpy as np
 import pandas as pd
 
 from ..core import numbers as N
+from ..core.rules import RULE_OPERATORS as _OPS, lex_rule as _lex_rule, rule_text
 from ..core.validate import SummaryError, check_int
 
-__all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_type", "TABLE_COLUMNS", "format_cell"]
+__all__ = ["escape_latex", "rule_to_latex", "rule_to_text", "WEAK_MARK", "table_layout", "table_type", "TABLE_COLUMNS", "format_cell",
+           "subgroup_decimals", "subgroup_texts", "SHARE_DECIMALS"]
 
 WEAK_MARK = "\u2020"  # dagger: the weak-uptake footnote symbol
 
@@ -33,65 +35,6 @@ _LATEX_TABLE = str.maketrans(_LATEX_ESCAPES)
 def escape_latex(text) -> str:
     """Escape LaTeX specials ``& % $ # _ { } ~ ^ \\`` (and ``< > |``) in plain text; newlines become spaces."""
     return "".join(ch for ch in str(text).translate(_LATEX_TABLE) if ch >= " ")
-
-
-# Operators are recognized only between spaces, so a name such as "R&D" stays text.
-_OPS = {
-    "<=": (r"$\leq$", "\u2264"), ">=": (r"$\geq$", "\u2265"), "<": ("$<$", "<"), ">": ("$>$", ">"),
-    "=": ("$=$", "="), "==": ("$=$", "="), "!=": (r"$\neq$", "\u2260"),
-    "&": ("and", "and"), "and": ("and", "and"), "|": ("or", "or"), "or": ("or", "or"),
-    "in": (r"$\in$", "\u2208"), "not in": (r"$\notin$", "\u2209"),
-}
-_CLOSE = {"{": "}", "[": "]"}
-
-
-def _lex_rule(rule: str) -> list[tuple[str, str]]:
-    """Split a rule into ("op", op), ("set", "{inner}"), ("str", '"x"'), ("name", "x"), ("text", s), ("sp", " ")."""
-    out: list[tuple[str, str]] = []
-    i, n = 0, len(rule)
-    while i < n:
-        ch = rule[i]
-        if ch.isspace():
-            out.append(("sp", " "))
-            while i < n and rule[i].isspace():
-                i += 1
-            continue
-        if ch in "\"'`":
-            j = rule.find(ch, i + 1)
-            j = n - 1 if j < 0 else j
-            out.append(("name" if ch == "`" else "str", rule[i:j + 1]))
-            i = j + 1
-            continue
-        if ch in _CLOSE:
-            depth, j = 0, i
-            while j < n:
-                if rule[j] == ch:
-                    depth += 1
-                elif rule[j] == _CLOSE[ch]:
-                    depth -= 1
-                    if depth == 0:
-                        break
-                j += 1
-            out.append(("set", rule[i:j + 1]))
-            i = j + 1
-            continue
-        j = i
-        while j < n and not rule[j].isspace() and rule[j] not in "\"'`{[":
-            j += 1
-        out.append(("text", rule[i:j]))
-        i = j
-    # A text token that is an operator, standing between spaces (or at an end), is an operator.
-    for k, (kind, tok) in enumerate(out):
-        spaced = (k == 0 or out[k - 1][0] == "sp") and (k == len(out) - 1 or out[k + 1][0] == "sp")
-        if kind == "text" and spaced and tok in _OPS:
-            out[k] = ("op", tok)
-    merged: list[tuple[str, str]] = []
-    for kind, tok in out:  # "not in" is one operator
-        if kind == "op" and tok == "in" and len(merged) >= 2 and merged[-2] == ("text", "not") and merged[-1][0] == "sp":
-            merged[-2:] = [("op", "not in")]
-        else:
-            merged.append((kind, tok))
-    return merged
 
 
 def rule_to_latex(rule) -> str:
@@ -120,17 +63,8 @@ def rule_to_latex(rule) -> str:
     return "".join(parts)
 
 
-def rule_to_text(rule) -> str:
-    """A rule for screen formats (HTML, Markdown): unicode comparison signs, "and"/"or"; not escaped."""
-    parts = []
-    for kind, tok in _lex_rule(str(rule)):
-        if kind == "op":
-            parts.append(_OPS[tok][1])
-        elif kind == "name" and len(tok) >= 2 and tok[-1] == "`":
-            parts.append(tok[1:-1])
-        else:
-            parts.append(tok)
-    return "".join(parts).strip()
+#: Screen formats (HTML, Markdown, terminal, figures) print rules with the one core formatter.
+rule_to_text = rule_text
 
 
 # -- layout ----------------------------------------------------------------------------
@@ -221,6 +155,46 @@ def _effect_cells(df, value="mean", lower="lower", upper="upper"):
     return d, di
 
 
+#: Decimals of a percentage share in every output (tables, report, tree view).
+SHARE_DECIMALS = 1
+
+
+def subgroup_decimals(df) -> tuple[int, int]:
+    """Decimals of the mean and of the interval of a subgroup table, or of ``TreeSummary.nodes()``.
+
+    One choice per column (:func:`summarize_widgets.core.numbers.effect_decimals`) made from the
+    subgroups themselves: for ``nodes()`` only its leaves (``is_leaf``), which are the rows of the
+    subgroup table at that depth, so a subgroup prints the same digits in the tree as in the table.
+    """
+    if "is_leaf" in df.columns:
+        leaves = df[df["is_leaf"].astype(bool)]
+        df = leaves if len(leaves) else df
+    return N.effect_decimals(df)
+
+
+def subgroup_texts(df, *, minus: str = N.MINUS) -> pd.DataFrame:
+    """The screen text of each subgroup's numbers, exactly as the tables print them.
+
+    ``df`` is a subgroup table (``.table()``) or ``TreeSummary.nodes()``. Returns one row per row
+    of ``df`` (same index) with ``n_text``, ``share_text`` (share of units), ``complier_share_text``
+    (complier-weighted only, else ""), ``mean_text``, ``interval_text`` and ``prob_text`` (when
+    ``df`` has ``prob_positive``): the tree views, the report's tree diagram and every table format
+    read their numbers from here or from the same :mod:`~summarize_widgets.core.numbers` calls.
+    """
+    d, di = subgroup_decimals(df)
+    nd = _n_draws(df)
+    out = pd.DataFrame(index=df.index)
+    out["n_text"] = [N.count(v) for v in df["n_units"]]
+    out["share_text"] = [N.percent(v, SHARE_DECIMALS, minus=minus) for v in df["share"]]
+    comp = df["complier_share"] if "complier_share" in df.columns else [None] * len(df)
+    out["complier_share_text"] = ["" if v is None else N.percent(v, SHARE_DECIMALS, minus=minus) for v in comp]
+    out["mean_text"] = [N.fixed(v, d, minus=minus) for v in df["mean"]]
+    out["interval_text"] = [N.interval(lo, hi, di, minus=minus) for lo, hi in zip(df["lower"], df["upper"])]
+    if "prob_positive" in df.columns:
+        out["prob_text"] = [N.probability(p, n_draws=nd) for p in df["prob_positive"]]
+    return out
+
+
 def _n_draws(df):
     n = df.attrs.get("n_draws")
     return int(n) if n else None
@@ -243,7 +217,7 @@ def _layout(df: pd.DataFrame, table: str) -> _Layout:
         weak = df["weak_uptake"].astype(bool).to_numpy() if "weak_uptake" in df.columns else np.zeros(len(df), bool)
         complier = "complier_share" in df.columns
         uptake = "uptake_share" in df.columns
-        d, di = _effect_cells(df)
+        d, di = subgroup_decimals(df)
         headers = ([("Subgroup", "Subgroup", "l"), ("Rule", "Rule", "X")] if by_id
                    else [("Group", "Group", "l"), ("Definition", "Definition", "X")])
         headers += [("n", "$n$", "r"), ("Share of units", "Share of units", "r")]
@@ -458,7 +432,7 @@ def format_cell(cell, digits, fmt: str) -> str:
         s = N.probability(value, n_draws=cell[2] if len(cell) > 2 else None)
         return s.replace("<", r"$<$").replace(">", r"$>$") if fmt == "tex" else s
     if kind == "pct":
-        return N.percent(value, 1, minus=minus).replace("%", pct).replace("<", "$<$" if fmt == "tex" else "<")
+        return N.percent(value, SHARE_DECIMALS, minus=minus).replace("%", pct).replace("<", "$<$" if fmt == "tex" else "<")
     if kind == "uptake":
         share, lo, hi = value
         s = (f"{N.percent(share, 0, minus=minus)} [{N.percent(lo, 0, minus=minus)}, {N.percent(hi, 0, minus=minus)}]")

@@ -17,6 +17,8 @@ from .provenance import jsonable, provenance as make_provenance, provenance_line
 from ..core.validate import SummaryError, check_interval, check_level
 from ..core.files import refuse_existing, write_atomic
 from .tables import summary_tables, to_html
+from .layout import WEAK_MARK, table_layout
+from .tree_diagram import tree_diagram_svg
 from .. import figures as F
 
 __all__ = ["write_report", "render_report", "default_figures", "CAUTIONS"]
@@ -77,6 +79,30 @@ body { margin:0; background:var(--paper); color:var(--ink); font:15px/1.55 var(-
 details summary { cursor:pointer; color:var(--accent); }
 pre.sw-json { background:#F1EFEA; padding:10px 12px; overflow-x:auto; font-size:12px; }
 .sw-foot { color:var(--muted); font-size:12px; margin-top:24px; }
+.sw-tree-figure { margin:8px 0 16px; }
+.sw-tree-figure figcaption { font-size:12px; color:var(--muted); margin-top:4px; }
+.sw-shared-notes { margin:0 0 16px; }
+@media print {
+  @page { size:A4; margin:14mm 12mm; }
+  body { background:#FFFFFF; font-size:11pt; }
+  .sw-page { max-width:none; padding:0; }
+  .sw-nav, .modebar, .modebar-container, details > summary::marker { display:none !important; }
+  .sw-section { border:none; border-radius:0; padding:0; margin:0 0 14pt; background:none; }
+  .sw-section + .sw-section { break-before:page; }
+  .sw-figure, .sw-tree-figure, .sw-table, .sw-cautions, .sw-verdict, tr, h3 + .sw-figure { break-inside:avoid; }
+  h2, h3, caption { break-after:avoid; }
+  .sw-figure { min-height:0; }
+  .sw-figure .js-plotly-plot, .sw-figure .plot-container, .sw-figure .svg-container { max-width:100% !important; }
+  .sw-scroll { overflow:visible; }
+  .sw-table { font-size:9.5pt; width:100%; }
+  .sw-table thead { display:table-header-group; }
+  .sw-table tbody tr:nth-child(even) { background:none; }
+  details { display:block; }
+  details > * { display:block; }
+  pre.sw-json { white-space:pre-wrap; overflow-wrap:anywhere; max-height:none; }
+  a { color:inherit; border:none; text-decoration:none; }
+  .sw-cautions { background:none; border-left:3pt solid #999; }
+}
 """
 
 
@@ -102,6 +128,32 @@ def default_figures(*, tree=None, groups=None, additive=None, linear=None, level
     if linear is not None:
         out["linear"] = [("Linear summary coefficients", F.plot_coefficients(linear, level=level))]
     return out
+
+
+# Printing: plotly draws each figure at the screen width it had when the page loaded; redraw the
+# figures at the printed column's width before printing (and back afterwards).
+_PRINT_FIT = """(function () {
+  function fit() {
+    if (!window.Plotly) return;
+    document.querySelectorAll(".sw-figure .js-plotly-plot").forEach(function (el) {
+      var w = el.parentElement.getBoundingClientRect().width;
+      if (w > 0) window.Plotly.relayout(el, {width: Math.floor(w), autosize: false});
+    });
+  }
+  function back() {
+    if (!window.Plotly) return;
+    document.querySelectorAll(".sw-figure .js-plotly-plot").forEach(function (el) {
+      window.Plotly.relayout(el, {width: null, autosize: true});
+    });
+  }
+  window.addEventListener("beforeprint", fit);
+  window.addEventListener("afterprint", back);
+  if (window.matchMedia) {
+    var mq = window.matchMedia("print");
+    var on = function (e) { if (e.matches) fit(); else back(); };
+    if (mq.addEventListener) mq.addEventListener("change", on); else if (mq.addListener) mq.addListener(on);
+  }
+})();"""
 
 
 def _plotly_js() -> str:
@@ -139,12 +191,16 @@ def _prov_header(prov: Mapping) -> str:
     esc = html.escape
     rows = [("Made with", f"{prov['package'].get('name')} {prov['package'].get('version')}", None),
             ("Created (UTC)", str(prov.get("created_utc", "?")), None)]
+    draws_sha = prov.get("draws", {}).get("sha256")
     for d in prov.get("inputs", []):
-        rows.append((f"Input: {d.get('role')}", str(d.get("name")), d.get("sha256") or d.get("sha256_of_row_hashes")))
+        role, name = str(d.get("role") or "input"), str(d.get("name"))
+        text = name if name.startswith(role) else f"{role}: {name}"  # never the same words twice
+        digest = d.get("sha256") or d.get("sha256_of_row_hashes")
+        rows.append(("Input", text, None if digest == draws_sha else digest))
     if "draws" in prov:
         d = prov["draws"]
         rows.append(("Draws", f"{d.get('n_draws')} draws \u00d7 {d.get('n_units')} units, {d.get('n_chains')} chain(s), "
-                     f"{d.get('dtype')}", d.get("sha256")))
+                     f"{d.get('dtype')}", draws_sha))
     cells = []
     for key, text, digest in rows:
         sha = f" \u2014 SHA-256 <code>{esc(str(digest))}</code>" if digest else ""
@@ -178,7 +234,18 @@ def _setting_text(value) -> str:
 
 def _settings_html(prov: Mapping) -> str:
     esc = html.escape
-    blocks = [(f"Summary: {name}", s) for name, s in prov.get("summaries", {}).items()]
+    summaries = {name: dict(s) for name, s in prov.get("summaries", {}).items()}
+    for s in summaries.values():  # the structure fitted to these draws' own posterior: said by the label already
+        if s.get("structure_from") == s.get("label"):
+            s.pop("structure_from")
+    # A setting every summary shares (same key, same value) is listed once, not under each summary.
+    common = {}
+    if len(summaries) > 1:
+        first = next(iter(summaries.values()))
+        common = {k: v for k, v in first.items() if k != "summary"
+                  and all(k in s and _setting_text(s[k]) == _setting_text(v) for s in summaries.values())}
+    blocks = [("Every summary", common)] if common else []
+    blocks += [(f"Summary: {name}", {k: v for k, v in s.items() if k not in common}) for name, s in summaries.items()]
     if prov.get("settings"):
         blocks.append(("Export settings", prov["settings"]))
     parts = []
@@ -190,13 +257,27 @@ def _settings_html(prov: Mapping) -> str:
     return "".join(parts)
 
 
+def _tree_figure(tree, level, interval) -> str:
+    """The static tree diagram with its key (the explorer's tree view, drawn without script)."""
+    kind = "highest-density" if interval == "highest-density" else "equal-tailed"
+    compliers = "complier_share" in tree.nodes(level=level, interval=interval).columns
+    share = "units (share of units) \u00b7 share of compliers" if compliers else "units \u00b7 share of units"
+    cap = (f"Each box: subgroup label and split; {share}; posterior mean and {100 * level:g}% {kind} interval. "
+           "Subgroups are filled on the figures' colour scale of the mean.")
+    if compliers:
+        cap += f" {WEAK_MARK} and a dashed outline: weak uptake, an unstable ratio (left out of the colour range)."
+    return (f'<h3>Summary tree (depth {tree.depth})</h3><figure class="sw-tree-figure"><div class="sw-scroll">'
+            f"{tree_diagram_svg(tree, level=level, interval=interval)}</div>"
+            f"<figcaption>{html.escape(cap)}</figcaption></figure>")
+
+
 _SECTIONS = (("tree", "Subgroups from the summary tree"), ("groups", "Pre-specified groups"),
              ("additive", "Trends (additive summary)"), ("linear", "Linear summary"),
              ("evidence", "Evidence: heterogeneity, stability and summary size"), ("extra", "Figures"))
 
 
 def render_report(*, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
-                  level: float = 0.95, interval: str = "equal-tailed", digits: int = 2, points=None,
+                  level: float = 0.95, interval: str = "equal-tailed", digits: int | None = None, points=None,
                   title: str = "Posterior summary report", evidence=None) -> str:
     """The report page as a string (see :func:`write_report` for the parameters)."""
     level = check_level(level)
@@ -212,6 +293,12 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
                             interval=interval, points=points, evidence=evidence)
     figs = _normalize_figures(figures, tree, groups, additive, linear, level, interval)
     esc = html.escape
+    # A note that several tables share is stated once, above the sections, not under every table.
+    seen: dict[str, int] = {}
+    for df, _ in tables.values():
+        for note in dict.fromkeys(table_layout(df)[0].notes):
+            seen[note] = seen.get(note, 0) + 1
+    shared = [n for n, k in seen.items() if k > 1]
     body, nav, fig_no = [], [], 0
     for key, heading in _SECTIONS:
         sec_tables = [(n, t) for n, t in tables.items() if _section_of(n) == key]
@@ -223,12 +310,14 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
         if key == "evidence" and evidence is not None:
             parts.append('<div class="sw-verdicts">' + "".join(
                 f'<p class="sw-verdict"><strong>{esc(h)}.</strong> {esc(m)}</p>' for h, m in evidence.messages) + "</div>")
+        if key == "tree" and tree is not None:
+            parts.append(_tree_figure(tree, level, interval))
         for fig_title, fig in sec_figs:
             fig_no += 1
             parts.append(f"<h3>{esc(str(fig_title))}</h3>"
                          f'<div class="sw-figure">{_figure_html(fig, f"sw-figure-{fig_no}")}</div>')
         for name, (df, caption) in sec_tables:
-            table = '<div class="sw-scroll">' + to_html(df, caption=caption, digits=digits) + "</div>"
+            table = '<div class="sw-scroll">' + to_html(df, caption=caption, digits=digits, omit_notes=shared) + "</div>"
             if "contrasts" in name:  # every pair of subgroups: long, so folded
                 table = f"<details><summary>{esc(caption)} ({len(df)} pairs)</summary>{table}</details>"
             parts.append(table)
@@ -237,25 +326,31 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
     nav.append('<a href="#sw-settings">Settings and provenance</a>')
     body.append(f'<section class="sw-section" id="sw-settings"><h2>Settings and provenance</h2>{_settings_html(prov)}</section>')
     label = next((getattr(r, "label", None) for r in results.values() if getattr(r, "label", None)), None)
-    subtitle = f"Posterior summaries of the {label}" if label else "Posterior summaries"
+    subtitle = "" if label and label in title else (f"Posterior summaries of the {label}" if label else "")
+    sub_html = f'<p class="sw-sub">{esc(subtitle)}</p>' if subtitle else ""
+    notes_html = ('<aside class="sw-shared-notes">' + "".join(f'<p class="sw-note">{esc(n)}</p>' for n in shared)
+                  + "</aside>\n") if shared else ""
     cautions = "".join(f"<li>{esc(c)}</li>" for c in CAUTIONS)
-    scripts = f"<script>{_plotly_js()}</script>" if fig_no else ""
+    scripts = f"<script>{_plotly_js()}\n{_PRINT_FIT}</script>" if fig_no else ""  # one script: the library, then its print fit
     return (
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
         f'<meta http-equiv="Content-Security-Policy" content="{esc(_CSP)}">\n'
         '<meta name="viewport" content="width=device-width, initial-scale=1">\n'
         f"<title>{esc(title)}</title>\n<style>{_CSS}</style>\n{scripts}\n</head>\n<body>\n"
-        f'<div class="sw-page">\n<header class="sw-head"><h1>{esc(title)}</h1><p class="sw-sub">{esc(subtitle)}</p>'
+        f'<div class="sw-page">\n<header class="sw-head"><h1>{esc(title)}</h1>{sub_html}'
         f"{_prov_header(prov)}</header>\n"
         f'<nav class="sw-nav">{"".join(nav)}</nav>\n'
         f'<aside class="sw-cautions" id="sw-cautions"><h2>Cautions</h2><ul>{cautions}</ul></aside>\n'
+        + notes_html
         + "\n".join(body)
-        + f'\n<footer class="sw-foot">{esc(provenance_lines(prov, full=False)[0])}</footer>\n</div>\n</body>\n</html>\n'
+        # The header already names the package, time and inputs: the footer only points to the full record.
+        + '\n<footer class="sw-foot">The full provenance record is under Settings and provenance '
+          "(and in provenance.json beside exported tables).</footer>\n</div>\n</body>\n</html>\n"
     )
 
 
 def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
-                 level: float = 0.95, interval: str = "equal-tailed", digits: int = 2, points=None,
+                 level: float = 0.95, interval: str = "equal-tailed", digits: int | None = None, points=None,
                  title: str = "Posterior summary report", filename: str = "report.html",
                  overwrite: bool = False, evidence=None) -> Path:
     """Write a self-contained ``report.html`` that opens offline in any browser.
@@ -274,8 +369,10 @@ def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None,
         tables so both agree); built from the results when omitted.
     level, interval : float, str
         Credible level and interval kind of every table and figure.
-    digits : int, default 2
-        Decimals in the tables.
+    digits : int, optional
+        Decimals of every number column; by default each column's own, from the size of its
+        numbers and their Monte Carlo error (:mod:`summarize_widgets.core.numbers`), as in the
+        exported tables.
     points : dict, optional
         Grid values of the additive table (see :func:`summarize_widgets.export.curve_points`).
     title : str

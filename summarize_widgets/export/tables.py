@@ -282,10 +282,12 @@ def to_csv(df, **to_csv_kwargs) -> str:
     return df.to_csv(index=False, lineterminator="\n", **to_csv_kwargs)
 
 
-def to_html(df, *, caption=None, digits: int | None = None, provenance=None, table=None, css_class: str = "sw-table") -> str:
+def to_html(df, *, caption=None, digits: int | None = None, provenance=None, table=None, css_class: str = "sw-table",
+            omit_notes=()) -> str:
     """An HTML ``<table class="sw-table">`` with ``<caption>``, header, body and a notes footer; all text escaped.
 
-    Parameters are those of :func:`to_latex`; ``css_class`` names the table's class.
+    Parameters are those of :func:`to_latex`; ``css_class`` names the table's class; notes in
+    ``omit_notes`` are left out (the report states notes shared by several tables once).
     """
     lay, digits = table_layout(df, table, digits)
     esc = html.escape
@@ -303,7 +305,7 @@ def to_html(df, *, caption=None, digits: int | None = None, provenance=None, tab
             tds.append(f'<td class="{cls}">{esc(format_cell(c, digits, "text"))}</td>')
         out.append("<tr>" + "".join(tds) + "</tr>")
     out.append("</tbody>")
-    notes = list(lay.notes)
+    notes = [n for n in lay.notes if n not in set(omit_notes)]
     if provenance is not None:
         out.insert(0, "\n".join(f"<!-- {html.escape(line).replace('--', '- -')} -->"
                                  for line in provenance_lines(provenance, full=True)))

@@ -10,7 +10,7 @@ import numpy as np
 from ..core.validate import SummaryError
 
 __all__ = ["PALETTE", "DIVERGING", "EFFECT_PALETTE", "INK", "ACCENT", "MUTED", "GRID", "BAND", "FONT",
-           "effect_color", "effect_colorscale", "rgba"]
+           "effect_color", "effect_colorscale", "effect_palette", "benefit_sign", "rgba"]
 
 # -- colours ---------------------------------------------------------------------------------
 # Our own palette. Every pair stays at least 12 CIELAB units apart under simulated protanopia,
@@ -33,6 +33,28 @@ DIVERGING = ["#1D4E79", "#6F9BC4", "#F3F0EA", "#E2A066", "#9A4A12"]
 #: The same scale in the form the JavaScript tree view takes (``TreeView(palette=...)``); its
 #: ``divergingColour`` interpolates the stops exactly as :func:`effect_color` does.
 EFFECT_PALETTE = {"stops": list(DIVERGING), "missing": MUTED}
+
+
+
+def benefit_sign(better) -> float:
+    """+1 when higher effects are better (the default), -1 when lower ones are (``draws.better``).
+
+    Every coloured effect is drawn as ``effect_color(benefit_sign(better) * value, vmax)``, so the
+    warm end of :data:`DIVERGING` always marks the better direction and the cool end the worse one.
+    """
+    if better in (None, "higher"):
+        return 1.0
+    if better == "lower":
+        return -1.0
+    raise SummaryError(f"`better` must be 'higher' or 'lower'; got {better!r}.")
+
+
+def effect_palette(better=None) -> dict:
+    """:data:`EFFECT_PALETTE` for effects whose better direction is ``better`` (stops reversed for "lower"),
+    so the JavaScript tree view colours the same effect as :func:`effect_color` with :func:`benefit_sign`."""
+    stops = list(DIVERGING) if benefit_sign(better) > 0 else list(DIVERGING)[::-1]
+    return {"stops": stops, "missing": MUTED}
+
 
 FONT = "Helvetica Neue, Helvetica, Arial, Liberation Sans, DejaVu Sans, sans-serif"
 

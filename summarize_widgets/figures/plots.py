@@ -22,6 +22,8 @@ import pandas as pd
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
+from ..core import numbers as N
+from ..core.rules import rule_text
 from ..core.validate import SummaryError
 from ..summaries.additive import AdditiveSummary
 from ..summaries.groups import ALL_UNITS, GroupSummary
@@ -36,7 +38,7 @@ __all__ = [
 ]
 
 from .palette import (ACCENT, BAND, DIVERGING, EFFECT_PALETTE, FONT as _FONT, GRID, INK, MUTED,  # noqa: F401
-                      PALETTE, effect_color, effect_colorscale, rgba as _rgba)
+                      PALETTE, benefit_sign, effect_color, effect_colorscale, rgba as _rgba)
 
 
 # -- text ------------------------------------------------------------------------------------
@@ -51,17 +53,49 @@ def _wrap(text, width: int = 40) -> str:
     Comparison operators are typeset (``<=`` as ≤, ``>=`` as ≥) so rules read as in print.
     """
     text = str(text).replace("<=", "\u2264").replace(">=", "\u2265")
-    # Break between the conditions of a rule ("a & b & c") first, so no condition is split
+    # Break between the conditions of a rule ("a and b and c") first, so no condition is split
     # across lines unless it is longer than a line by itself.
     lines: list[str] = []
-    for part in text.split(" & "):
-        if lines and len(lines[-1]) + 3 + len(part) <= width:
-            lines[-1] += " & " + part
+    for part in text.split(" and "):
+        if lines and len(lines[-1]) + 5 + len(part) <= width:
+            lines[-1] += " and " + part
             continue
         if lines:
-            lines[-1] += " &"
+            lines[-1] += " and"
         lines += textwrap.wrap(part, width=width, break_long_words=False, break_on_hyphens=False) or [""]
     return "<br>".join(_esc(line) for line in lines)
+
+
+def _rule(rule, width: int = 40) -> str:
+    """A tree rule as the tables print it (core.rules.rule_text: "and", "∈", ≤), escaped and wrapped."""
+    return _wrap(rule_text(rule), width)
+
+
+_SMALL = "<br><span style='font-size:11px;color:#6b6e73'>{}</span>"
+
+
+def _effect_title(attrs: Mapping, effect_label, what: str) -> str:
+    """Axis title of an effect: its label, its unit (``draws.unit``), then ``what`` in parentheses."""
+    name = _esc(effect_label or attrs.get("label") or "Effect")
+    unit = attrs.get("unit")
+    head = f"{name}, {_esc(unit)}" if unit else name
+    # plotly never wraps a title: a long one is broken before its parenthesis, so it stays on the page
+    return f"{head}<br>({what})" if len(head) + len(what) > 80 else f"{head} ({what})"
+
+
+def _direction_note(attrs: Mapping) -> str | None:
+    """The figure note on which direction is better (``draws.better``) and what the colours mean."""
+    better = attrs.get("better")
+    if better == "lower":
+        return "Lower (more negative) values are better; warm colours mark the better direction."
+    if better == "higher" and attrs.get("unit"):
+        return "Higher values are better; warm colours mark the better direction."
+    return None
+
+
+def _signed_values(values, attrs: Mapping) -> np.ndarray:
+    """Values turned so that "better" is positive (the warm end of the effect scale)."""
+    return benefit_sign(attrs.get("better")) * np.asarray(values, dtype=float)
 
 
 def _padded_range(*arrays, pad: float = 0.04) -> list[float]:
@@ -263,7 +297,11 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
         # Named groups (string ids) show their name, with the query in small print; tree
         # subgroups (node ids) show their rule.
         named = isinstance(r.subgroup, str)
-        lab = _wrap(r.subgroup if named else r.rule, 42)
+        if named:
+            lab = _wrap(r.subgroup, 42)
+        else:  # the tree's printed label (S1 .. Sk, as in every table), then its rule
+            tag = getattr(r, "label", None)
+            lab = (f"<b>{_esc(tag)}</b>: " if tag else "") + _rule(r.rule, 42)
         if r.subgroup in marked:
             lab = f"<span style='color:{ACCENT}'><b>{lab}</b></span>"
         # Complier-weighted tables: `share` is the subgroup's share of all compliers, not of units.
@@ -295,6 +333,7 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     steady = ~_weak_mask(ordered)
     basis = ordered[steady] if steady.any() else ordered
     vmax = float(np.nanmax(np.abs(basis["mean"].to_numpy(float)))) if n else 0.0
+    turned = _signed_values(ordered["mean"], df.attrs)
     x_range = _padded_range(basis["lower"], basis["upper"],
                             *([draws[s] for s in basis["subgroup"]] if draws is not None else []))
     shown, clip_traces, notes = _clip_to_axis(ordered, "mean", pos, heights, x_range)
@@ -302,7 +341,8 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
              " [%{customdata[3]:.4g}, %{customdata[4]:.4g}]<br>P(effect > 0) = %{customdata[5]:.3f}"
              + ("<br>%{customdata[1]:,} units; %{customdata[2]:.1%} of all compliers" if compliers
                 else "<br>%{customdata[1]:,} units (%{customdata[2]:.1%})"))
-    columns = [[_wrap(r, 60) for r in ordered["rule"]], ordered["n_units"].astype(int),
+    columns = [[_wrap(r, 60) if isinstance(g, str) else _rule(r, 60) for g, r in zip(ordered["subgroup"], ordered["rule"])],
+               ordered["n_units"].astype(int),
                ordered["share"].astype(float), ordered["lower"].astype(float),
                ordered["upper"].astype(float), ordered["prob_positive"].astype(float), ordered["mean"].astype(float)]
     if "uptake_share" in ordered.columns:  # complier-weighted draws
@@ -320,15 +360,16 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     for name, mask in groups.items():
         sub = shown[mask]
         colour = ACCENT if name == "highlight" else INK
-        fill = effect_color(ordered["mean"].to_numpy(float)[mask], vmax) if name != "pinned" else "white"
+        fill = effect_color(turned[mask], vmax) if name != "pinned" else "white"
         traces.append(_interval_rows(sub, pos[mask], value="mean", color=colour, fill=fill,
                                      size=13 if name == "highlight" else 10,
                                      symbol="diamond" if name == "pinned" else "circle",
                                      custom=custom[mask], hover=hover, name=name))
+    note = _direction_note(df.attrs)
+    x_title = _effect_title(df.attrs, effect_label, f"mean and {level}") + (_SMALL.format(_esc(note)) if note else "")
     fig = _row_figure(
         traces + clip_traces, labels=labels, pos=pos, heights=heights, shapes=shapes, title=title,
-        x_title=f"{_esc(effect_label or df.attrs.get('label') or 'Effect')} (mean and {level})",
-        x_range=x_range)
+        x_title=x_title, x_range=x_range, extra_height=16 * x_title.count("<br>"))
     if notes:
         fig.layout.annotations = list(fig.layout.annotations) + notes
     return fig
@@ -350,10 +391,6 @@ def _weak_mask(df: pd.DataFrame) -> np.ndarray:
     return df["weak_uptake"].fillna(False).astype(bool).to_numpy()
 
 
-def _signed(x: float) -> str:
-    return f"{x:.3g}".replace("-", "\u2212")
-
-
 def _clip_to_axis(d: pd.DataFrame, value: str, pos, heights, x_range):
     """Rows whose interval leaves ``x_range`` drawn cut at its edge: an arrow there, numbers in text.
 
@@ -362,6 +399,7 @@ def _clip_to_axis(d: pd.DataFrame, value: str, pos, heights, x_range):
     """
     lo, hi = x_range
     values = d[[value, "lower", "upper"]].to_numpy(float)
+    dv, di = N.effect_decimals(d, value)  # the tables' digits (core.numbers), so the note reads as the table
     out = d.copy()
     out[[value, "lower", "upper"]] = np.clip(values, lo, hi)
     arrows_x, arrows_y, symbols, notes = [], [], [], []
@@ -380,7 +418,7 @@ def _clip_to_axis(d: pd.DataFrame, value: str, pos, heights, x_range):
         notes.append(dict(
             x=hi if right else lo, y=pos[i] + 0.28 * heights[i], xref="x", yref="y", showarrow=False,
             xanchor="right" if right else "left", yanchor="middle",
-            text=f"{_signed(m)} [{_signed(low)}, {_signed(up)}]: beyond the axis",
+            text=f"{N.fixed(m, dv)} {N.interval(low, up, di)}: beyond the axis",
             font=dict(size=11, color=PALETTE[5]), bgcolor="rgba(255,255,255,0.85)"))
     if not arrows_x:
         return out, [], notes
@@ -620,6 +658,8 @@ def curves_figure(curves: pd.DataFrame, *, covariate=None, n_cols: int = 3, effe
             fig.update_xaxes(title_text=_esc(name), **row_col)
     _band_legend(fig, level)
     label = _esc(effect_label or curves.attrs.get("label") or "Effect")
+    if curves.attrs.get("unit"):
+        label += f"<br>{_esc(curves.attrs['unit'])}"
     top = 90 if title else 60  # room for the legend above the panel titles
     fig.update_layout(**_layout(title=title, height=plot_height + top + _BOTTOM, legend=True, top=top))
     fig.update_xaxes(**_AXIS)
@@ -693,15 +733,51 @@ def _per_unit(table: pd.DataFrame, per) -> pd.DataFrame:
     return out
 
 
-def coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=None,
+def _standardized(table: pd.DataFrame) -> pd.DataFrame:
+    """The coefficient table on the standardized scale (LinearSummary's ``std_*`` columns): numeric
+    terms per SD of their covariate, switches per switch, the intercept at the covariates' means."""
+    missing = [c for c in ("per_sd", "std_mean", "std_lower", "std_upper", "std_prob_positive") if c not in table.columns]
+    if missing:
+        raise SummaryError(f"`table` lacks the standardized column(s) {', '.join(repr(c) for c in missing)} "
+                           "(LinearSummary.table() has them); pass `scale='unit'` to draw the per-unit coefficients.")
+    out = table.copy()
+    out[["mean", "lower", "upper", "prob_positive"]] = table[["std_mean", "std_lower", "std_upper",
+                                                              "std_prob_positive"]].to_numpy(float)
+    shown = []
+    for term, sd in zip(out["term"].astype(str), out["per_sd"].astype(float)):
+        if term.lower() in _INTERCEPT_NAMES:
+            shown.append(f"{term} at the means")
+        elif np.isfinite(sd):
+            shown.append(f"{term} (per SD = {N.shortest(float(f'{sd:.3g}'))})")
+        else:
+            shown.append(term)
+    out["shown"] = shown
+    return out
+
+
+_SCALES = ("sd", "unit")
+
+
+def coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=None, scale: str | None = None,
                          title: str | None = None) -> go.Figure:
     """Linear-summary coefficients: point + interval per term, in table order (first on top).
 
-    ``per`` maps terms to amounts: those coefficients are drawn per that many units
-    (for example ``{"age": 10}``: effect change per 10 years), so slopes of covariates on
-    very different scales can share one axis.
+    ``scale="sd"`` (the default when the table has the standardized columns) draws each numeric
+    covariate's coefficient per standard deviation of that covariate, category terms per switch
+    from the reference, the intercept as the effect at the covariates' means and reference
+    categories: slopes of covariates measured in years, rooms or currency share one readable axis.
+    ``scale="unit"`` draws the coefficients per unit of each covariate; ``per`` then maps terms to
+    amounts (for example ``{"age": 10}``: effect change per 10 years).
     """
-    table = _per_unit(_require(table, _COEF_COLS, "table"), per)
+    _require(table, _COEF_COLS, "table")
+    if scale is None:
+        scale = "unit" if per is not None or "std_mean" not in table.columns else "sd"
+    if scale not in _SCALES:
+        raise SummaryError(f"`scale` must be 'sd' or 'unit'; got {scale!r}.")
+    if scale == "sd" and per is not None:
+        raise SummaryError("`per` rescales per-unit coefficients; pass `scale='unit'` with it (the SD scale "
+                           "already puts every numeric covariate on one footing).")
+    table = _standardized(table) if scale == "sd" else _per_unit(table, per)
     if not intercept:
         table = table[~table["term"].astype(str).str.lower().isin(_INTERCEPT_NAMES)]
         if len(table) == 0:
@@ -713,22 +789,30 @@ def coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=Non
     vmax = float(np.nanmax(np.abs(d["mean"].to_numpy(float))))
     custom = np.column_stack([labels, d["lower"].astype(float), d["upper"].astype(float),
                               d["prob_positive"].astype(float)]).astype(object)
-    trace = _interval_rows(d, pos, value="mean", color=INK, fill=effect_color(d["mean"].to_numpy(float), vmax),
+    trace = _interval_rows(d, pos, value="mean", color=INK, fill=effect_color(_signed_values(d["mean"], table.attrs), vmax),
                            size=10, custom=custom, name="coefficients",
                            hover=("<b>%{customdata[0]}</b><br>posterior mean %{x:.4g}<br>" + level +
                           " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(coefficient > 0) = "
                           "%{customdata[3]:.3f}<extra></extra>"))
-    x_title = f"Coefficient (mean and {level})"
+    unit = table.attrs.get("unit")
+    x_title = _effect_title({"unit": unit}, "Coefficient", f"mean and {level}")
+    notes = [("numeric covariates per standard deviation (SD, given in each label); categories per switch "
+              "from the reference") if scale == "sd" else "per unit of each covariate"]
     reference = table.attrs.get("reference") or {}
     if reference:  # dummies are read against these categories
-        ref = "; ".join(f"{k} = {v}" for k, v in reference.items())
-        x_title += f"<br><span style='font-size:11px;color:#6b6e73'>compared with {_wrap(ref, 90)}</span>"
+        notes.append("compared with " + "; ".join(f"{k} = {v}" for k, v in reference.items()))
+    direction = _direction_note(table.attrs)
+    if direction:
+        notes.append(direction)
+    for note in notes:
+        x_title += _SMALL.format(_wrap(note, 110))
     return _row_figure([trace], labels=labels, pos=pos, heights=heights, title=title, x_title=x_title,
-                       x_range=_padded_range(d["lower"], d["upper"]), extra_height=16 * bool(reference))
+                       x_range=_padded_range(d["lower"], d["upper"]),
+                       extra_height=16 * x_title.count("<br>"))
 
 
 def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tailed", intercept: bool = False,
-                      per=None, title: str | None = None) -> go.Figure:
+                      scale: str = "sd", per=None, title: str | None = None) -> go.Figure:
     """Linear-summary coefficients with credible intervals.
 
     Parameters
@@ -737,11 +821,14 @@ def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tai
     level : float, default 0.95
     interval : {"equal-tailed", "highest-density"}, default "equal-tailed"
     intercept : bool, default False
-        Also draw the intercept (usually on another scale than the slopes).
+        Also draw the intercept (on the SD scale: the effect at the covariates' means and
+        reference categories).
+    scale : {"sd", "unit"}, default "sd"
+        "sd": each numeric covariate's coefficient per standard deviation of that covariate
+        (weighted as in the fit; the label says how large one SD is); "unit": per unit.
     per : mapping of term -> float, optional
-        Draw these coefficients per that many units of their covariate, e.g.
-        ``{"baseline_bill": 100, "head_age": 10}``; a slope per unit of a covariate with a
-        large range is otherwise too small to read next to the category contrasts.
+        With ``scale="unit"``: draw these coefficients per that many units of their covariate,
+        e.g. ``{"baseline_bill": 100, "head_age": 10}``.
     title : str, optional
 
     Returns
@@ -750,8 +837,10 @@ def plot_coefficients(linear, *, level: float = 0.95, interval: str = "equal-tai
     """
 
     _check_type(linear, LinearSummary, "linear")
+    if per is not None and scale == "sd":
+        scale = "unit"  # `per` names amounts of raw units
     return coefficients_figure(linear.table(level=level, interval=interval), intercept=intercept, per=per,
-                                title=title)
+                                scale=scale, title=title)
 
 
 # -- contrasts -------------------------------------------------------------------------------
@@ -768,7 +857,11 @@ def _oriented_contrasts(df: pd.DataFrame, subgroup) -> pd.DataFrame:
         "difference": -as_b["difference"], "lower": -as_b["upper"], "upper": -as_b["lower"],
         "prob_a_greater": 1.0 - as_b["prob_a_greater"],
     })
-    return pd.concat([as_a[_CONTRAST_COLS], flipped], ignore_index=True)
+    cols = list(_CONTRAST_COLS)
+    if {"label_a", "label_b"} <= set(df.columns):  # printed labels (S1 .. Sk) travel with their rules
+        flipped["label_a"], flipped["label_b"] = as_b["label_b"], as_b["label_a"]
+        cols += ["label_a", "label_b"]
+    return pd.concat([as_a[cols], flipped[cols]], ignore_index=True)
 
 
 def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None = None) -> go.Figure:
@@ -793,8 +886,15 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None =
     # "P(A > B) = 1 - P(B > A)" ignores ties, which have probability zero for continuous draws.
     # named groups (string ids) are shown by name, tree subgroups by their rule
     named = isinstance(subgroup, str)
-    name_a = subgroup if named else d["rule_a"].iloc[0]
-    names_b = [b if isinstance(b, str) else r for b, r in zip(d["subgroup_b"], d["rule_b"])]
+    def shown(label, rule):
+        return (f"{label}: " if label else "") + rule_text(rule)
+
+    if named:
+        name_a = subgroup
+    else:
+        name_a = shown(d["label_a"].iloc[0] if "label_a" in d.columns else None, d["rule_a"].iloc[0])
+    names_b = [b if isinstance(b, str) else shown(lb, r) for b, lb, r in
+               zip(d["subgroup_b"], d["label_b"] if "label_b" in d.columns else [None] * len(d), d["rule_b"])]
     weak = set(_as_list(list(weak)))
     flag = f"<br><span style='font-size:11px;color:{PALETTE[5]}'><b>\u2020 weak uptake: unstable</b></span>"
     flagged = np.array([b in weak for b in d["subgroup_b"]], bool)
@@ -805,11 +905,12 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None =
     vmax = float(np.nanmax(np.abs(d.loc[steady, "difference"].to_numpy(float))))
     x_range = _padded_range(d.loc[steady, "lower"], d.loc[steady, "upper"])
     shown, clip_traces, notes = _clip_to_axis(d, "difference", pos, heights, x_range)
-    custom = np.column_stack([[_wrap(r, 60) for r in d["rule_b"]], d["lower"].astype(float),
+    custom = np.column_stack([[_wrap(r, 60) if isinstance(b, str) else _rule(r, 60) for b, r in zip(d["subgroup_b"], d["rule_b"])],
+                              d["lower"].astype(float),
                               d["upper"].astype(float), d["prob_a_greater"].astype(float),
                               d["difference"].astype(float)]).astype(object)
     trace = _interval_rows(shown, pos, value="difference", color=INK,
-                           fill=effect_color(d["difference"].to_numpy(float), vmax), size=10, custom=custom,
+                           fill=effect_color(_signed_values(d["difference"], df.attrs), vmax), size=10, custom=custom,
                            name="contrasts", hover=("minus <b>%{customdata[0]}</b><br>difference %{customdata[4]:.4g}<br>"
                           + level + " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(A > B) = %{customdata[3]:.3f}"
                           "<extra></extra>"))
@@ -819,10 +920,18 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None =
     top = 90 + 16 * head.count("<br>") if not title else None
     fig = _row_figure([trace] + clip_traces, labels=labels, pos=pos, heights=heights, top=top, title=title,
                       title_markup=None if title else f"{head}<br>minus each other subgroup B",
-                      x_title=f"Difference in effect, A minus B (mean and {level})", x_range=x_range)
+                      x_title=_contrast_title(df.attrs, level), x_range=x_range,
+                      extra_height=16 * _contrast_title(df.attrs, level).count("<br>"))
     if notes:
         fig.layout.annotations = list(fig.layout.annotations) + notes
     return fig
+
+
+def _contrast_title(attrs: Mapping, level: str) -> str:
+    unit = attrs.get("unit")
+    title = _effect_title({"unit": unit}, "Difference in effect, A minus B", f"mean and {level}")
+    note = _direction_note(attrs)
+    return title + (_SMALL.format(_esc(note)) if note else "")
 
 
 def plot_contrasts(result, subgroup, *, level: float = 0.95, interval: str = "equal-tailed",

@@ -21,8 +21,8 @@ from numbers import Real
 import numpy as np
 import pandas as pd
 
-from ..core.design import ColumnSpec, category_codes, classify_columns, numeric_values
-from ..core.validate import SummaryError, check_columns, check_int
+from ..core.design import MAX_LEVELS, ColumnSpec, category_codes, classify_columns, numeric_values
+from ..core.validate import SummaryError, check_columns, check_int, check_levels
 from ..core.intervals import simultaneous_band
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 from .base import SummaryResult
@@ -246,7 +246,8 @@ class AdditiveSummary(SummaryResult, ProjectedFit):
                 "(not the same units); the frozen basis needs the same units with positive weight."
             )
         out = summarize_additive(draws, columns=self.columns, n_splines=self.settings["n_splines"], lam=dict(self.lam),
-                                 grid_size=self.settings["grid_size"], progress=progress)
+                                 grid_size=self.settings["grid_size"], max_levels=self.settings["max_levels"],
+                                 pool_levels=self.settings["pool_levels"], progress=progress)
         for key in ("lam_source", "criterion"):
             out.settings[key] = self.settings[key]
         out.settings["structure_from"] = self.settings.get("structure_from", self.label)
@@ -303,7 +304,7 @@ def _gcv_search(R, z, yy, P1, n):
 
 
 def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_size: int = 50,
-                       progress=None) -> AdditiveSummary:
+                       max_levels: int = MAX_LEVELS, pool_levels: int | None = None, progress=None) -> AdditiveSummary:
     """Fit an additive model to the posterior mean and apply its frozen smoother to every draw.
 
     Parameters
@@ -323,6 +324,12 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
         Points per numeric curve, between the 1st and 99th percentile of the observed
         values (all unique values when there are at most ``grid_size``). Categorical
         curves have one point per category.
+    max_levels : int, default 50
+        A categorical column with more levels is refused (one coefficient per level), with a
+        message naming it and its count, unless ``pool_levels`` is given.
+    pool_levels : int, optional
+        Keep the ``pool_levels`` most common levels of every column with more than ``max_levels``
+        and pool the rest into one category ``"(other)"``.
     progress : callable(done, total), optional
         Called after each block of the single pass over the draws.
 
@@ -338,7 +345,8 @@ def summarize_additive(draws, *, columns=None, n_splines: int = 10, lam=None, gr
     and lam. pygam casts fit weights to float32; the frozen smoother keeps the float64
     weights (the two agree exactly when the weights are float32 numbers, e.g. no weights).
     """
-    plan = plan_additive(draws, columns=columns, n_splines=n_splines, lam=lam, grid_size=grid_size)
+    plan = plan_additive(draws, columns=columns, n_splines=n_splines, lam=lam, grid_size=grid_size, max_levels=max_levels,
+                         pool_levels=pool_levels)
     return project(draws, [plan], progress=progress)[0]
 
 
@@ -380,7 +388,8 @@ class _FeatureRows:
         self.X = None
 
 
-def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_size: int = 50) -> SummaryPlan:
+def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_size: int = 50,
+                  max_levels: int = MAX_LEVELS, pool_levels: int | None = None) -> SummaryPlan:
     """The fit-structure step of :func:`summarize_additive` (no pass over the draws).
 
     Compiles pygam's terms, chooses the smoothing by GCV on the posterior mean and freezes
@@ -400,7 +409,8 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
     n_splines = check_int(n_splines, "n_splines", low=4, high=100)
     grid_size = check_int(grid_size, "grid_size", low=2, high=10_000)
     lam = _check_lam(lam, cols)
-    specs = classify_columns(draws.covariates, cols)
+    max_levels, pool_levels = check_levels(max_levels, pool_levels)
+    specs = classify_columns(draws.covariates, cols, max_levels=max_levels, pool_levels=pool_levels, summary="additive")
     X, info = _features(draws.covariates, specs, keep)
     wk = draws.mean_weights[keep]
     # The structure (knots, GCV's smoothing choice) is fitted to the standardized posterior mean: GCV's
@@ -486,6 +496,8 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
 
     settings = {
         "columns": cols,
+        "max_levels": max_levels,
+        "pool_levels": pool_levels,
         "n_splines": n_splines,
         "lam": dict(lam_used),
         "lam_source": source,

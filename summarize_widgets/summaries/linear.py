@@ -22,19 +22,26 @@ import numpy as np
 import pandas as pd
 from scipy.linalg import solve_triangular
 
-from ..core.design import classify_columns, linear_design
+from ..core.design import MAX_LEVELS, classify_columns, linear_design
 from ..core.passes import BlockReducer, LinearMap, run_pass
 from . import projection
 from .projection import ProjectedFit, SummaryPlan, no_heterogeneity, offset_centre, project, weighted_map
-from ..core.validate import SummaryError, check_columns
+from ..core.validate import SummaryError, check_columns, check_levels
 from ..core.draws import EffectDraws
 from ..core.stats import MC_COLUMNS, STAT_COLUMNS
 from .base import SummaryResult
 
-__all__ = ["summarize_linear", "plan_linear", "LinearSummary", "FrozenProjection", "LINEAR_COLUMNS"]
+__all__ = ["summarize_linear", "plan_linear", "LinearSummary", "FrozenProjection", "LINEAR_COLUMNS", "STANDARD_COLUMNS"]
 
+#: The standardized scale of every coefficient (docs/method.md section 4): ``per_sd`` is the
+#: standard deviation of a numeric covariate (weighted as in the fit; NaN for the intercept and
+#: for category and missing-indicator terms, which stay per switch); ``std_*`` summarize the
+#: coefficient per that SD, and for the intercept the effect at the covariates' means and
+#: reference categories.
+STANDARD_COLUMNS = ("per_sd", "std_mean", "std_sd", "std_lower", "std_upper", "std_prob_positive",
+                    "std_mcse_mean", "std_mcse_lower", "std_mcse_upper")
 #: Columns of the linear summary's table, in order.
-LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS)
+LINEAR_COLUMNS = ("term", *STAT_COLUMNS, *MC_COLUMNS, *STANDARD_COLUMNS)
 
 
 class _PseudoSquares(BlockReducer):
@@ -241,6 +248,10 @@ class LinearSummary(SummaryResult, ProjectedFit):
     coef_draws : ndarray, shape (n_draws, n_terms)
     reference : dict
         Reference (omitted) category of each categorical covariate.
+    centre, spread : dict
+        Weighted mean and standard deviation (divisor the summed weight) of each numeric
+        covariate's design column among the units used, with the fit's weights ``wbar``:
+        the standardized scale (coefficient x SD; intercept at the means).
     fill : dict
         Value put in place of missing values of each numeric covariate.
     label : str
@@ -256,6 +267,32 @@ class LinearSummary(SummaryResult, ProjectedFit):
         self.columns = [s.name for s in specs]
         self.reference = {s.name: s.categories[0] for s in specs if s.kind == "categorical"}
         self.fill = {k: v for k, v in fill.items() if any(s.name == k and s.n_missing for s in specs)}
+        numeric = {s.name for s in specs if s.kind == "numeric"}
+        w = np.asarray(draws.mean_weights, dtype=np.float64)[keep]
+        self.centre, self.spread = {}, {}
+        for j, term in enumerate(self.terms):
+            if term in numeric:
+                x = np.asarray(design[:, j], dtype=np.float64)
+                m = float(np.dot(w, x) / w.sum())
+                self.centre[term] = m
+                self.spread[term] = float(np.sqrt(np.dot(w, (x - m) ** 2) / w.sum()))
+
+    def standardized_draws(self) -> np.ndarray:
+        """Coefficient draws on the standardized scale, shape (n_draws, n_terms).
+
+        A numeric covariate's coefficient times its SD (:attr:`spread`); category and
+        missing-indicator terms unchanged (per switch from the reference); the intercept
+        replaced by the fitted effect at the numeric covariates' means (:attr:`centre`) with
+        every category at its reference and no value missing: ``gamma_0 + sum_j gamma_j mean_j``.
+        This is the same fit as the projection onto standardized columns ``(x - mean) / SD``.
+        """
+        coef = np.asarray(self.coef_draws, dtype=np.float64)
+        out = coef.copy()
+        for j, term in enumerate(self.terms):
+            if term in self.spread:
+                out[:, j] = coef[:, j] * self.spread[term]
+                out[:, 0] += coef[:, j] * self.centre[term]
+        return out
 
     def table(self, level: float = 0.95, interval: str = "equal-tailed") -> pd.DataFrame:
         """One row per coefficient.
@@ -267,8 +304,14 @@ class LinearSummary(SummaryResult, ProjectedFit):
         """
         cols = self.statistics(self.terms, self.coef_draws, level=level, interval=interval)
         out = pd.DataFrame({"term": self.terms, **cols})
+        std_keys = [f"{t} [standardized]" for t in self.terms]
+        std = self.statistics(std_keys, self.standardized_draws(), level=level, interval=interval)
+        out["per_sd"] = [self.spread.get(t, np.nan) for t in self.terms]
+        for c in STANDARD_COLUMNS[1:]:
+            out[c] = std[c[len("std_"):]]
         out.attrs.update({"level": float(level), "interval": interval, "label": self.label, "unit": self.draws.unit,
-                          "better": self.draws.better, "reference": dict(self.reference), "summary": "linear"})
+                          "better": self.draws.better, "reference": dict(self.reference), "summary": "linear",
+                          "standardized": "sd"})
         return out
 
     def apply_to(self, draws, *, progress=None) -> "LinearSummary":
@@ -283,7 +326,8 @@ class LinearSummary(SummaryResult, ProjectedFit):
 
         check_draws(draws)
         check_same_units(self.draws, draws, self.columns)
-        out = summarize_linear(draws, columns=self.columns, progress=progress)
+        out = summarize_linear(draws, columns=self.columns, max_levels=self.settings["max_levels"],
+                               pool_levels=self.settings["pool_levels"], progress=progress)
         out.settings["structure_from"] = self.settings.get("structure_from", self.label)
         return out
 
@@ -291,7 +335,8 @@ class LinearSummary(SummaryResult, ProjectedFit):
         return f"LinearSummary('{self.label}': {len(self.terms)} terms, {self.coef_draws.shape[0]} draws)"
 
 
-def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
+def summarize_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_levels: int | None = None,
+                     progress=None) -> LinearSummary:
     """Project every draw onto a linear model in the covariates.
 
     Parameters
@@ -301,6 +346,12 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
         Covariates (default: all). Numeric columns enter as they are (missing values:
         filled with the column mean plus a missing indicator); categorical columns are
         dummy-coded against their first category.
+    max_levels : int, default 50
+        A categorical column with more levels is refused (one coefficient per level), with a
+        message naming it and its count, unless ``pool_levels`` is given.
+    pool_levels : int, optional
+        Keep the ``pool_levels`` most common levels of every column with more than ``max_levels``
+        and pool the rest into one category ``"(other)"``.
     progress : callable(done, total), optional
         Called after each block of the single pass over the draws.
 
@@ -316,15 +367,16 @@ def summarize_linear(draws, *, columns=None, progress=None) -> LinearSummary:
     fitted values is ``sum_i w_si T_si / sum_i wbar_i``, whose denominator is fixed at its
     posterior mean (not the per-draw ratio of :attr:`EffectDraws.overall`).
     """
-    plan = plan_linear(draws, columns=columns)
+    plan = plan_linear(draws, columns=columns, max_levels=max_levels, pool_levels=pool_levels)
     return project(draws, [plan], progress=progress)[0]
 
 
-def plan_linear(draws, *, columns=None) -> SummaryPlan:
+def plan_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_levels: int | None = None) -> SummaryPlan:
     """The fit-structure step of :func:`summarize_linear` (design, its QR; no pass over the draws)."""
     keep = check_draws(draws)
     cols = check_columns(columns, list(draws.covariates.columns))
-    specs = classify_columns(draws.covariates, cols)
+    max_levels, pool_levels = check_levels(max_levels, pool_levels)
+    specs = classify_columns(draws.covariates, cols, max_levels=max_levels, pool_levels=pool_levels, summary="linear")
     B, terms, fill = linear_design(draws.covariates, specs)
     Bk = B if keep.all() else B[keep]
     del B
@@ -333,6 +385,8 @@ def plan_linear(draws, *, columns=None) -> SummaryPlan:
         Bk = Bk.astype(np.float32)
     settings = {
         "columns": cols,
+        "max_levels": max_levels,
+        "pool_levels": pool_levels,
         "terms": list(terms),
         "n_draws": draws.n_draws,
         "n_units": draws.n_units,

@@ -235,7 +235,8 @@ def linear_size_path(draws, linear, *, order: str = "lars", tolerance: float = D
         # The summary's own design (no rebuild); float32 designs are widened for the Gram products.
         terms, Bk = list(linear.terms), np.asarray(design, dtype=np.float64)
     else:
-        specs = classify_columns(draws.covariates, linear.columns)
+        specs = classify_columns(draws.covariates, linear.columns, max_levels=linear.settings.get("max_levels"),
+                                 pool_levels=linear.settings.get("pool_levels"), summary="linear")
         B, terms, _ = linear_design(draws.covariates, specs)
         if list(terms) != list(linear.terms) or linear.coef_draws.shape[0] != draws.n_draws:
             raise SummaryError("`linear` was built from other draws or covariates than `draws`; pass the draws it summarizes.")

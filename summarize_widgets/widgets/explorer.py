@@ -26,11 +26,13 @@ import plotly.graph_objects as go
 
 from ..core.validate import SummaryError, check_columns, check_int, check_interval, check_level
 from ..core.draws import EffectDraws
+from ..figures.palette import effect_palette
 from ..summaries.bundle import DEFAULT_DEPTH
 from . import panels as P
 from .controls import CovariateChooser, explorer_style, in_control_words
 from .results import Results
 from .tree_view import TreeView, node_records
+from ..export.layout import subgroup_texts
 from .evidence_panel import EvidencePanel
 from ..export.view import write_view_folder
 
@@ -324,7 +326,7 @@ class Explorer(widgets.VBox):
                                               style=_WIDE, layout=widgets.Layout(width="320px", display="none"))
         self.status = widgets.HTML(self._selection_text())
         self.status.add_class("swx-status-line")
-        self.tree_view = TreeView()
+        self.tree_view = TreeView(palette=effect_palette(d.better))  # warm end = the better direction, as in the figures
         for control in (self.depth_control, self.level_control, self.interval_control, self.min_size_control,
                         self.progress):
             control.layout.margin = "2px 18px 2px 0"
@@ -626,8 +628,10 @@ class Explorer(widgets.VBox):
         if not bool(r["is_leaf"]):
             return P.status_html(f"Selected: {rule} (split further at this depth; click one of its coloured "
                                  "subgroups to compare it with the others).")
-        return P.status_html(f"Selected: {rule} ({int(r['n_units']):,} units): posterior mean and "
-                             f"{100 * s['level']:g}% interval {P.estimate_text(r['mean'], r['lower'], r['upper'])}.")
+        t = subgroup_texts(nodes).loc[row.index[0]]  # the tables' digits (one formatter for every output)
+        label = f"{r['label']}: " if r.get("label") else ""
+        return P.status_html(f"Selected: {label}{rule} ({t['n_text']} units): posterior mean and "
+                             f"{100 * s['level']:g}% interval {t['mean_text']} {t['interval_text']}.")
 
     def _refresh_status(self):
         self.status.value = self._selection_text()

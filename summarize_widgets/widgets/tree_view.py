@@ -16,16 +16,21 @@ import anywidget
 import traitlets
 
 from ..core.validate import SummaryError
+from ..export.layout import subgroup_texts
 from ..figures.palette import EFFECT_PALETTE
 
-__all__ = ["TreeView", "NODE_FIELDS", "RECORD_FIELDS", "node_records", "asset_path", "DEFAULT_PALETTE"]
+__all__ = ["TreeView", "NODE_FIELDS", "RECORD_FIELDS", "TEXT_FIELDS", "node_records", "asset_path", "DEFAULT_PALETTE"]
 
 # Columns of TreeSummary.nodes() the records are made from (DEVELOPERS.md, the result contract).
 NODE_FIELDS = ("node", "parent", "depth", "split", "rule", "is_leaf", "n_units", "share", "mean", "lower", "upper")
-# Fields of every record the ES module reads: the columns above, plus ``unit_share`` (n_units over
-# all units: ``share`` is weighted, a share of compliers for complier-weighted draws) and ``weak``
-# (weak uptake: an unstable ratio, flagged in the box and left out of the colour range).
-RECORD_FIELDS = NODE_FIELDS + ("unit_share", "weak")
+# Fields of every record the ES module reads: the columns above (``share`` is the share of compliers when
+# ``nodes`` has ``complier_share``, i.e. for complier-weighted draws, else the share of units), plus
+# ``unit_share`` (the share of units), ``weak`` (weak uptake: an unstable ratio, flagged in the box and
+# left out of the colour range), ``label`` (the subgroup's S1..Sk label, "" for inner nodes) and the
+# numbers as every table prints them (``export.layout.subgroup_texts``, core/numbers.py): ``mean_text``,
+# ``interval_text``, ``share_text`` (of ``share``) and ``unit_share_text``.
+TEXT_FIELDS = ("label", "mean_text", "interval_text", "share_text", "unit_share_text")
+RECORD_FIELDS = NODE_FIELDS + ("unit_share", "weak") + TEXT_FIELDS
 _INT_FIELDS = ("node", "parent", "depth", "n_units")
 _FLOAT_FIELDS = ("share", "mean", "lower", "upper", "unit_share")
 
@@ -86,7 +91,8 @@ def node_records(nodes, weak=()) -> list[dict]:
     -------
     list of dict
         One dict per node with exactly the keys of ``RECORD_FIELDS``; ids and
-        counts as int, numbers as float (None for NaN), flags as bool.
+        counts as int, numbers as float (None for NaN), flags as bool, printed texts as str
+        (the same digits as the subgroup table: one formatter for every output).
     """
     missing = [f for f in NODE_FIELDS if f not in getattr(nodes, "columns", ())]
     if missing:
@@ -95,14 +101,26 @@ def node_records(nodes, weak=()) -> list[dict]:
             f"`nodes` must be a DataFrame with columns {list(NODE_FIELDS)}; missing {missing} (got columns {have})."
         )
     weak = {int(w) for w in weak}
+    texts = subgroup_texts(nodes)
+    compliers = "complier_share" in nodes.columns
     rows = nodes.loc[:, list(NODE_FIELDS)].to_dict("records")
     roots = [r["n_units"] for r in rows if int(r["parent"]) == -1]
     total = float(roots[0]) if roots and roots[0] else None
+    labels = nodes["label"].tolist() if "label" in nodes.columns else [""] * len(rows)
     out = []
-    for row in rows:
+    for k, row in enumerate(rows):
         rec = {f: _clean(row[f], f) for f in NODE_FIELDS}
-        rec["unit_share"] = _clean(rec["n_units"] / total if total else None, "unit_share")
+        t = texts.iloc[k]
+        if compliers:  # the boxes say "of compliers": the share of the compliers, beside the share of units
+            rec["unit_share"] = rec["share"]
+            rec["share"] = _clean(nodes["complier_share"].iloc[k], "share")
+            rec["share_text"], rec["unit_share_text"] = str(t["complier_share_text"]), str(t["share_text"])
+        else:
+            rec["unit_share"] = _clean(rec["n_units"] / total if total else None, "unit_share")
+            rec["share_text"] = rec["unit_share_text"] = str(t["share_text"])
         rec["weak"] = rec["node"] in weak
+        rec["label"] = "" if labels[k] is None or (isinstance(labels[k], float) and math.isnan(labels[k])) else str(labels[k])
+        rec["mean_text"], rec["interval_text"] = str(t["mean_text"]), str(t["interval_text"])
         out.append(rec)
     return out
 

@@ -2,6 +2,9 @@
 import test from "node:test";
 import assert from "node:assert/strict";
 import {
+  headLine,
+  estimateText,
+  meanText,
   GEOMETRY,
   DEFAULT_PALETTE,
   layoutTree,
@@ -309,4 +312,22 @@ test("complier designs: shares named, weak uptake marked and read out", () => {
   assert.equal(said, "Subgroup: tenure = renter; 109 units, 5% of units, 1% of compliers; posterior mean \u2212257.0, "
     + "95% equal-tailed interval [\u2212589, \u221239.0]; weak uptake: the estimate is unstable; beyond the colour scale; selected.");
   assert.ok(ariaLabel(rec(0, -1, 0)).startsWith("All units (split further); 10 units, 10% of units"));
+});
+
+test("boxes print the S label and the texts Python formatted for every output", () => {
+  const r = rec(4, 1, 2, { is_leaf: true, n_units: 109, share: 0.0083, unit_share: 0.0545, mean: -257.4, lower: -589.2,
+    upper: -39.1, weak: true, rule: "tenure = renter", split: "tenure = renter", label: "S5",
+    mean_text: "\u2212257", interval_text: "[\u2212589, \u221239]", share_text: "0.8%", unit_share_text: "5.5%" });
+  assert.equal(headLine(r), "S5 \u00b7 tenure = renter");
+  assert.equal(meanText(r), "\u2212257");
+  assert.equal(estimateText(r), "\u2212257 [\u2212589, \u221239]");
+  assert.equal(sizeLine(r, "compliers"), "109 units (5.5%) \u00b7 0.8% of compliers");
+  assert.deepEqual(boxLines(r, "compliers"), ["S5 \u00b7 tenure = renter", "109 units (5.5%) \u00b7 0.8% of compliers",
+    `\u2212257 [\u2212589, \u221239] ${WEAK_MARK}`]);
+  assert.ok(ariaLabel(r, { basis: "compliers" }).startsWith("Subgroup S5: tenure = renter; 109 units, 5.5% of units, 0.8% of compliers; "
+    + "posterior mean \u2212257, interval [\u2212589, \u221239]"));
+  // saved state without the texts still draws, formatting here
+  const old = rec(4, 1, 2, { is_leaf: true, mean: -10, lower: -14, upper: -6, split: "x > 1" });
+  assert.equal(estimateText(old), formatEstimate(-10, -14, -6));
+  assert.equal(headLine(old), "x > 1");
 });
