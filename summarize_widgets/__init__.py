@@ -15,7 +15,9 @@ from .summaries.compare import Comparison, compare_posteriors, side_by_side
 from .summaries.groups import GroupSummary, summarize_groups
 from .io.load import load_draws
 from .summaries.linear import LinearSummary, summarize_linear
+from .summaries.targeting import TargetingResult, value_of_targeting
 from .summaries.tree import TreeSummary, summarize_tree
+from .summaries.uptake import UptakeDrivers, uptake_drivers
 
 __all__ = [
     "__version__",
@@ -33,6 +35,10 @@ __all__ = [
     "compare_posteriors",
     "Comparison",
     "side_by_side",
+    "value_of_targeting",
+    "TargetingResult",
+    "uptake_drivers",
+    "UptakeDrivers",
     "simulate_retrofit_study",
     "summarize_all",
     "summarize_draws",

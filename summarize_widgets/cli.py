@@ -1,4 +1,4 @@
-"""Command line: ``summarize-widgets demo | summarize | report``.
+"""Command line: ``summarize-widgets demo | summarize | report | targeting``.
 
 Errors the user can fix (bad files, bad settings, a folder that would be overwritten)
 end in one line on stderr and exit status 2, never a traceback.
@@ -117,7 +117,48 @@ def build_parser() -> argparse.ArgumentParser:
                      help="a pre-specified group as LABEL=QUERY, e.g. --group \"older=age >= 65\" (repeatable; comparisons, "
                           "'in' lists, 'is missing', and/or/not)")
     rep.add_argument("--no-figures", action="store_true", help="skip the SVG/PDF/PNG figure files")
+    _add_targeting_parser(sub)
     return parser
+
+
+_TARGET_TABLES = ("gain", "subgroups", "curve", "halves", "uptake")
+
+
+def _add_targeting_parser(sub) -> None:
+    tg = sub.add_parser("targeting", help="what offering to some subgroups would gain (in-sample and cross-fitted)",
+                        description="Fit the subgroup tree, then print the posterior of what offering to the subgroups "
+                                    "with a high probability of benefit gains over offering to all or to none. Cross-"
+                                    "fitted figures (a tree and rule chosen on one half of the units, judged on the other) "
+                                    "stand beside the in-sample ones. Decisions about people follow your field's standards.")
+    src = tg.add_mutually_exclusive_group(required=True)
+    src.add_argument("--demo", action="store_true", help="use the built-in simulated retrofit study (no data needed)")
+    src.add_argument("--draws", dest="draws", default=None, metavar="DRAWS", help="draws file (as for `summarize`)")
+    tg.add_argument("--covariates", default=None, metavar="FILE", help="covariates, one row per unit (with --draws)")
+    g = tg.add_argument_group("reading the draws (with --draws)")
+    g.add_argument("--variable", default=None, metavar="NAME", help="variable in DRAWS holding the effects")
+    g.add_argument("--nc-group", default=None, metavar="GROUP", help="netCDF/zarr group holding the variables")
+    g.add_argument("--draws-format", default=None, choices=DRAW_FORMAT_NAMES, help="format of DRAWS")
+    g.add_argument("--unit-column", default="unit", metavar="NAME", help="covariate column holding unit ids")
+    g.add_argument("--chains", type=int, default=None, help="number of chains, stored chain-major")
+    g.add_argument("--uptake", default=None, metavar="FILE", help="uptake ITT draws (complier design)")
+    g.add_argument("--uptake-var", default=None, metavar="NAME", help="variable in the --uptake file")
+    g.add_argument("--uptake-format", default=None, choices=DRAW_FORMAT_NAMES, help="format of the --uptake file")
+    g.add_argument("--label", default=None, help="what the effect is, for titles")
+    d = tg.add_argument_group("the decision")
+    d.add_argument("--better", choices=("higher", "lower"), default=None,
+                   help="which direction of the outcome is good (default: higher; the demo's bills: lower)")
+    d.add_argument("--cost", type=float, default=0.0, help="cost of one offer, in the outcome's units (default 0)")
+    d.add_argument("--min-prob", type=float, default=0.9,
+                   help="offer a subgroup when its posterior probability of benefit is at least this (default 0.9)")
+    d.add_argument("--split-seed", type=int, default=0, help="seed of the random halves for cross-fitting (default 0)")
+    d.add_argument("--population", type=float, default=None, help="scale totals to this many units (default: the study's)")
+    d.add_argument("--compliers", action="store_true", help="with --demo: complier design (uptake and LATE tables too)")
+    d.add_argument("--depth", type=int, default=DEFAULT_DEPTH, help=f"depth of the subgroup tree (default {DEFAULT_DEPTH})")
+    d.add_argument("--min-size", type=int, default=None, help="smallest subgroup in units")
+    d.add_argument("--level", type=float, default=0.95, help="credible level (default 0.95)")
+    d.add_argument("--table", choices=_TARGET_TABLES, default=None,
+                   help="print one table only (default: the gain table, then the subgroups)")
+    d.add_argument("--format", choices=("text", "csv", "markdown", "json"), default="text", help="output format")
 
 
 def _columns(text):
@@ -309,6 +350,76 @@ def _cmd_report(args) -> int:
     return 0
 
 
+def _targeting_draws(args):
+    from .core.draws import EffectDraws
+
+    if args.demo:
+        from .datasets.retrofit import simulate_retrofit_study
+
+        study = simulate_retrofit_study()
+        draws = study.complier_draws() if args.compliers else study.effect_draws()
+        if args.better is not None and args.better != draws.better:
+            raise ValueError("--better: the demo's outcome is a winter bill, where lower is better; leave --better unset.")
+        return draws
+    if args.covariates is None:
+        raise ValueError("--draws needs --covariates FILE (one row per unit).")
+    if args.compliers:
+        raise ValueError("--compliers is for --demo; with your own draws pass --uptake FILE.")
+    for name in ("interval", "max_depth", "columns"):
+        setattr(args, name, None)
+    args.interval = "equal-tailed"
+    draws = _load(args)
+    better = args.better or "higher"
+    if draws.is_complier_weighted:
+        return EffectDraws.from_itt(draws.values, draws.uptake_values, draws.covariates, chains=draws.n_chains,
+                                    label=draws.label, better=better, source=draws.source)
+    return EffectDraws(draws.values, draws.covariates, chains=draws.n_chains, label=draws.label, better=better,
+                       source=draws.source, weights=draws.weights)
+
+
+def _cmd_targeting(args) -> int:
+    from .summaries.targeting import TARGETING_CAUTION, value_of_targeting
+    from .summaries.tree import summarize_tree
+    from .summaries.uptake import uptake_drivers
+
+    if args.table == "uptake" and not (args.uptake or args.compliers):
+        raise ValueError("--table uptake needs a complier design: --uptake FILE (or --demo --compliers).")
+    draws = _targeting_draws(args)
+    tree = summarize_tree(draws, max_depth=max(args.depth, 1), min_size=args.min_size)
+    res = value_of_targeting(tree, min_prob=args.min_prob, cost=args.cost, seed=args.split_seed,
+                             population=args.population)
+    tables = {"gain": lambda: res.table(level=args.level), "subgroups": lambda: res.subgroups(level=args.level),
+              "curve": lambda: res.curve(level=args.level), "halves": lambda: res.half_subgroups(level=args.level),
+              "uptake": lambda: uptake_drivers(tree).table(level=args.level)}
+    names = [args.table] if args.table else ["gain", "subgroups"] + (["uptake"] if draws.is_complier_weighted else [])
+    if args.format == "text":
+        print(res.headline(args.level))
+        print(res.note)
+    for name in names:
+        df = tables[name]()
+        if args.format == "text":
+            print(f"\n{name}")
+            print(_target_text(df))
+            if name == "uptake":
+                print(f"{df.attrs['note']}\n{df.attrs['caution']}")
+        else:
+            print(_render(df, args.format))
+    if args.format == "text":
+        print(f"\nCaution: {TARGETING_CAUTION}")
+    return 0
+
+
+def _target_text(df) -> str:
+    import pandas as pd
+
+    show = df.drop(columns=[c for c in df.columns if c.startswith(("ess_", "mcse_")) or c in ("rhat", "sd")])
+    for c in show.columns:
+        if pd.api.types.is_float_dtype(show[c]):
+            show[c] = show[c].map(lambda v: f"{v:.3g}")
+    with pd.option_context("display.max_colwidth", 60, "display.width", 220, "display.max_columns", 40):
+        return show.to_string(index=False)
+
+
 # Python argument spellings in library messages -> the options a command-line user types.
 _CLI_SPELLINGS = [
     (r"`format=`|`format`|format=", "--draws-format"),
@@ -322,6 +433,9 @@ _CLI_SPELLINGS = [
     (r"`columns`|columns=", "--columns"),
     (r"`level`|level=", "--level"),
     (r"`depth`|depth=", "--depth"),
+    (r"`min_prob`", "--min-prob"),
+    (r"`cost`", "--cost"),
+    (r"`population`", "--population"),
     (r"`uptake_itt`", "the --uptake draws"),
     (r"`outcome_itt`", "the outcome draws (DRAWS)"),
     (r"`covariates`", "--covariates"),
@@ -354,7 +468,8 @@ def main(argv=None) -> int:
     if args.command is None:
         parser.print_help()
         return 0
-    handler = {"demo": _cmd_demo, "summarize": _cmd_summarize, "report": _cmd_report}[args.command]
+    handler = {"demo": _cmd_demo, "summarize": _cmd_summarize, "report": _cmd_report,
+               "targeting": _cmd_targeting}[args.command]
     try:
         return handler(args)
     except (ValueError, FileExistsError, FileNotFoundError, PermissionError, RuntimeError, OSError) as exc:

@@ -23,7 +23,8 @@ def test_explorer_mounts_the_evidence_tab_and_follows_the_depth(draws):
     ex = Explorer(draws, max_depth=3, background=False, trends=False)
     panel = ex.evidence_panel
     names = list(ex._panels)
-    assert names[-1] == "evidence" and ex._tabs.get_title(len(names) - 1) == "Evidence"
+    k = names.index("evidence")
+    assert ex._tabs.get_title(k) == "Evidence" and names[k + 1:] == ["decisions"]
     text = panel.summary_html.value
     expected = heterogeneity_evidence(draws, ex.tree).message
     assert "Heterogeneity supported" in text and "Tree size" in text and "Linear summary size" in text

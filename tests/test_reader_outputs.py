@@ -112,6 +112,11 @@ def test_one_subgroup_reads_the_same_in_every_output(which, request):
     md_row = next(line for line in ex.to_markdown(table).splitlines() if line.startswith(f"| {label} "))
     assert mean in _cells(md_row, "|") or f"{mean}\u2020" in _cells(md_row, "|")
     assert iv in _cells(md_row, "|")
+    # Terminal: the command line's text table (cli.py, the same layout and formatter)
+    from summarize_widgets import cli
+
+    term_row = next(line for line in cli._text_table(table).splitlines() if line.startswith(f"{label} "))
+    assert mean in term_row and iv in term_row
     # HTML table
     html_out = H.unescape(ex.to_html(table))
     html_row = next(r for r in html_out.split("<tr>") if f">{label}<" in r)

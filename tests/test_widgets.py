@@ -229,7 +229,7 @@ def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
     # Every panel was drawn at start, so a saved notebook shows them all.
     assert all(p.key is not None for p in explorer._panels.values())
     titles = [explorer._tabs.get_title(i) for i in range(len(explorer._tabs.children))]
-    assert titles == ["Subgroup effects", "Fit by depth", "Trends", "Linear fit", "Table", "Contrasts", "Evidence"]
+    assert titles == ["Subgroup effects", "Fit by depth", "Trends", "Linear fit", "Table", "Contrasts", "Evidence", "Decisions"]
 
 
 def _values(array_like):

@@ -278,7 +278,7 @@ _SECTIONS = (("tree", "Subgroups from the summary tree"), ("groups", "Pre-specif
 
 def render_report(*, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
                   level: float = 0.95, interval: str = "equal-tailed", digits: int | None = None, points=None,
-                  title: str = "Posterior summary report", evidence=None) -> str:
+                  title: str = "Posterior summary report", evidence=None, decisions=None) -> str:
     """The report page as a string (see :func:`write_report` for the parameters)."""
     level = check_level(level)
     interval = check_interval(interval)
@@ -323,6 +323,7 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
             parts.append(table)
         parts.append("</section>")
         body.append("".join(parts))
+    fig_no = _add_decisions(decisions, body, nav, fig_no, figures, level, digits)
     nav.append('<a href="#sw-settings">Settings and provenance</a>')
     body.append(f'<section class="sw-section" id="sw-settings"><h2>Settings and provenance</h2>{_settings_html(prov)}</section>')
     label = next((getattr(r, "label", None) for r in results.values() if getattr(r, "label", None)), None)
@@ -349,10 +350,32 @@ def render_report(*, tree=None, groups=None, additive=None, linear=None, figures
     )
 
 
+def _add_decisions(decisions, body, nav, fig_no, figures, level, digits) -> int:
+    """Append the "Decisions" section (value of targeting, uptake drivers) when asked; returns the figure count."""
+    if decisions is None:
+        return fig_no
+    from .decisions import decisions_section_html
+
+    if not isinstance(decisions, Mapping) or not set(decisions) <= {"targeting", "uptake"} or not decisions:
+        raise SummaryError("`decisions` must be a dict with 'targeting' (value_of_targeting(...)) and/or 'uptake' "
+                           "(uptake_drivers(...)).")
+    fig = None
+    if figures is not None and decisions.get("targeting") is not None:
+        from ..figures.decisions import plot_targeting_curve
+
+        fig_no += 1
+        fig = _figure_html(plot_targeting_curve(decisions["targeting"], level=level), f"sw-figure-{fig_no}")
+    body.append(decisions_section_html(decisions.get("targeting"), decisions.get("uptake"), level=level,
+                                       digits=2 if digits is None else digits,
+                                       figure_html=fig))
+    nav.append('<a href="#sw-decisions">Decisions</a>')
+    return fig_no
+
+
 def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None, figures="auto", provenance=None,
                  level: float = 0.95, interval: str = "equal-tailed", digits: int | None = None, points=None,
                  title: str = "Posterior summary report", filename: str = "report.html",
-                 overwrite: bool = False, evidence=None) -> Path:
+                 overwrite: bool = False, evidence=None, decisions=None) -> Path:
     """Write a self-contained ``report.html`` that opens offline in any browser.
 
     Parameters
@@ -382,6 +405,9 @@ def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None,
     evidence : EvidenceSet, optional
         Adds an "Evidence" section: the verdicts in plain language and their tables
         (:func:`summarize_widgets.summaries.evidence_set.gather_evidence`).
+    decisions : dict, optional
+        ``{"targeting": value_of_targeting(...), "uptake": uptake_drivers(...)}`` (either or both): adds a
+        "Decisions" section with the headline, the gain-vs-share figure, the tables and their cautions.
 
     Returns
     -------
@@ -393,6 +419,6 @@ def write_report(out_dir, *, tree=None, groups=None, additive=None, linear=None,
     refuse_existing([target], overwrite=overwrite)  # before the (slow) rendering
     page = render_report(tree=tree, groups=groups, additive=additive, linear=linear, figures=figures,
                          provenance=provenance, level=level, interval=interval, digits=digits, points=points,
-                         title=title, evidence=evidence)
+                         title=title, evidence=evidence, decisions=decisions)
     out_dir.mkdir(parents=True, exist_ok=True)
     return write_atomic(target, page, overwrite=overwrite)

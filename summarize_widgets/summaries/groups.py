@@ -56,6 +56,13 @@ class GroupSummary(SummaryResult):
         #: Per-draw total weight of each group, shape (n_draws, 1 + n_groups), "All units" first.
         self.group_weight_draws = np.broadcast_to(weights, theta.shape) if weights is not None else None
 
+    @property
+    def membership(self) -> np.ndarray:
+        """Which units are in each group, bool (n_units, 1 + n_groups), columns in ``labels`` order (read-only)."""
+        v = self._masks.view()
+        v.flags.writeable = False
+        return v
+
     def _attrs(self) -> dict:
         return {"label": self.label, "summary": "groups", "unit": self.draws.unit, "better": self.draws.better}
 

@@ -32,6 +32,7 @@ from . import panels as P
 from .controls import CovariateChooser, explorer_style, in_control_words
 from .results import Results
 from .tree_view import TreeView, node_records
+from .decisions_panel import DecisionsPanel
 from ..export.layout import subgroup_texts
 from .evidence_panel import EvidencePanel
 from ..export.view import write_view_folder
@@ -373,6 +374,8 @@ class Explorer(widgets.VBox):
         panels.append(_Panel("contrasts", "Contrasts", widgets.VBox([con]), con))
         self.evidence_panel = EvidencePanel(self._draws, background=self._background)
         panels.append(_Panel("evidence", "Evidence", self.evidence_panel))
+        self.decisions_panel = DecisionsPanel()
+        panels.append(_Panel("decisions", "Decisions", self.decisions_panel))
         self._panels = {p.name: p for p in panels}
         self._tabs = widgets.Tab(children=[p.body for p in panels], titles=[self._tab_title(p) for p in panels])
         self._tabs.observe(self._guard(self._on_tab), names="selected_index")
@@ -678,6 +681,7 @@ class Explorer(widgets.VBox):
             "table": (*view, s["selected"]),
             "contrasts": (*view, s["selected"]),
             "evidence": (*view, id(self._res), id(self._res.linear)),
+            "decisions": (*view, id(self._res)),
         }[name]
 
     def _draw_panel(self, panel: _Panel) -> None:
@@ -767,6 +771,9 @@ class Explorer(widgets.VBox):
     def _draw_evidence(self, panel):
         s = self._state
         self.evidence_panel.show(self.tree, self._res.linear, level=s["level"], interval=s["interval"])
+
+    def _draw_decisions(self, panel):
+        self.decisions_panel.show(self.tree, level=self._state["level"])
 
     def _draw_contrasts(self, panel):
         s = self._state
