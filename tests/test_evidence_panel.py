@@ -60,3 +60,30 @@ def test_stability_in_the_background(draws):
     assert panel.wait(60)
     assert "First split supported: 100% of 4 trees" in panel.stability_html.value
     assert not panel.stability_button.disabled and panel.progress.layout.display == "none"
+
+
+def test_monte_carlo_warnings_reach_the_panel():
+    from summarize_widgets.core.stats import ESS_MIN, RHAT_MAX
+
+    assert (ESS_MIN, RHAT_MAX) == (400, 1.01)  # Vehtari et al. 2021 (Bayesian Analysis) thresholds
+    rng = np.random.default_rng(41)
+    n = 300
+    X = household_covariates(n, rng)
+    base = 1.0 + 1.0 * (X["age"].to_numpy() > 50)
+    # 2,000 independent draws: every ESS is well above 400, nothing is flagged.
+    good = sw.EffectDraws(base + rng.normal(0, 0.3, (2000, n)), X)
+    panel = EvidencePanel(good, background=False)
+    panel.show(sw.summarize_tree(good, max_depth=2))
+    assert "Monte Carlo precision.</strong> All " in panel.summary_html.value
+    assert "swx-verdict swx-verdict-warn" not in panel.summary_html.value
+    # Four chains of a random walk (strongly autocorrelated): R-hat far above 1.01, tiny ESS.
+    walk = np.cumsum(rng.normal(0, 0.2, (400, n)), axis=0)
+    bad = sw.EffectDraws(base + walk, X, chains=4)
+    tree = sw.summarize_tree(bad, max_depth=2)
+    flagged = tree.table()["mc_warning"].astype(str)
+    assert (flagged != "").all()  # the stats core flags these rows (R-hat and ESS)
+    panel = EvidencePanel(bad, background=False)
+    panel.show(tree)
+    text = panel.summary_html.value
+    assert "swx-verdict swx-verdict-warn" in text and "fall short of ESS of at least 400 and R-hat at most 1.01" in text
+    assert "Run more or longer chains" in text

@@ -594,7 +594,7 @@ def test_first_view_needs_the_tree_only_and_the_extras_fill_in(draws, monkeypatc
         assert gate.wait(30)
         return real(*args, **kwargs)
     monkeypatch.setattr(_results, "summarize_extras", held)
-    ex = Explorer(draws, max_depth=3, depth=2, additive_options={"lam": 1.0})
+    ex = Explorer(draws, max_depth=3, depth=2, additive_options={"lam": 1.0}, fill_in_background=True)
     assert started.wait(30)
     # The first view is there while the extras wait: tree, table, and the tabs say what is coming.
     assert ex.tree_view.leaf_ids == [int(i) for i in summarize_tree(draws, max_depth=3).at_depth(2).leaf_ids]
@@ -625,7 +625,7 @@ def test_a_failure_on_the_extras_thread_is_shown_in_their_tabs(draws, monkeypatc
     def broken(*args, **kwargs):
         raise RuntimeError("disk on fire")
     monkeypatch.setattr(_results, "summarize_extras", broken)
-    ex = Explorer(draws, max_depth=3, depth=2, additive_options={"lam": 1.0})
+    ex = Explorer(draws, max_depth=3, depth=2, additive_options={"lam": 1.0}, fill_in_background=True)
     assert ex.wait(timeout=60)
     assert ex.pending == set()
     for name, tab in (("linear", "Linear fit"), ("additive", "Trends")):

@@ -17,6 +17,7 @@ from ..core.validate import SummaryError
 from ..export.tables import to_html
 from ..summaries.evidence import heterogeneity_evidence, unit_sd_draws
 from ..summaries.evidence_set import DEFAULT_STABILITY_FITS
+from ..summaries.precision import precision_check
 from ..summaries.size_path import linear_size_path, tree_size_path
 from ..summaries.stability import structure_stability
 
@@ -32,6 +33,7 @@ _STYLE = (
     ".{s} .sw-note {{font-size: 12px; color: #555; margin: 2px 0;}}"
     ".{s} .swx-verdict {{margin: 4px 0 8px; padding: 6px 10px; border-left: 3px solid #2E5F8A; background: #F4F7FA;"
     " font-size: 13px; line-height: 1.45;}}"
+    ".{s} .swx-verdict-warn {{border-left-color: #B5651D; background: #FFF6EC;}}"
     ".{s} h4 {{margin: 12px 0 4px; font-size: 14px;}}"
 )
 
@@ -98,8 +100,10 @@ class EvidencePanel(widgets.VBox):
     def _wrap(self, inner: str) -> str:
         return f'<div class="{self._scope}"><style>{_STYLE.format(s=self._scope)}</style>{inner}</div>'
 
-    def _verdict(self, heading: str, text: str) -> str:
-        return f'<div class="swx-verdict"><strong>{html.escape(heading)}.</strong> {html.escape(text)}</div>'
+    def _verdict(self, heading: str, text: str, *, warn: bool = False) -> str:
+        cls = "swx-verdict swx-verdict-warn" if warn else "swx-verdict"
+        role = ' role="alert"' if warn else ""
+        return f'<div class="{cls}"{role}><strong>{html.escape(heading)}.</strong> {html.escape(text)}</div>'
 
     def show(self, tree, linear=None, *, level: float = 0.95, interval: str = "equal-tailed") -> None:
         """Redraw for ``tree`` (at the depth shown) and the linear summary; no pass over the draws
@@ -109,23 +113,33 @@ class EvidencePanel(widgets.VBox):
             if self._unit_sd is None:
                 self._unit_sd = unit_sd_draws(self._draws)
             parts = []
+            checked = {"subgroups": tree.table(level=level, interval=interval)}
+            if linear is not None:
+                checked["linear summary"] = linear.table(level=level, interval=interval)
             try:
                 het = heterogeneity_evidence(self._draws, tree, threshold=self._threshold, level=level,
                                              interval=interval, unit_sd=self._unit_sd)
                 parts.append(self._verdict("Heterogeneity", het.message))
-                parts.append(to_html(het.table(level, interval), caption="Spread of the effects"))
+                checked["heterogeneity"] = het.table(level, interval)
+                parts.append(to_html(checked["heterogeneity"], caption="Spread of the effects"))
             except SummaryError as exc:
                 parts.append(_status(f"Heterogeneity: {exc}", tone="error"))
             if tree.max_depth > 1:
                 tp = tree_size_path(tree, tolerance=self._tolerance)
                 parts.append(self._verdict("Tree size", tp.message))
-                parts.append(to_html(tp.table(level, interval), caption="Summary R\u00b2 by number of subgroups"))
+                checked["tree sizes"] = tp.table(level, interval)
+                parts.append(to_html(checked["tree sizes"], caption="Summary R\u00b2 by number of subgroups"))
             if linear is not None:
                 lp = self._linear_paths.get(id(linear))
                 if lp is None:
                     lp = self._linear_paths[id(linear)] = linear_size_path(self._draws, linear, tolerance=self._tolerance)
                 parts.append(self._verdict("Linear summary size", lp.message))
-                parts.append(to_html(lp.table(level, interval), caption="Summary R\u00b2 of nested linear summaries"))
+                checked["linear sizes"] = lp.table(level, interval)
+                parts.append(to_html(checked["linear sizes"], caption="Summary R\u00b2 of nested linear summaries"))
+            # Monte Carlo precision (ESS < 400 or R-hat > 1.01 in any row's mc_warning) of every number shown,
+            # first: a flagged number should be read before the verdicts it feeds.
+            prec = precision_check(checked)
+            parts.insert(0, self._verdict("Monte Carlo precision", prec.message, warn=not prec.ok))
             self.summary_html.value = self._wrap("".join(parts))
             self._draw_stability()
 

@@ -35,6 +35,7 @@ from .tree_view import TreeView, node_records
 from .decisions_panel import DecisionsPanel
 from ..export.layout import subgroup_texts
 from .evidence_panel import EvidencePanel
+from ..export.view import write_view_folder
 
 __all__ = ["Explorer"]
 
@@ -85,12 +86,16 @@ class Explorer(widgets.VBox):
         Extra keyword arguments for :func:`summarize_widgets.summarize_additive`
         (for example ``{"lam": 1.0}`` to skip the smoothing search).
     background : bool, default True
-        Show the first view once the tree is computed (one pass over the draws) and compute the
+        With ``fill_in_background``, show the first view once the tree is computed (one pass over the draws) and compute the
         linear and additive summaries on a worker thread (one more pass, shared by both); their
         tabs say "(computing…)" until they are ready. Recomputations triggered from the controls
         also run there. False computes everything before the explorer is shown (one fused pass).
         A notebook run headlessly (nbclient, nbconvert) should call :meth:`wait` before its
         widget state is saved.
+    fill_in_background : bool, default False
+        With ``background``: show the first view after the tree's pass and fill in the linear
+        and additive tabs from the worker thread (experimental: in JupyterLab the figures did
+        not sync after such an update; see the issue's notes).
 
     Attributes
     ----------
@@ -102,7 +107,8 @@ class Explorer(widgets.VBox):
 
     def __init__(self, draws, *, max_depth: int = 4, depth: int | None = None, min_size: int | None = None,
                  columns=None, level: float = 0.95, interval: str = "equal-tailed", trends: bool = True,
-                 linear: bool = True, additive_options: Mapping | None = None, background: bool = True):
+                 linear: bool = True, additive_options: Mapping | None = None, background: bool = True,
+                 fill_in_background: bool = False):
         if not isinstance(draws, EffectDraws):
             raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); "
                                f"got {type(draws).__name__}.")
@@ -117,6 +123,10 @@ class Explorer(widgets.VBox):
         self._draws = draws
         self._options = {"trends": bool(trends), "linear": bool(linear), "additive_options": dict(additive_options or {})}
         self._background = bool(background)
+        # Off by default: in JupyterLab (tests/browser) figure widgets updated from the worker thread
+        # stopped syncing (width and highlight never reached the page); until that is understood the
+        # first view waits for the one fused pass of every summary.
+        self._extras_later = self._background and bool(fill_in_background)
         self._lock = threading.RLock()  # one view update at a time (main thread or worker)
         self._pending = None
         self._worker: threading.Thread | None = None
@@ -130,7 +140,7 @@ class Explorer(widgets.VBox):
         # With a worker thread the first view needs the tree only (one pass); the linear and
         # additive summaries follow on the thread (one more pass, shared) and fill their tabs.
         self._res = Results.compute(draws, max_depth=max_depth, min_size=min_size, columns=columns,
-                                    extras_later=self._background, **self._options)
+                                    extras_later=self._extras_later, **self._options)
         first = self._res.standout(depth)
         # "anchor" is the node last picked; "selected" is what is shown: the anchor, or its
         # ancestor while the tree is shallower than the anchor (so depth 3 -> 1 -> 3 comes back).
@@ -138,7 +148,9 @@ class Explorer(widgets.VBox):
                        "selected": first, "densities": False, "covariate": None}
         self._build_controls(max_depth, level, interval, columns)
         self._build_panels()
-        super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs])
+        self._build_save_row()
+        super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs,
+                                   self._save_row])
         self.add_class("swx-explorer")
         self._refresh(all_panels=True)
         self._start_extras(self._res)
@@ -233,6 +245,64 @@ class Explorer(widgets.VBox):
         """What the view shows: depth, level, interval kind, selection and the tree's settings."""
         s = self._state
         return {**self.tree.settings, "level": s["level"], "interval": s["interval"], "selected": s["selected"]}
+
+    def save_view(self, folder, *, figures="auto") -> list:
+        """Write what is shown (subgroup table and the other tables, the figures) into a new folder.
+
+        The folder must not exist or be empty; it appears whole or not at all
+        (:func:`summarize_widgets.export.view.write_view_folder`). Returns the written paths.
+        """
+        with self._lock:
+            s = dict(self._state)
+            res = self._res
+            tree = res.at(s["depth"])
+            rule = self._rule_of(s["selected"])
+            view = {"depth": s["depth"], "min_size": tree.min_size, "columns": list(tree.columns),
+                    "selected_rule": rule or "", "covariate": s["covariate"] or ""}
+        return write_view_folder(folder, tree=tree, level=s["level"], interval=s["interval"], selected=s["selected"],
+                                 linear=res.linear, additive=res.additive,
+                                 covariate=s["covariate"] if res.additive is not None else None, view=view,
+                                 figures=figures)
+
+    def _build_save_row(self):
+        self.save_folder_control = widgets.Text(value="", placeholder="a new folder, e.g. views/depth3",
+                                                description="Folder", style=_WIDE, layout=widgets.Layout(width="340px"))
+        self.save_button = widgets.Button(description="Save this view", icon="download",
+                                          tooltip="Write the subgroup table, the other tables and the figures "
+                                                  "into a new folder (never over existing files)",
+                                          layout=widgets.Layout(width="160px"))
+        self.save_button.add_class("swx-save")
+        self.save_status = widgets.HTML()
+        self.save_status.add_class("swx-save-status")
+        self.save_button.on_click(lambda _: self._guard_save())
+        self._save_row = widgets.HBox([self.save_folder_control, self.save_button, self.save_status],
+                                      layout=widgets.Layout(align_items="center", flex_flow="row wrap",
+                                                            margin="8px 0 0 0"))
+
+    def _guard_save(self):
+        folder = self.save_folder_control.value
+        self.save_button.disabled = True
+        self.save_status.value = P.status_html("Saving the view…", tone="busy")
+        try:
+            written = self.save_view(folder)
+        except (SummaryError, FileExistsError, PermissionError) as exc:
+            self.save_status.value = P.status_html(in_control_words(str(exc)), tone="error")
+        except Exception as exc:  # noqa: BLE001 - the output area must not get a traceback
+            self.save_status.value = P.status_html(f"Could not save ({type(exc).__name__}): {exc}", tone="error")
+        else:
+            where = written[0].parent if written else folder
+            n_fig = sum(1 for p in written if p.parent.name == "figures")
+            self.save_status.value = P.status_html(f"Saved {len(written)} files ({n_fig} figure files) into "
+                                                   f"{where.resolve() if hasattr(where, 'resolve') else where}.")
+        finally:
+            self.save_button.disabled = False
+
+    def _rule_of(self, node):
+        if node is None or node < 0:
+            return None
+        full = self._res.nodes(self._res.tree.max_depth, 0.95, "equal-tailed")
+        hit = full.loc[full["node"] == node, "rule"]
+        return str(hit.iloc[0]) if len(hit) else None
 
     # -- controls and panels -----------------------------------------------------------
     def _build_controls(self, max_depth, level, interval, columns):
@@ -488,7 +558,7 @@ class Explorer(widgets.VBox):
             min_size = check_int(min_size, "min_size", low=1, high=self._draws.n_units)
             previous = self._anchor_rule()
             res = Results.compute(self._draws, max_depth=self._res.tree.max_depth, min_size=min_size,
-                                  columns=columns, progress=progress, extras_later=self._background, **self._options)
+                                  columns=columns, progress=progress, extras_later=self._extras_later, **self._options)
         except SummaryError as exc:
             if raise_errors:
                 self._refresh_status()

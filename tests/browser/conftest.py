@@ -223,6 +223,28 @@ def screenshot(artifact_dir):
     return lambda target, name: _save_screenshot(target, artifact_dir, name)
 
 
+#: Every generated notebook names its kernel: without a kernelspec JupyterLab asks which kernel to
+#: start (a dialog the tests never answer) and the status bar stays at "No Kernel | Initializing".
+KERNELSPEC = {"name": "python3", "display_name": "Python 3 (ipykernel)", "language": "python"}
+
+
+def _write_notebook(server: LabServer, name: str, cells) -> Path:
+    import nbformat
+
+    nb = nbformat.v4.new_notebook()
+    nb.cells = [nbformat.v4.new_code_cell(c) for c in cells]
+    nb.metadata["kernelspec"] = dict(KERNELSPEC)
+    path = server.root / name
+    nbformat.write(nb, path)
+    return path
+
+
+@pytest.fixture(scope="session")
+def write_notebook():
+    """``write_notebook(server, name, cells)`` writes a notebook with a kernelspec into the server's root."""
+    return _write_notebook
+
+
 @pytest.fixture(scope="session")
 def run_all():
     """``run_all(page, server, notebook)`` opens a notebook and runs every cell."""
