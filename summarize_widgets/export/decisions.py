@@ -12,7 +12,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ..core import numbers as N
 from ..core.files import refuse_existing, write_atomic
+from ..core.rules import rule_text
 from ..core.validate import SummaryError
 from .layout import escape_latex
 
@@ -21,16 +23,32 @@ __all__ = ["decision_tables", "write_decision_tables", "decisions_section_html",
 #: File formats :func:`write_decision_tables` writes.
 DECISION_FORMATS = ("csv", "md", "tex", "html")
 
-_SHOW = {
-    "targeting_gain": ["estimate", "comparison", "scale", "share_offered", "n_subgroups_offered", "mean", "lower", "upper",
-                       "prob_positive"],
-    "targeting_subgroups": ["label", "rule", "n_units", "share", "gain_per_offer", "lower", "upper", "prob_benefit", "rank",
-                            "offered", "share_offered_cross_fitted"],
-    "targeting_curve": ["estimate", "step", "share_offered", "mean", "lower", "upper", "lower_joint", "upper_joint"],
-    "uptake_drivers": ["label", "rule", "n_units", "uptake", "uptake_lower", "uptake_upper", "itt", "itt_lower",
-                       "itt_upper", "complier_effect", "complier_lower", "complier_upper", "from_uptake",
-                       "from_complier_effect"],
+# Shown columns of each table: (header, kind, source columns). Kinds: "text", "rule" (the tables' rule
+# syntax), "count", "share" (percent), "number" (shortest form), "prob" (posterior probability),
+# "flag" (yes / blank), and "est" / "ci" (an estimate and its interval, digits chosen per column family).
+_SPEC = {
+    "targeting_gain": [("Estimate", "text", ("estimate",)), ("Comparison", "text", ("comparison",)),
+                       ("Scale", "text", ("scale",)), ("Share offered", "share", ("share_offered",)),
+                       ("Subgroups offered", "number", ("n_subgroups_offered",)), ("Gain", "est", ("mean",)),
+                       ("{iv}", "ci", ("lower", "upper")), ("P(gain > 0)", "prob", ("prob_positive",))],
+    "targeting_subgroups": [("Subgroup", "text", ("label",)), ("Rule", "rule", ("rule",)), ("Units", "count", ("n_units",)),
+                            ("Share", "share", ("share",)), ("Gain per offer", "est", ("gain_per_offer",)),
+                            ("{iv}", "ci", ("lower", "upper")), ("P(benefit)", "prob", ("prob_benefit",)),
+                            ("Rank", "count", ("rank",)), ("Offered", "flag", ("offered",)),
+                            ("Offered, cross-fitted", "share", ("share_offered_cross_fitted",))],
+    "targeting_curve": [("Estimate", "text", ("estimate",)), ("Step", "count", ("step",)),
+                        ("Share offered", "share", ("share_offered",)), ("Gain per unit", "est", ("mean",)),
+                        ("{iv}", "ci", ("lower", "upper")), ("Simultaneous band", "ci", ("lower_joint", "upper_joint"))],
+    "uptake_drivers": [("Subgroup", "text", ("label",)), ("Rule", "rule", ("rule",)), ("Units", "count", ("n_units",)),
+                       ("Uptake", "share", ("uptake",)), ("Uptake {iv}", "share_ci", ("uptake_lower", "uptake_upper")),
+                       ("ITT effect", "est", ("itt",)), ("ITT {iv}", "ci", ("itt_lower", "itt_upper")),
+                       ("Complier effect", "est", ("complier_effect",)),
+                       ("Complier {iv}", "ci", ("complier_lower", "complier_upper")),
+                       ("ITT gap: from uptake", "est", ("from_uptake",)),
+                       ("from complier effect", "est", ("from_complier_effect",))],
 }
+#: For CSV: the columns kept (every source column of the spec, in order).
+_SHOW = {name: [c for _, _, cols in spec for c in cols] for name, spec in _SPEC.items()}
 
 
 def decision_tables(targeting=None, uptake=None, *, level: float = 0.95) -> dict:
@@ -50,12 +68,56 @@ def decision_tables(targeting=None, uptake=None, *, level: float = 0.95) -> dict
     return out
 
 
-def _cell(v, digits: int) -> str:
-    if isinstance(v, (bool, np.bool_)):
-        return "yes" if v else ""
-    if isinstance(v, (float, np.floating)):
-        return "NA" if not np.isfinite(v) else f"{v:.{digits}f}"
-    return str(v)
+def _decimals(df: pd.DataFrame, cols, digits) -> dict:
+    """Decimals per row group (the ``scale`` column when present: per unit vs total) for estimate columns."""
+    if digits is not None:
+        return {None: int(digits)}
+    keys = df["scale"] if "scale" in df.columns else pd.Series([None] * len(df), index=df.index)
+    out = {}
+    for key in pd.unique(keys):
+        part = df[keys == key] if key is not None else df
+        vals = np.concatenate([pd.to_numeric(part[c], errors="coerce").to_numpy(dtype=float) for c in cols if c in part])
+        errs = part["mcse_mean"].to_numpy(dtype=float) if "mcse_mean" in part else None
+        out[key] = N.decimals_for(vals, errs)
+    return out
+
+
+def _display(name: str, df: pd.DataFrame, digits=None, *, minus: str = N.MINUS):
+    """(headers, rows of display strings) of a decision table, with the package's one number format."""
+    iv = f"{float(df.attrs.get('level', 0.95)):.0%} interval"
+    n_draws = df.attrs.get("n_draws")
+    spec = [(h.replace("{iv}", iv), k, cols) for h, k, cols in _SPEC[name] if all(c in df.columns for c in cols)]
+    est_cols = [c for _, k, cols in spec if k in ("est", "ci") for c in cols]
+    dec = _decimals(df, est_cols, digits)
+    headers = [h for h, _, _ in spec]
+    rows = []
+    for _, r in df.iterrows():
+        d = dec.get(r["scale"] if "scale" in df.columns and digits is None else None, 2)
+        cells = []
+        for _, kind, cols in spec:
+            v = [r[c] for c in cols]
+            if kind == "rule":
+                cells.append(rule_text(v[0]) if isinstance(v[0], str) else str(v[0]))
+            elif kind == "count":
+                cells.append(N.count(v[0]))
+            elif kind == "share":
+                cells.append(N.percent(v[0], 0, minus=minus))
+            elif kind == "share_ci":
+                cells.append(f"[{N.percent(v[0], 0, minus=minus)}, {N.percent(v[1], 0, minus=minus)}]")
+            elif kind == "number":
+                cells.append(N.shortest(v[0], precision=2))
+            elif kind == "prob":
+                cells.append(N.probability(v[0], n_draws=n_draws))
+            elif kind == "flag":
+                cells.append("yes" if bool(v[0]) else "")
+            elif kind == "est":
+                cells.append(N.fixed(v[0], d, minus=minus))
+            elif kind == "ci":
+                cells.append(N.interval(v[0], v[1], d, minus=minus))
+            else:
+                cells.append("" if v[0] is None or (isinstance(v[0], float) and np.isnan(v[0])) else str(v[0]))
+        rows.append(cells)
+    return headers, rows
 
 
 def _shown(name: str, df: pd.DataFrame) -> pd.DataFrame:
@@ -67,35 +129,39 @@ def _notes(df) -> list[str]:
 
 
 def _markdown(name, df, caption, digits) -> str:
-    d = _shown(name, df)
+    headers, rows = _display(name, df, digits)
     esc = lambda s: str(s).replace("|", "\\|").replace("\n", " ")  # noqa: E731
-    lines = [f"**{esc(caption)}**", "", "| " + " | ".join(d.columns) + " |", "|" + "---|" * len(d.columns)]
-    lines += ["| " + " | ".join(esc(_cell(v, digits)) for v in row) + " |" for row in d.itertuples(index=False)]
+    lines = [f"**{esc(caption)}**", "", "| " + " | ".join(esc(h) for h in headers) + " |", "|" + "---|" * len(headers)]
+    lines += ["| " + " | ".join(esc(c) for c in row) + " |" for row in rows]
     return "\n".join(lines + [""] + [f"_{esc(n)}_" for n in _notes(df)]) + "\n"
 
 
 def _latex(name, df, caption, digits) -> str:
-    d = _shown(name, df)
-    head = " & ".join(escape_latex(c.replace("_", " ")) for c in d.columns) + r" \\"
-    body = [" & ".join(escape_latex(_cell(v, digits)) for v in row) + r" \\" for row in d.itertuples(index=False)]
+    headers, rows = _display(name, df, digits, minus="-")
+    rule_col = [i for i, (_, k, _) in enumerate(s for s in _SPEC[name] if all(c in df.columns for c in s[2])) if k == "rule"]
+    cols = "".join("X" if i in rule_col else ("l" if i == 0 else "r") for i in range(len(headers)))
+    env, width = ("tabularx", "{\\linewidth}") if rule_col else ("tabular*", "{\\linewidth}")
+    if not rule_col:
+        cols = "@{\\extracolsep{\\fill}}" + cols
+    head = " & ".join(escape_latex(h) for h in headers) + r" \\"
+    body = [" & ".join(escape_latex(c).replace("\u2212", "$-$") for c in row) + r" \\" for row in rows]
     notes = " ".join(escape_latex(n) for n in _notes(df))
     return "\n".join([r"\begin{table}[ht]", r"\centering", r"\footnotesize", f"\\caption{{{escape_latex(caption)}}}",
-                      r"\begin{tabular}{" + "l" * len(d.columns) + "}", r"\hline", head, r"\hline", *body, r"\hline",
-                      r"\end{tabular}", f"\\par\\smallskip\\parbox{{\\linewidth}}{{\\scriptsize {notes}}}",
+                      f"\\begin{{{env}}}{width}{{{cols}}}", r"\toprule", head, r"\midrule", *body, r"\bottomrule",
+                      f"\\end{{{env}}}", f"\\par\\smallskip\\parbox{{\\linewidth}}{{\\scriptsize {notes}}}",
                       r"\end{table}"]) + "\n"
 
 
-def _html(name, df, caption, digits) -> str:
-    d = _shown(name, df)
-    head = "".join(f"<th>{html.escape(c.replace('_', ' '))}</th>" for c in d.columns)
-    rows = "".join("<tr>" + "".join(f"<td>{html.escape(_cell(v, digits))}</td>" for v in row) + "</tr>"
-                   for row in d.itertuples(index=False))
-    notes = "".join(f'<p class="sw-note">{html.escape(n)}</p>' for n in _notes(df))
+def _html(name, df, caption, digits, *, notes: bool = True) -> str:
+    headers, rows = _display(name, df, digits)
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in headers)
+    body = "".join("<tr>" + "".join(f"<td>{html.escape(c)}</td>" for c in row) + "</tr>" for row in rows)
+    foot = "".join(f'<p class="sw-note">{html.escape(n)}</p>' for n in _notes(df)) if notes else ""
     return (f'<table class="sw-table"><caption>{html.escape(caption)}</caption><thead><tr>{head}</tr></thead>'
-            f"<tbody>{rows}</tbody></table>{notes}")
+            f"<tbody>{body}</tbody></table>{foot}")
 
 
-def write_decision_tables(out_dir, targeting=None, uptake=None, *, level: float = 0.95, digits: int = 2,
+def write_decision_tables(out_dir, targeting=None, uptake=None, *, level: float = 0.95, digits: int | None = None,
                           formats=DECISION_FORMATS, overwrite: bool = False) -> list[Path]:
     """Write every decision table in ``formats`` (csv, md, tex, html) into ``out_dir``; returns the paths.
 
@@ -109,7 +175,7 @@ def write_decision_tables(out_dir, targeting=None, uptake=None, *, level: float 
     targets = [out_dir / f"{name}.{fmt}" for name in tables for fmt in formats]
     refuse_existing(targets, overwrite=overwrite)
     out_dir.mkdir(parents=True, exist_ok=True)
-    render = {"csv": lambda n, df, c: df.to_csv(index=False), "md": lambda n, df, c: _markdown(n, df, c, digits),
+    render = {"csv": lambda n, df, c: _shown(n, df).to_csv(index=False), "md": lambda n, df, c: _markdown(n, df, c, digits),
               "tex": lambda n, df, c: _latex(n, df, c, digits), "html": lambda n, df, c: _html(n, df, c, digits)}
     written = []
     for name, (df, caption) in tables.items():
@@ -118,7 +184,7 @@ def write_decision_tables(out_dir, targeting=None, uptake=None, *, level: float 
     return written
 
 
-def decisions_section_html(targeting=None, uptake=None, *, level: float = 0.95, digits: int = 2, figure_html=None) -> str:
+def decisions_section_html(targeting=None, uptake=None, *, level: float = 0.95, digits: int | None = None, figure_html=None) -> str:
     """The report's "Decisions" section: headline, the tables, the curve figure (given as HTML), cautions."""
     tables = decision_tables(targeting, uptake, level=level)
     parts = ['<section class="sw-section" id="sw-decisions"><h2>Decisions: value of targeting and uptake</h2>']
@@ -127,7 +193,12 @@ def decisions_section_html(targeting=None, uptake=None, *, level: float = 0.95, 
                      f'<p class="sw-note">{html.escape(targeting.note)}</p>')
     if figure_html:
         parts.append(f'<div class="sw-figure">{figure_html}</div>')
+    seen = [] if targeting is None else [targeting.note]
     for name, (df, caption) in tables.items():
-        parts.append('<div class="sw-scroll">' + _html(name, df, caption, digits) + "</div>")
+        parts.append('<div class="sw-scroll">' + _html(name, df, caption, digits, notes=False) + "</div>")
+        for n in _notes(df):  # each note once in the section, however many tables share it
+            if n not in seen:
+                seen.append(n)
+                parts.append(f'<p class="sw-note">{html.escape(n)}</p>')
     parts.append("</section>")
     return "".join(parts)

@@ -42,8 +42,8 @@ def check_output_folder(out_dir: Path, overwrite: bool) -> None:
 
 
 def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95, interval: str = "equal-tailed",
-                         inputs=None, figures="auto", figure_formats=FIGURE_FORMATS, digits: int = 2,
-                         title: str | None = None, overwrite: bool = False) -> list[Path]:
+                         inputs=None, figures="auto", figure_formats=FIGURE_FORMATS, digits: int | None = None,
+                         title: str | None = None, overwrite: bool = False, decisions: bool = True) -> list[Path]:
     """Write tables (LaTeX, Markdown, CSV, HTML), figures (SVG, PDF, PNG), ``report.html`` and
     ``provenance.json`` into ``out_dir``.
 
@@ -53,6 +53,10 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
         Static figure files need a Chromium-family browser (kaleido drives it). "auto" writes
         them when one is found and otherwise skips them (``bundle.notes`` says so; the report's
         interactive figures need no browser); True requires them; False skips them.
+    decisions : bool, default True
+        Also write the value of targeting the tree's subgroups (rule: P(benefit) >= 0.9, no cost;
+        in-sample and cross-fitted) and, for complier designs, the uptake drivers: their tables
+        and a report section (``summarize-widgets targeting`` sets the rule and the cost).
 
     An existing non-empty folder is refused unless ``overwrite=True``; every file is written
     atomically. Returns the written paths.
@@ -65,13 +69,19 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
     evidence = [bundle.evidence] if bundle.evidence is not None else []
     prov = provenance([bundle.draws, *bundle.results.values(), *evidence], inputs=inputs,
                       settings={"level": level, "interval": interval, "digits": digits})
+    chosen = _decisions(bundle) if decisions else None
     written = list(export_tables(out_dir, tree=bundle.tree, groups=bundle.groups, linear=bundle.linear,
                                  additive=bundle.additive, level=level, interval=interval, digits=digits,
                                  provenance=prov, overwrite=overwrite, evidence=bundle.evidence).values())
     written.append(write_report(out_dir, tree=bundle.tree, groups=bundle.groups, additive=bundle.additive,
                                 linear=bundle.linear, provenance=prov, level=level, interval=interval,
                                 digits=digits, title=title or f"Posterior summary: {bundle.draws.label}",
-                                overwrite=overwrite, evidence=bundle.evidence))
+                                overwrite=overwrite, evidence=bundle.evidence, decisions=chosen))
+    if chosen:
+        from .decisions import write_decision_tables
+
+        written.extend(write_decision_tables(out_dir, chosen.get("targeting"), chosen.get("uptake"), level=level,
+                                             overwrite=overwrite))
     if figures == "auto":
         try:
             find_browser()
@@ -82,6 +92,24 @@ def write_summary_folder(bundle: SummaryBundle, out_dir, *, level: float = 0.95,
         written.extend(_write_figures(bundle, out_dir / "figures", level, interval, figure_formats, overwrite))
     bundle.files = written
     return written
+
+
+def _decisions(bundle: SummaryBundle):
+    """Value of targeting (and uptake drivers for complier designs) on the bundle's tree, or None with a note."""
+    from ..core.validate import SummaryError
+    from ..summaries.targeting import value_of_targeting
+    from ..summaries.uptake import uptake_drivers
+
+    if bundle.tree is None:
+        return None
+    try:
+        out = {"targeting": value_of_targeting(bundle.tree)}
+        if bundle.draws.is_complier_weighted:
+            out["uptake"] = uptake_drivers(bundle.tree)
+    except SummaryError as exc:
+        bundle.notes.append(f"Decision tables skipped: {exc}")
+        return None
+    return out
 
 
 def _write_figures(bundle, fig_dir: Path, level, interval, formats, overwrite) -> list[Path]:

@@ -236,7 +236,7 @@ def _settings_html(prov: Mapping) -> str:
     esc = html.escape
     summaries = {name: dict(s) for name, s in prov.get("summaries", {}).items()}
     for s in summaries.values():  # the structure fitted to these draws' own posterior: said by the label already
-        if s.get("structure_from") == s.get("label"):
+        if "structure_from" in s and s["structure_from"] == s.get("label"):
             s.pop("structure_from")
     # A setting every summary shares (same key, same value) is listed once, not under each summary.
     common = {}
@@ -366,7 +366,7 @@ def _add_decisions(decisions, body, nav, fig_no, figures, level, digits) -> int:
         fig_no += 1
         fig = _figure_html(plot_targeting_curve(decisions["targeting"], level=level), f"sw-figure-{fig_no}")
     body.append(decisions_section_html(decisions.get("targeting"), decisions.get("uptake"), level=level,
-                                       digits=2 if digits is None else digits,
+                                       digits=digits,
                                        figure_html=fig))
     nav.append('<a href="#sw-decisions">Decisions</a>')
     return fig_no

@@ -61,9 +61,12 @@ class DecisionsPanel(widgets.VBox):
         self.result = res
         self.status.value = ""
         self.figure.clear_output(wait=True)
-        with self.figure:
+        from IPython import get_ipython
+
+        if get_ipython() is not None:  # outside IPython an Output widget captures nothing: draw nothing
             from IPython.display import display
 
-            display(plot_targeting_curve(res, level=self._level))
+            with self.figure:
+                display(plot_targeting_curve(res, level=self._level))
         self.tables.value = decisions_section_html(res, up, level=self._level)
         self._key = key
