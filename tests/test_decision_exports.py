@@ -61,3 +61,23 @@ def test_explorer_has_a_decisions_tab_that_follows_its_controls():
     assert panel.result.cost == 2.5
     panel.min_prob_control.value = 0.6
     assert panel.result.min_prob == pytest.approx(0.6)
+
+
+@pytest.mark.skipif(__import__("shutil").which("pdflatex") is None, reason="pdflatex not installed")
+def test_decision_tables_compile_and_fit_a_plain_article(results, tmp_path):
+    # Same check as the summary tables (tests/test_export.py): LaTeX accepts every decision table,
+    # user text included, and none runs past the text width (no overfull box wider than 2 pt).
+    from test_export import _compile, overfull
+
+    from summarize_widgets.datasets.retrofit import simulate_retrofit_study
+
+    study = simulate_retrofit_study(n_households=1200, n_draws=300, seed=20261201)
+    late = study.complier_draws()
+    tree = sw.summarize_tree(late, max_depth=3)
+    files = write_decision_tables(tmp_path / "demo", sw.value_of_targeting(tree), sw.uptake_drivers(tree), formats=("tex",))
+    files += write_decision_tables(tmp_path / "nasty", *results, formats=("tex",))
+    tex = "".join(f.read_text(encoding="utf-8") for f in files)
+    assert "\\le" in tex or "$\\leq$" in tex  # rules typeset for LaTeX, not as Unicode signs
+    log = _compile(tmp_path, tex)
+    assert "Missing character" not in log and "Undefined control sequence" not in log
+    assert overfull(log) == []

@@ -16,7 +16,7 @@ from ..core import numbers as N
 from ..core.files import refuse_existing, write_atomic
 from ..core.rules import rule_text
 from ..core.validate import SummaryError
-from .layout import escape_latex
+from .layout import escape_latex, rule_to_latex
 
 __all__ = ["decision_tables", "write_decision_tables", "decisions_section_html", "DECISION_FORMATS"]
 
@@ -27,7 +27,7 @@ DECISION_FORMATS = ("csv", "md", "tex", "html")
 # syntax), "count", "share" (percent), "number" (shortest form), "prob" (posterior probability),
 # "flag" (yes / blank), and "est" / "ci" (an estimate and its interval, digits chosen per column family).
 _SPEC = {
-    "targeting_gain": [("Estimate", "text", ("estimate",)), ("Comparison", "text", ("comparison",)),
+    "targeting_gain": [("Estimate", "text", ("estimate",)), ("Comparison", "wrap", ("comparison",)),
                        ("Scale", "text", ("scale",)), ("Share offered", "share", ("share_offered",)),
                        ("Subgroups offered", "number", ("n_subgroups_offered",)), ("Gain", "est", ("mean",)),
                        ("{iv}", "ci", ("lower", "upper")), ("P(gain > 0)", "prob", ("prob_positive",))],
@@ -44,8 +44,8 @@ _SPEC = {
                        ("ITT effect", "est", ("itt",)), ("ITT {iv}", "ci", ("itt_lower", "itt_upper")),
                        ("Complier effect", "est", ("complier_effect",)),
                        ("Complier {iv}", "ci", ("complier_lower", "complier_upper")),
-                       ("ITT gap: from uptake", "est", ("from_uptake",)),
-                       ("from complier effect", "est", ("from_complier_effect",))],
+                       ("ITT gap from uptake", "est", ("from_uptake",)),
+                       ("gap from effect", "est", ("from_complier_effect",))],
 }
 #: For CSV: the columns kept (every source column of the spec, in order).
 _SHOW = {name: [c for _, _, cols in spec for c in cols] for name, spec in _SPEC.items()}
@@ -82,8 +82,11 @@ def _decimals(df: pd.DataFrame, cols, digits) -> dict:
     return out
 
 
-def _display(name: str, df: pd.DataFrame, digits=None, *, minus: str = N.MINUS):
-    """(headers, rows of display strings) of a decision table, with the package's one number format."""
+def _display(name: str, df: pd.DataFrame, digits=None, *, fmt: str = "text"):
+    """(headers, rows of display strings) of a decision table, with the package's one number format.
+
+    ``fmt="tex"``: every cell is LaTeX already (text escaped, rules typeset, minus signs in math)."""
+    minus = "$-$" if fmt == "tex" else N.MINUS
     iv = f"{float(df.attrs.get('level', 0.95)):.0%} interval"
     n_draws = df.attrs.get("n_draws")
     spec = [(h.replace("{iv}", iv), k, cols) for h, k, cols in _SPEC[name] if all(c in df.columns for c in cols)]
@@ -97,7 +100,8 @@ def _display(name: str, df: pd.DataFrame, digits=None, *, minus: str = N.MINUS):
         for _, kind, cols in spec:
             v = [r[c] for c in cols]
             if kind == "rule":
-                cells.append(rule_text(v[0]) if isinstance(v[0], str) else str(v[0]))
+                rule = v[0] if isinstance(v[0], str) else str(v[0])
+                cells.append(rule_to_latex(rule) if fmt == "tex" else rule_text(rule))
             elif kind == "count":
                 cells.append(N.count(v[0]))
             elif kind == "share":
@@ -115,7 +119,10 @@ def _display(name: str, df: pd.DataFrame, digits=None, *, minus: str = N.MINUS):
             elif kind == "ci":
                 cells.append(N.interval(v[0], v[1], d, minus=minus))
             else:
-                cells.append("" if v[0] is None or (isinstance(v[0], float) and np.isnan(v[0])) else str(v[0]))
+                text = "" if v[0] is None or (isinstance(v[0], float) and np.isnan(v[0])) else str(v[0])
+                cells.append(escape_latex(text) if fmt == "tex" else text)
+            if fmt == "tex" and kind in ("share", "share_ci", "prob"):
+                cells[-1] = cells[-1].replace("%", r"\%").replace("<", "$<$").replace(">", "$>$")
         rows.append(cells)
     return headers, rows
 
@@ -137,17 +144,58 @@ def _markdown(name, df, caption, digits) -> str:
 
 
 def _latex(name, df, caption, digits) -> str:
-    headers, rows = _display(name, df, digits, minus="-")
-    rule_col = [i for i, (_, k, _) in enumerate(s for s in _SPEC[name] if all(c in df.columns for c in s[2])) if k == "rule"]
-    cols = "".join("X" if i in rule_col else ("l" if i == 0 else "r") for i in range(len(headers)))
-    env, width = ("tabularx", "{\\linewidth}") if rule_col else ("tabular*", "{\\linewidth}")
-    if not rule_col:
-        cols = "@{\\extracolsep{\\fill}}" + cols
+    headers, rows = _display(name, df, digits, fmt="tex")
+    kinds = [k for _, k, cols in _SPEC[name] if all(c in df.columns for c in cols)]
+    extra = []
+    if name == "uptake_drivers" and "rule" in kinds:  # eleven numeric columns leave a rule no room on a page
+        j = kinds.index("rule")
+        headers, kinds = headers[:j] + headers[j + 1:], kinds[:j] + kinds[j + 1:]
+        rows = [r[:j] + r[j + 1:] for r in rows]
+        extra = ["Subgroups S1, S2, ... are those of the subgroup table, with their rules."]
+        # Each estimate and its interval share one cell (it may wrap before the interval).
+        merged_h, merged_k, keep = [], [], []
+        for k, (h, x) in enumerate(zip(headers, kinds)):
+            if x in ("ci", "share_ci") and merged_k and merged_k[-1] in ("est", "share"):
+                merged_h[-1] = f"{merged_h[-1]} ({h.split(' ', 1)[1] if ' ' in h else h})"
+                merged_k[-1] = "wrap"
+                keep[-1] = (keep[-1], k)
+            else:
+                merged_h.append(h)
+                merged_k.append(x)
+                keep.append(k)
+        rows = [[f"{r[k[0]]} {r[k[1]]}" if isinstance(k, tuple) else r[k] for k in keep] for r in rows]
+        headers, kinds = merged_h, merged_k
+    if "Scale" in headers and "Comparison" in headers:  # the scale joins the comparison: one column fewer on the page
+        js, jc = headers.index("Scale"), headers.index("Comparison")
+        rows = [[f"{r[jc]}, {r[js]}" if k == jc else c for k, c in enumerate(r) if k != js] for r in rows]
+        headers, kinds = [h for k, h in enumerate(headers) if k != js], [x for k, x in enumerate(kinds) if k != js]
+    rule_rows = None
+    if "rule" in kinds:  # on paper each rule gets a full-width line under its subgroup's numbers
+        j = kinds.index("rule")
+        rule_rows = [r[j] for r in rows]
+        headers, kinds = headers[:j] + headers[j + 1:], kinds[:j] + kinds[j + 1:]
+        rows = [r[:j] + r[j + 1:] for r in rows]
+    headers = [{"Share offered": "Offered", "Subgroups offered": "Subgroups", "Offered, cross-fitted": "Cross-fitted"}.get(h, h)
+               for h in headers]
+    # Text wraps; in wide tables intervals may also break after their comma (tabularx shares out the width).
+    wide = len(kinds) > 8 and "rule" not in kinds
+    wrap = [k in ("rule", "wrap") or (wide and k in ("ci", "share_ci")) for k in kinds]
+    cols = "".join("X" if w else ("l" if i == 0 or k == "text" else "r") for i, (w, k) in enumerate(zip(wrap, kinds)))
+    env, spec = ("tabularx", cols) if any(wrap) else ("tabular*", "@{\\extracolsep{\\fill}}" + cols)
     head = " & ".join(escape_latex(h) for h in headers) + r" \\"
-    body = [" & ".join(escape_latex(c).replace("\u2212", "$-$") for c in row) + r" \\" for row in rows]
-    notes = " ".join(escape_latex(n) for n in _notes(df))
-    return "\n".join([r"\begin{table}[ht]", r"\centering", r"\footnotesize", f"\\caption{{{escape_latex(caption)}}}",
-                      f"\\begin{{{env}}}{width}{{{cols}}}", r"\toprule", head, r"\midrule", *body, r"\bottomrule",
+    body = [" & ".join(row) + r" \\" for row in rows]
+    if rule_rows is not None:
+        span = f"\\multicolumn{{{len(headers)}}}{{@{{}}p{{\\linewidth}}@{{}}}}"
+        body = [b + "\n" + span + "{\\hspace*{1em}" + rule + "} \\\\" + ("[2pt]" if k < len(body) - 1 else "")
+                for k, (b, rule) in enumerate(zip(body, rule_rows))]
+        extra = extra + ["Each subgroup's rule is printed under its numbers."]
+    notes = " ".join(escape_latex(n) for n in extra + _notes(df))
+    size = r"\scriptsize" if len(headers) > 6 else r"\footnotesize"  # wide tables: smaller type, so rules keep room
+    cols = cols.replace("X", r">{\raggedright\arraybackslash}X")
+    spec = spec.replace("X", r">{\raggedright\arraybackslash}X") if any(wrap) else spec
+    return "\n".join([r"\begin{table}[ht]", r"\centering", size, f"\\caption{{{escape_latex(caption)}}}",
+                      r"\setlength{\tabcolsep}{3pt}" if len(headers) > 8 else r"\setlength{\tabcolsep}{4pt}",
+                      f"\\begin{{{env}}}{{\\linewidth}}{{{spec}}}", r"\toprule", head, r"\midrule", *body, r"\bottomrule",
                       f"\\end{{{env}}}", f"\\par\\smallskip\\parbox{{\\linewidth}}{{\\scriptsize {notes}}}",
                       r"\end{table}"]) + "\n"
 
