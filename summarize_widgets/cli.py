@@ -26,6 +26,9 @@ def _add_summary_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--max-depth", type=int, default=None, help="depth the tree is grown to (default max(depth, 4))")
     g.add_argument("--min-size", type=int, default=None, help="smallest subgroup in units (default 5%% of units, at most 1000)")
     g.add_argument("--columns", default=None, help="comma-separated covariates to use (default: all)")
+    g.add_argument("--pool-levels", type=int, default=None, metavar="K",
+                   help="linear and additive summaries: keep the K most common levels of a text column with more than "
+                        "50 levels and pool the rest as '(other)' (default: such a column is refused)")
     g.add_argument("--level", type=float, default=0.95, help="credible level (default 0.95)")
     g.add_argument("--interval", choices=("equal-tailed", "highest-density"), default="equal-tailed",
                    help="kind of credible interval (default equal-tailed)")
@@ -269,7 +272,8 @@ def _summaries(draws, args, groups=None, need=("additive", "linear")):
                          columns=_columns(args.columns), groups=groups,
                          additive="additive" in need, linear="linear" in need,
                          evidence=args.evidence, stability_fits=args.stability_fits if args.evidence else 0,
-                         threshold=args.threshold, tolerance=args.tolerance, level=args.level, interval=args.interval)
+                         threshold=args.threshold, tolerance=args.tolerance, level=args.level, interval=args.interval,
+                         pool_levels=getattr(args, "pool_levels", None))
 
 
 def _print_evidence(bundle) -> None:
@@ -429,6 +433,9 @@ _CLI_SPELLINGS = [
     (r"unit_column=", "--unit-column "),
     (r"`chains`|chains=", "--chains"),
     (r"`min_size`|min_size=", "--min-size"),
+    (r"\(max_levels=(\d+): ", r"(at most \1 levels: "),
+    (r", or raise max_levels\.", "."),
+    (r"pass pool_levels=k to keep its k", "pass --pool-levels K to keep its K"),
     (r"`max_depth`|max_depth=", "--max-depth"),
     (r"`columns`|columns=", "--columns"),
     (r"`level`|level=", "--level"),

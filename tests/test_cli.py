@@ -275,3 +275,19 @@ class _nothing:
 def test_each_subcommand_run_as_a_program_prints_no_traceback(command, own_files, tmp_path):
     r = run(*[a.format(own=own_files, tmp=tmp_path) for a in command])
     assert r.returncode == 2 and "Traceback" not in r.stderr and len(r.stderr.strip().splitlines()) == 1, r.stderr
+
+
+def test_many_level_text_column_is_refused_by_name_and_pooled_with_the_option(tmp_path, capsys):
+    rng = np.random.default_rng(12)
+    n = 600
+    X = pd.DataFrame({"age": rng.uniform(20, 80, n).round(), "street": [f"st{i}" for i in rng.integers(0, 300, n)]})
+    X.to_csv(tmp_path / "cov.csv", index=False)
+    np.save(tmp_path / "d.npy", (X["age"].to_numpy() > 50) * 2.0 + rng.normal(0, 1, (40, n)))
+    args = ["summarize", str(tmp_path / "d.npy"), "--covariates", str(tmp_path / "cov.csv"), "--table", "linear"]
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert len(err.strip().splitlines()) == 1 and "'street'" in err and "--pool-levels K" in err
+    assert "max_levels" not in err and "pool_levels" not in err  # the options a command-line user types
+    assert main([*args, "--pool-levels", "5"]) == 0
+    out = capsys.readouterr().out
+    assert "street = (other)" in out

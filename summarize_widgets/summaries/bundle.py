@@ -51,7 +51,7 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
                   groups=None, additive: bool = True, linear: bool = True, additive_options=None,
                   extras: str = "raise", evidence: bool = False, stability_fits: int = 0, threshold=None,
                   tolerance: float = 0.05, level: float = 0.95, interval: str = "equal-tailed",
-                  progress=None) -> SummaryBundle:
+                  pool_levels: int | None = None, progress=None) -> SummaryBundle:
     """Every summary of one set of draws: the tree (at ``depth``, grown to ``max_depth``), optional
     groups, the linear and the additive summary. The one orchestrator: the command line, the
     report folder and the explorer all call it.
@@ -69,6 +69,10 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
         Pre-specified groups (:func:`summarize_groups`).
     additive, linear : bool, default True
         Whether to compute these summaries.
+    pool_levels : int, optional
+        For the linear and additive summaries: keep this many most common levels of any text
+        column with more than 50 levels and pool the rest into "(other)" (default: such a column
+        is refused with a message naming it; the tree takes every column as it is).
     additive_options : mapping, optional
         Keyword arguments for :func:`summarize_additive` (``n_splines``, ``lam``, ``grid_size``).
     extras : {"raise", "record"}, default "raise"
@@ -112,8 +116,7 @@ def summarize_all(draws, *, depth: int = DEFAULT_DEPTH, max_depth: int | None = 
     plans = {"tree": plan_tree(draws, max_depth=max_depth, min_size=min_size, columns=columns)}
     if groups:
         plans["groups"] = plan_groups(draws, groups)
-    extra_plans = {"linear": lambda: plan_linear(draws, columns=columns),
-                   "additive": lambda: plan_additive(draws, columns=columns, **dict(additive_options or {}))}
+    extra_plans = _extra_plans(draws, columns, additive_options, pool_levels)
     errors = _plan_extras(plans, extra_plans, wanted, extras)
     # ... then project the draws onto all of them in ONE pass.
     results = dict(zip(plans, project(draws, list(plans.values()), progress=tick)))
@@ -144,8 +147,15 @@ def _plan_extras(plans: dict, makers: dict, wanted, extras: str) -> dict:
     return errors
 
 
+def _extra_plans(draws, columns, additive_options, pool_levels) -> dict:
+    """Deferred plans of the linear and additive summaries (built only for the summaries asked for)."""
+    opts = {"pool_levels": pool_levels, **dict(additive_options or {})}
+    return {"linear": lambda: plan_linear(draws, columns=columns, pool_levels=pool_levels),
+            "additive": lambda: plan_additive(draws, columns=columns, **opts)}
+
+
 def summarize_extras(draws, *, columns=None, linear: bool = True, additive: bool = True, additive_options=None,
-                     extras: str = "raise", progress=None) -> SummaryBundle:
+                     extras: str = "raise", pool_levels: int | None = None, progress=None) -> SummaryBundle:
     """The linear and additive summaries alone, in ONE pass shared by both (the explorer's second step).
 
     The explorer shows its tree from :func:`summarize_all` with ``linear=False, additive=False``
@@ -155,7 +165,7 @@ def summarize_extras(draws, *, columns=None, linear: bool = True, additive: bool
     Parameters
     ----------
     draws : EffectDraws
-    columns, linear, additive, additive_options, extras
+    columns, linear, additive, additive_options, extras, pool_levels
         As for :func:`summarize_all`.
     progress : callable(stage, stage_index, n_stages, done_blocks, total_blocks), optional
         ``stage`` is "linear" (or "additive" when the linear summary is not asked for).
@@ -173,9 +183,7 @@ def summarize_extras(draws, *, columns=None, linear: bool = True, additive: bool
         def tick(done, total):
             progress(wanted[0], 0, 1, done, total)
     plans: dict = {}
-    errors = _plan_extras(plans, {"linear": lambda: plan_linear(draws, columns=columns),
-                                  "additive": lambda: plan_additive(draws, columns=columns,
-                                                                    **dict(additive_options or {}))}, wanted, extras)
+    errors = _plan_extras(plans, _extra_plans(draws, columns, additive_options, pool_levels), wanted, extras)
     results = dict(zip(plans, project(draws, list(plans.values()), progress=tick))) if plans else {}
     return SummaryBundle(draws=draws, tree=None, linear=results.get("linear"), additive=results.get("additive"),
                          errors=errors, notes=list(draws.notes))
