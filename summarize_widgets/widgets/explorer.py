@@ -57,6 +57,21 @@ class _Panel:
         self.key = None
 
 
+def _on_main_loop(fn) -> None:
+    """Run ``fn`` on the IPython kernel's main loop (thread-safe hand-over), or at once outside a kernel."""
+    loop = None
+    try:
+        from IPython import get_ipython
+
+        loop = getattr(getattr(get_ipython(), "kernel", None), "io_loop", None)
+    except Exception:  # noqa: BLE001 - no IPython: no loop
+        loop = None
+    if loop is None:
+        fn()
+    else:
+        loop.add_callback(fn)
+
+
 class Explorer(widgets.VBox):
     """Interactive summaries of a posterior of unit-level effects.
 
@@ -92,10 +107,10 @@ class Explorer(widgets.VBox):
         also run there. False computes everything before the explorer is shown (one fused pass).
         A notebook run headlessly (nbclient, nbconvert) should call :meth:`wait` before its
         widget state is saved.
-    fill_in_background : bool, default False
+    fill_in_background : bool, default True
         With ``background``: show the first view after the tree's pass and fill in the linear
-        and additive tabs from the worker thread (experimental: in JupyterLab the figures did
-        not sync after such an update; see the issue's notes).
+        and additive tabs from a worker thread (their tabs say "computing" meanwhile); the tabs
+        are drawn on the kernel's main loop once the summaries are ready.
 
     Attributes
     ----------
@@ -108,7 +123,7 @@ class Explorer(widgets.VBox):
     def __init__(self, draws, *, max_depth: int = 4, depth: int | None = None, min_size: int | None = None,
                  columns=None, level: float = 0.95, interval: str = "equal-tailed", trends: bool = True,
                  linear: bool = True, additive_options: Mapping | None = None, background: bool = True,
-                 fill_in_background: bool = False):
+                 fill_in_background: bool = True):
         if not isinstance(draws, EffectDraws):
             raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); "
                                f"got {type(draws).__name__}.")
@@ -137,6 +152,7 @@ class Explorer(widgets.VBox):
 
         self._extras_pending = None  # Results whose linear/additive summaries are still to compute
         self._extras_worker: threading.Thread | None = None
+        self._extras_unshown = None  # Results computed on the worker whose tabs are still to draw
         # With a worker thread the first view needs the tree only (one pass); the linear and
         # additive summaries follow on the thread (one more pass, shared) and fill their tabs.
         self._res = Results.compute(draws, max_depth=max_depth, min_size=min_size, columns=columns,
@@ -214,6 +230,9 @@ class Explorer(widgets.VBox):
         while True:
             busy = [w for w in (self._worker, self._extras_worker) if w is not None and w.is_alive()]
             if not busy:
+                shown = self._extras_unshown
+                if shown is not None:  # computed, its tabs not drawn yet (the main loop is busy with this call)
+                    self._show_extras(shown)
                 return True
             left = None if end is None else end - time.monotonic()
             if left is not None and left <= 0:
@@ -438,24 +457,35 @@ class Explorer(widgets.VBox):
                 for bar in bars:
                     bar.value = done / max(total, 1)
             res.fill_extras(self._draws, progress=progress)  # never raises: failures go to res.errors
-            try:
-                with self._lock:
-                    if res is not self._res:
-                        continue
-                    if self._options["trends"]:
-                        names = res.additive.columns if res.additive is not None else []
-                        self._quietly(lambda names=names: setattr(self.covariate_control, "options", names))
-                        self._state["covariate"] = self.covariate_control.value
-                    for i, panel in enumerate(self._panels.values()):
-                        if panel.name in ("trends", "linear", "evidence"):
-                            panel.key = None
-                        self._tabs.set_title(i, self._tab_title(panel))
-                        if panel.name in ("trends", "linear"):
-                            # Drawn now, seen or not: a saved notebook's widget state then holds them.
-                            self._draw_panel(panel)
-                    self._refresh()
-            except Exception as exc:  # noqa: BLE001 - a worker thread has no output area to report to
-                self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
+            # The widgets are updated on the kernel's main loop, between the messages it handles (the
+            # figures' size reports, clicks): updating them from this thread while the front end syncs
+            # left the figures out of step with the browser.
+            self._extras_unshown = res
+            _on_main_loop(lambda res=res: self._show_extras(res))
+
+    def _show_extras(self, res) -> None:
+        """Draw the linear and additive tabs of ``res`` once its extras are computed (main loop)."""
+        if self._extras_unshown is not res:  # drawn already (by wait()) or overtaken
+            return
+        self._extras_unshown = None
+        try:
+            with self._lock:
+                if res is not self._res:
+                    return
+                if self._options["trends"]:
+                    names = res.additive.columns if res.additive is not None else []
+                    self._quietly(lambda names=names: setattr(self.covariate_control, "options", names))
+                    self._state["covariate"] = self.covariate_control.value
+                for i, panel in enumerate(self._panels.values()):
+                    if panel.name in ("trends", "linear", "evidence"):
+                        panel.key = None
+                    self._tabs.set_title(i, self._tab_title(panel))
+                    if panel.name in ("trends", "linear"):
+                        # Drawn now, seen or not: a saved notebook's widget state then holds them.
+                        self._draw_panel(panel)
+                self._refresh()
+        except Exception as exc:  # noqa: BLE001 - no output area to report to
+            self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
 
     # -- event handlers ------------------------------------------------------------------
     def _guard(self, handler):
