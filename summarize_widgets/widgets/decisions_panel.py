@@ -40,6 +40,7 @@ class DecisionsPanel(widgets.VBox):
         for c in (self.min_prob_control, self.cost_control):
             c.observe(lambda change: self._redraw(), names="value")
         super().__init__([widgets.HBox([self.min_prob_control, self.cost_control]), self.status, self.figure, self.tables])
+        self.add_class("swx-decisions")
 
     def show(self, tree, *, level: float = 0.95) -> None:
         self._tree, self._level = tree, level
