@@ -249,3 +249,23 @@ def write_notebook():
 def run_all():
     """``run_all(page, server, notebook)`` opens a notebook and runs every cell."""
     return _open_and_run_all
+
+
+def _run_for_expected(browser, server: LabServer, notebook: str, viewport: dict):
+    """Open ``notebook`` in a new page, run every cell and read the JSON its cells print after "EXPECTED "."""
+    import json
+
+    from playwright.sync_api import expect
+
+    page = browser.new_page(viewport=viewport)
+    _open_and_run_all(page, server, notebook)
+    out = page.locator(".jp-OutputArea-output", has_text="EXPECTED ")
+    expect(out).to_be_visible(timeout=240_000)
+    text = out.inner_text()
+    return page, json.loads(text[text.index("EXPECTED ") + len("EXPECTED "):].strip().splitlines()[0])
+
+
+@pytest.fixture(scope="session")
+def run_for_expected():
+    """``run_for_expected(browser, server, notebook, viewport)`` -> (page, the notebook's EXPECTED values)."""
+    return _run_for_expected

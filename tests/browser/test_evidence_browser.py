@@ -6,7 +6,6 @@ which is why an earlier version of this test never ran.
 """
 from __future__ import annotations
 
-import json
 
 import pytest
 
@@ -25,16 +24,11 @@ CELLS = [
 
 
 @pytest.fixture(scope="module")
-def evidence_page(lab_server, browser, run_all, write_notebook):
+def evidence_page(lab_server, browser, run_for_expected, write_notebook):
     from playwright.sync_api import expect
 
     write_notebook(lab_server, NOTEBOOK, CELLS)
-    page = browser.new_page(viewport={"width": 1400, "height": 2200})
-    run_all(page, lab_server, NOTEBOOK)
-    out = page.locator(".jp-OutputArea-output", has_text="EXPECTED ")
-    expect(out).to_be_visible(timeout=240_000)
-    text = out.inner_text()
-    expected = json.loads(text[text.index("EXPECTED ") + len("EXPECTED "):].strip().splitlines()[0])
+    page, expected = run_for_expected(browser, lab_server, NOTEBOOK, {"width": 1400, "height": 2200})
     explorer = page.locator(".swx-explorer")
     expect(explorer).to_be_visible()
     yield page, explorer, expected

@@ -6,7 +6,6 @@ subgroups each depth has and their rules). The tests then read the page.
 """
 from __future__ import annotations
 
-import json
 import re
 from pathlib import Path
 
@@ -49,18 +48,13 @@ def _typeset(rule: str) -> str:
 
 
 @pytest.fixture(scope="module")
-def lab_page(lab_server, browser, run_all):
+def lab_page(lab_server, browser, run_for_expected):
     nb = nbformat.read(REPO / "example_notebooks" / "quickstart.ipynb", as_version=4)
     nb.cells.append(nbformat.v4.new_code_cell(EXPECT_CELL))
     nbformat.write(nb, lab_server.root / NOTEBOOK)
-    page = browser.new_page(viewport={"width": 1500, "height": 2400})
-    run_all(page, lab_server, NOTEBOOK)
+    page, expected = run_for_expected(browser, lab_server, NOTEBOOK, {"width": 1500, "height": 2400})
     from playwright.sync_api import expect
 
-    out = page.locator(".jp-OutputArea-output", has_text="EXPECTED ")
-    expect(out).to_be_visible(timeout=240_000)
-    text = out.inner_text()
-    expected = json.loads(text[text.index("EXPECTED ") + len("EXPECTED "):].strip().splitlines()[0])
     explorer = page.locator(".swx-explorer")
     expect(explorer).to_be_visible()
     yield page, explorer, expected

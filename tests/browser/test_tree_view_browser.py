@@ -33,19 +33,14 @@ CELLS = [
 
 
 @pytest.fixture(scope="module")
-def tree_page(lab_server, browser, run_all):
+def tree_page(lab_server, browser, run_for_expected):
     from playwright.sync_api import expect
 
     nb = nbformat.v4.new_notebook()
     nb.cells = [nbformat.v4.new_code_cell(c) for c in CELLS]
     nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3 (ipykernel)", "language": "python"}
     nbformat.write(nb, lab_server.root / NOTEBOOK)
-    page = browser.new_page(viewport={"width": 1400, "height": 2200})
-    run_all(page, lab_server, NOTEBOOK)
-    out = page.locator(".jp-OutputArea-output", has_text="EXPECTED ")
-    expect(out).to_be_visible(timeout=240_000)
-    text = out.inner_text()
-    expected = json.loads(text[text.index("EXPECTED ") + len("EXPECTED "):].strip().splitlines()[0])
+    page, expected = run_for_expected(browser, lab_server, NOTEBOOK, {"width": 1400, "height": 2200})
     explorers = page.locator(".swx-explorer")
     expect(explorers).to_have_count(2)
     deep, late = explorers.nth(0), explorers.nth(1)
