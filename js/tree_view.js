@@ -53,6 +53,8 @@
  * @property {string} [interval_text]  "[lower, upper]" as every table prints it
  * @property {string} [share_text]     `share` as a percentage, as the tables print it
  * @property {string} [unit_share_text] `unit_share` as a percentage
+ * @property {string} [rule_text]      `rule` in the one rule syntax of every output ("and", "\u2208")
+ * @property {string} [split_text]     `split` in that syntax
  */
 
 /**
@@ -390,6 +392,25 @@ export function typeset(text) {
   return String(text ?? "").replaceAll("<=", "\u2264").replaceAll(">=", "\u2265");
 }
 
+/**
+ * A record's rule as every output prints it: the kernel's `rule_text` (core/rules.py), or the raw
+ * rule typeset when a record carries no printed text.
+ * @param {NodeRecord} rec
+ * @returns {string}
+ */
+export function ruleText(rec) {
+  return rec.rule_text ?? typeset(rec.rule);
+}
+
+/**
+ * A record's edge condition as every output prints it (see ruleText).
+ * @param {NodeRecord} rec
+ * @returns {string}
+ */
+export function splitText(rec) {
+  return rec.split_text ?? typeset(rec.split);
+}
+
 /** Mark after a weak-uptake subgroup's estimate (the tables' footnote symbol). */
 export const WEAK_MARK = "\u2020";
 
@@ -438,7 +459,7 @@ export function estimateText(rec) {
  */
 export function headLine(rec) {
   if (rec.parent === -1 || !rec.split) return "All units";
-  return rec.label ? `${rec.label} \u00b7 ${typeset(rec.split)}` : typeset(rec.split);
+  return rec.label ? `${rec.label} \u00b7 ${splitText(rec)}` : splitText(rec);
 }
 
 /**
@@ -460,7 +481,7 @@ export function boxLines(rec, basis = "units") {
  */
 export function ariaLabel(rec, ctx = {}) {
   const basis = ctx.basis ?? "units";
-  const rule = typeset(rec.rule) || "All units";
+  const rule = ruleText(rec) || "All units";
   let size = `${formatCount(rec.n_units)} units`;
   const share = rec.share_text ?? formatShare(rec.share);
   if (basis === "compliers") {
@@ -769,7 +790,7 @@ function drawBoxes(world, layout, o) {
     if (!rec.is_leaf) group.setAttribute("aria-expanded", "true");
     const title = svgEl("title", {});
     const lines = boxLines(rec, o.basis);
-    title.textContent = `${rec.label ? `${rec.label}: ` : ""}${typeset(rec.rule) || "All units"}\n${lines[1]}\n` +
+    title.textContent = `${rec.label ? `${rec.label}: ` : ""}${ruleText(rec) || "All units"}\n${lines[1]}\n` +
       `mean ${rec.mean_text ?? formatNumber(rec.mean, 4)}, ` +
       `${o.interval || "interval"} ${rec.interval_text ?? formatInterval(rec.lower, rec.upper)}` +
       (rec.weak ? `\n${WEAK_MARK} weak uptake: the estimate is unstable` : "") +

@@ -85,6 +85,20 @@ def test_node_records_are_json_ready(draws):
     assert recs[0]["parent"] == -1 and recs[0]["split"] == ""
 
 
+def test_node_records_carry_rules_in_the_one_rule_syntax(study):
+    """The tree view's boxes and read-out rules come from core.rules.rule_text, as figures and tables."""
+    cov = study.covariates.copy()
+    cov["region"] = pd.Categorical(np.where(cov.index % 3 == 0, "coast", np.where(cov.index % 3 == 1, "hills", "plain")))
+    d = EffectDraws(study.itt_outcome_draws + np.where(cov["region"] == "coast", 30.0, 0.0)[None, :], cov)
+    nodes = summarize_tree(d, max_depth=2).nodes()
+    recs = node_records(nodes)
+    deep = [r for r in recs if r["depth"] == 2]
+    assert deep and all(" and " in r["rule_text"] and "&" not in r["rule_text"] for r in deep)
+    assert any("\u2208" in r["rule_text"] or "\u2208" in r["split_text"] for r in recs)
+    assert all("in {" not in r["rule_text"] + r["split_text"] and "<=" not in r["rule_text"] for r in recs)
+    assert [r["rule_text"] for r in recs] == [rule_text(r) for r in nodes["rule"]]
+
+
 def test_node_records_name_missing_columns():
     with pytest.raises(SummaryError, match=r"`nodes` must be a DataFrame with columns .* missing \['split', 'rule'"):
         node_records(pd.DataFrame({"node": [0], "parent": [-1], "depth": [0]}))
@@ -249,10 +263,6 @@ def _highlighted_rule(fig_widget):
 from summarize_widgets.core.rules import rule_text  # noqa: E402
 
 
-def _plain(rule):
-    return rule.replace("<=", "\u2264").replace(">=", "\u2265")
-
-
 def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     effects = explorer._panels["effects"].figure
     leaves3 = summarize_tree(draws, max_depth=3).at_depth(3)
@@ -266,7 +276,8 @@ def test_depth_level_and_selection_update_every_panel(explorer, draws, study):
     explorer.apply(selected=leaf, level=0.9)
     rule = leaves3.table().set_index("subgroup").loc[leaf, "rule"]
     assert _highlighted_rule(effects) == rule_text(rule)  # the figures print the tables' rule text
-    assert explorer.status.value.count(html.escape(_plain(rule))) == 1
+    # The status line prints the same rule syntax as the figures and tables ("and", never "&").
+    assert " & " in rule and explorer.status.value.count(html.escape(rule_text(rule))) == 1
 
     # Intervals at the new level equal numpy quantiles (type 7) of per-draw means from a pandas groupby.
     ref = _leaf_draws_by_groupby(study.itt_outcome_draws, study.covariates, leaves3)

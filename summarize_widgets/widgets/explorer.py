@@ -24,6 +24,7 @@ import ipywidgets as widgets
 import numpy as np
 import plotly.graph_objects as go
 
+from ..core.rules import rule_text
 from ..core.validate import SummaryError, check_columns, check_int, check_interval, check_level
 from ..core.draws import EffectDraws
 from ..figures.palette import effect_palette
@@ -658,7 +659,7 @@ class Explorer(widgets.VBox):
         if s["selected"] < 0 or row.empty:
             return P.status_html("Click a box in the tree to select a subgroup.")
         r = row.iloc[0]
-        rule = P.typeset(r["rule"]) or "All units"
+        rule = rule_text(r["rule"]) or "All units"
         if not bool(r["is_leaf"]):
             return P.status_html(f"Selected: {rule} (split further at this depth; click one of its coloured "
                                  "subgroups to compare it with the others).")

@@ -32,7 +32,6 @@ __all__ = [
     "status_html",
     "header_html",
     "estimate_text",
-    "typeset",
 ]
 
 MINUS = "\u2212"
@@ -181,11 +180,6 @@ def header_html(title: str, detail: str) -> str:
     return (f'<div class="swx-header" style="line-height:1.35;margin-bottom:4px">'
             f'<span style="font-size:15px;font-weight:600;color:{_fig.INK}">{html.escape(title)}</span> '
             f'<span style="font-size:13px;color:#555">{html.escape(detail)}</span></div>')
-
-
-def typeset(rule: str) -> str:
-    """``<=`` and ``>=`` as the figures and the tree view print them."""
-    return str(rule).replace("<=", "\u2264").replace(">=", "\u2265")
 
 
 def _decimals(max_abs: float, digits: int = 3) -> int:

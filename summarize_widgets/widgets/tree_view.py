@@ -16,6 +16,7 @@ import anywidget
 import traitlets
 
 from ..core.validate import SummaryError
+from ..core.rules import rule_text
 from ..export.layout import subgroup_texts
 from ..figures.palette import EFFECT_PALETTE
 
@@ -28,8 +29,9 @@ NODE_FIELDS = ("node", "parent", "depth", "split", "rule", "is_leaf", "n_units",
 # ``unit_share`` (the share of units), ``weak`` (weak uptake: an unstable ratio, flagged in the box and
 # left out of the colour range), ``label`` (the subgroup's S1..Sk label, "" for inner nodes) and the
 # numbers as every table prints them (``export.layout.subgroup_texts``, core/numbers.py): ``mean_text``,
-# ``interval_text``, ``share_text`` (of ``share``) and ``unit_share_text``.
-TEXT_FIELDS = ("label", "mean_text", "interval_text", "share_text", "unit_share_text")
+# ``interval_text``, ``share_text`` (of ``share``) and ``unit_share_text``; ``rule_text`` and
+# ``split_text``, the rule and the edge condition in the one rule syntax (core.rules.rule_text).
+TEXT_FIELDS = ("label", "mean_text", "interval_text", "share_text", "unit_share_text", "rule_text", "split_text")
 RECORD_FIELDS = NODE_FIELDS + ("unit_share", "weak") + TEXT_FIELDS
 _INT_FIELDS = ("node", "parent", "depth", "n_units")
 _FLOAT_FIELDS = ("share", "mean", "lower", "upper", "unit_share")
@@ -121,6 +123,7 @@ def node_records(nodes, weak=()) -> list[dict]:
         rec["weak"] = rec["node"] in weak
         rec["label"] = "" if labels[k] is None or (isinstance(labels[k], float) and math.isnan(labels[k])) else str(labels[k])
         rec["mean_text"], rec["interval_text"] = str(t["mean_text"]), str(t["interval_text"])
+        rec["rule_text"], rec["split_text"] = rule_text(rec["rule"]), rule_text(rec["split"])
         out.append(rec)
     return out
 

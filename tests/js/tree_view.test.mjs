@@ -22,6 +22,8 @@ import {
   formatCount,
   truncate,
   typeset,
+  ruleText,
+  splitText,
   boxLines,
   sizeLine,
   ariaLabel,
@@ -189,6 +191,16 @@ test("intervals, shares, counts, truncation, box lines", () => {
   assert.equal(boxLines(rec(2, 0, 1, { split: "x <= 1" }))[0], "x \u2264 1");
   assert.deepEqual(lines, ["age < 45.5", "1,520 units \u00b7 15%", "\u221212.3 [\u221220.0, \u22124.6]"]);
   assert.equal(boxLines(rec(0, -1, 0))[0], "All units");
+});
+
+test("boxes and read-outs print the kernel's rule text (one rule syntax) when the record carries it", () => {
+  const r = rec(4, 1, 2, { split: "region in {coast}", rule: "age <= 40 & region in {coast}",
+    split_text: "region \u2208 {coast}", rule_text: "age \u2264 40 and region \u2208 {coast}", label: "S2" });
+  assert.equal(splitText(r), "region \u2208 {coast}");
+  assert.equal(ruleText(r), "age \u2264 40 and region \u2208 {coast}");
+  assert.equal(boxLines(r)[0], "S2 \u00b7 region \u2208 {coast}");
+  assert.match(ariaLabel(r), /age \u2264 40 and region \u2208 \{coast\}/);
+  assert.ok(!ariaLabel(r).includes("&"));
 });
 
 test("estimates share decimals: the largest |value| gets three significant digits", () => {
