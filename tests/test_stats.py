@@ -139,3 +139,23 @@ def test_old_spellings_warn_and_still_work():
     pd.testing.assert_frame_equal(old.table(), tree.at_depth(1).table())
     with pytest.warns(DeprecationWarning, match="current_depth"):
         assert tree.current_depth == 2
+
+
+def test_tables_reuse_their_monte_carlo_error_at_a_level_already_computed(monkeypatch):
+    """A table read again at the same level and interval type (the report, then the evidence's
+    precision verdict) makes no new arviz call, and gives the same numbers; a new level does."""
+    from summarize_widgets.core import stats as core_stats
+
+    rng = np.random.default_rng(3)
+    X = household_covariates(300, rng)
+    draws = sw.EffectDraws(draws_around(np.where(X["age"] > 50, 2.0, 0.0), 200, rng), X)
+    tree = sw.summarize_tree(draws, max_depth=2)
+    first = tree.table(level=0.9)
+    calls = []
+    real = core_stats.mc_error
+    monkeypatch.setattr(core_stats, "mc_error", lambda *a, **k: calls.append(1) or real(*a, **k))
+    again = tree.table(level=0.9)
+    pd.testing.assert_frame_equal(first, again)
+    assert calls == []
+    other = tree.table(level=0.8)
+    assert calls and not np.allclose(other["lower"], first["lower"])

@@ -32,6 +32,7 @@ class SummaryResult:
         self._draws = draws
         self._settings = {"summary": self.summary_type, "label": draws.label, **settings}
         self._diagnostics: dict = {}
+        self._columns: dict = {}
 
     @property
     def draws(self):
@@ -51,9 +52,15 @@ class SummaryResult:
 
         ``keys`` names each column (k hashable ids, for example node ids): the level-free Monte
         Carlo diagnostics are computed once per key and reused (they change with neither the
-        level nor the interval type), so going back to a depth or a level costs no arviz call.
+        level nor the interval type), so going back to a depth or a level costs no arviz call; the
+        whole columns are kept per key, level and interval type, so reading a table again (the
+        report, then the evidence's precision verdict) costs nothing.
         """
         keys = list(keys)
+        setting = (float(level), str(interval))
+        done = [self._columns.get((k, setting)) for k in keys]
+        if keys and all(c is not None for c in done):
+            return {name: np.array([c[name] for c in done]) for name in done[0]}
         todo = [j for j, k in enumerate(keys) if k not in self._diagnostics]
         if todo:
             fresh = mc_diagnostics(theta[:, todo], self._draws.n_chains)
@@ -61,8 +68,11 @@ class SummaryResult:
                 self._diagnostics[keys[j]] = {name: values[pos] for name, values in fresh.items()}
         diag = {name: np.array([self._diagnostics[k][name] for k in keys], dtype=np.float64)
                 for name in ("ess_bulk", "ess_tail", "rhat", "mcse_mean")}
-        return summary_columns(theta, level=level, interval=interval, n_chains=self._draws.n_chains,
+        cols = summary_columns(theta, level=level, interval=interval, n_chains=self._draws.n_chains,
                                diagnostics=diag)
+        for j, k in enumerate(keys):
+            self._columns[(k, setting)] = {name: values[j] for name, values in cols.items()}
+        return cols
 
     def r2_statistics(self, key, r2: np.ndarray, *, level: float, interval: str) -> dict:
         """:data:`FIT_COLUMNS` of a per-draw summary R^2 (one value each).
