@@ -782,8 +782,16 @@ def test_complier_weighted_tree_flags_weak_uptake_and_shows_complier_share():
     assert "complier share" in tr.hovertemplate and "of all compliers" in tr.hovertemplate
     order = tab.sort_values("mean")
     np.testing.assert_allclose(tr.customdata[:, 7].astype(float), order["uptake_share"])
-    # `share` is a share of compliers here, and the labels say so.
-    assert all("of compliers" in lab for lab in fig.layout.yaxis.ticktext)
+    # Both shares, each named, with the tables' digits (export.layout.subgroup_texts): `share` is the
+    # share of units and `complier_share` the share of compliers.
+    from summarize_widgets.export.layout import subgroup_texts
+
+    texts = subgroup_texts(order)
+    for lab, (_, t) in zip(fig.layout.yaxis.ticktext, texts.iterrows()):
+        assert f"{t['share_text']} of units" in lab and f"{t['complier_share_text']} of compliers" in lab, lab
+    # The hover prints the tables' numbers, not plotly's own formats.
+    assert ":.4g" not in tr.hovertemplate
+    assert {row[-4] for row in tr.customdata} <= set(texts["mean_text"])
 
 
 def _complier_table():

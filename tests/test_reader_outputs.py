@@ -157,3 +157,25 @@ def test_report_draws_the_tree_without_script_and_prints_cleanly(offer_tree, com
     assert len(lines) == len(set(lines)), sorted({t for t in lines if lines.count(t) > 1})
     weighted = rp.render_report(tree=complier_tree, figures=None)
     assert "of compliers" in weighted[weighted.index('<svg class="sw-tree"'):] and "weak uptake" in weighted
+
+
+def test_report_tree_colours_follow_the_better_direction(offer_tree):
+    """The report's tree fills each subgroup as the figures do: the warm end marks the better
+    direction (the demo's bills: lower is better), so the best subgroup is the warmest box."""
+    import re
+
+    from summarize_widgets.export.tree_diagram import tree_diagram_svg
+    from summarize_widgets.figures.palette import DIVERGING, benefit_sign, effect_color
+
+    assert offer_tree.draws.better == "lower"
+    svg = tree_diagram_svg(offer_tree)
+    fills = dict(re.findall(r'<g class="sw-tree-node sw-tree-leaf"[^>]*><title>(S\d+) \u00b7 .*?<rect [^>]*fill="(#[0-9A-Fa-f]{6})"',
+                            svg, flags=re.S))
+    table = offer_tree.table()
+    assert set(fills) == set(table["label"])
+    vmax = table["mean"].abs().max()
+    sign = benefit_sign("lower")
+    for r in table.itertuples():
+        assert fills[r.label].lower() == effect_color(sign * r.mean, vmax).lower(), r.label
+    best = table.loc[table["mean"].idxmin(), "label"]
+    assert fills[best].lower() == DIVERGING[-1].lower()

@@ -3,14 +3,14 @@
 It carries what the explorer's tree view shows (widgets/tree_view.py, js/tree_view.js): one box per
 node, left to right by depth, each with the subgroup label (S1..Sk) and its split, the units and
 their share (of units, and of compliers for complier-weighted draws), the posterior mean and
-interval, and the weak-uptake mark; leaves are filled on the figures' diverging scale. The numbers
+interval, and the weak-uptake mark; leaves are filled on the figures' diverging scale (warm end = the better direction). The numbers
 come from :func:`summarize_widgets.export.layout.subgroup_texts`, so they read as in every table.
 """
 from __future__ import annotations
 
 import html
 
-from ..figures.palette import INK, effect_color
+from ..figures.palette import INK, benefit_sign, effect_color
 from .layout import WEAK_MARK, rule_to_text, subgroup_texts
 
 __all__ = ["tree_diagram_svg", "tree_box_lines"]
@@ -101,6 +101,7 @@ def tree_diagram_svg(tree, *, level: float = 0.95, interval: str = "equal-tailed
     steady = [abs(mean[n]) for n in y if leaf[n] and n not in weak and mean[n] == mean[n]]
     every = [abs(mean[n]) for n in y if leaf[n] and mean[n] == mean[n]]
     vmax = max(steady or every or [0.0])
+    sign = benefit_sign(getattr(tree.draws, "better", None))
     x = {n: _PAD + depth[n] * (width + _GAP_X) for n in y}
     total_w = _PAD * 2 + (max(depth.values()) + 1) * width + max(depth.values()) * _GAP_X
     total_h = _PAD * 2 + row[0] * (_BOX_H + _GAP_Y) - _GAP_Y
@@ -113,7 +114,7 @@ def tree_diagram_svg(tree, *, level: float = 0.95, interval: str = "equal-tailed
             parts.append(f'<path class="sw-tree-edge" d="M{x1:.1f},{y1:.1f} C{xm:.1f},{y1:.1f} {xm:.1f},{y2:.1f} '
                          f'{x2:.1f},{y2:.1f}" fill="none" stroke="#8A8C91" stroke-width="1.2"/>')
     for n in y:
-        fill = effect_color(mean[n], vmax) if leaf[n] else "#FFFFFF"
+        fill = effect_color(sign * mean[n], vmax) if leaf[n] else "#FFFFFF"  # warm end = better direction
         ink = _text_on(fill)
         head, size, est = lines[n]
         cls = "sw-tree-leaf" if leaf[n] else "sw-tree-inner"

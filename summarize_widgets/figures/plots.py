@@ -25,6 +25,7 @@ from plotly.subplots import make_subplots
 from ..core import numbers as N
 from ..core.rules import rule_text
 from ..core.validate import SummaryError
+from ..export.layout import subgroup_texts
 from ..summaries.additive import AdditiveSummary
 from ..summaries.groups import ALL_UNITS, GroupSummary
 from ..summaries.linear import LinearSummary
@@ -293,7 +294,9 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
 
     labels = []
     compliers = "uptake_share" in ordered.columns
-    for r in ordered.itertuples(index=False):
+    has_complier_share = "complier_share" in ordered.columns
+    texts = subgroup_texts(ordered)  # the tables' digits, chosen once for the whole table
+    for r in ordered.itertuples():
         # Named groups (string ids) show their name, with the query in small print; tree
         # subgroups (node ids) show their rule.
         named = isinstance(r.subgroup, str)
@@ -304,9 +307,10 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
             lab = (f"<b>{_esc(tag)}</b>: " if tag else "") + _rule(r.rule, 42)
         if r.subgroup in marked:
             lab = f"<span style='color:{ACCENT}'><b>{lab}</b></span>"
-        # Complier-weighted tables: `share` is the subgroup's share of all compliers, not of units.
-        small = (f"n = {int(r.n_units):,} \u00b7 {100 * float(r.share):.1f}% of compliers" if compliers
-                 else f"n = {int(r.n_units):,} ({100 * float(r.share):.1f}%)")
+        # Complier-weighted tables: `share` is the share of units, `complier_share` that of compliers.
+        t = texts.loc[r.Index]
+        small = (f"n = {t['n_text']} \u00b7 {t['share_text']} of units \u00b7 {t['complier_share_text']} of compliers"
+                 if compliers and has_complier_share else f"n = {t['n_text']} ({t['share_text']})")
         if named and r.subgroup not in pinned and str(r.rule).strip():
             small = f"{_wrap(r.rule, 60)}<br>{small}"
         if bool(getattr(r, "weak_uptake", False)):  # complier-weighted: the ratio's denominator is near 0
@@ -337,10 +341,10 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     x_range = _padded_range(basis["lower"], basis["upper"],
                             *([draws[s] for s in basis["subgroup"]] if draws is not None else []))
     shown, clip_traces, notes = _clip_to_axis(ordered, "mean", pos, heights, x_range)
-    hover = ("<b>%{customdata[0]}</b><br>posterior mean %{customdata[6]:.4g}<br>" + level +
-             " [%{customdata[3]:.4g}, %{customdata[4]:.4g}]<br>P(effect > 0) = %{customdata[5]:.3f}"
-             + ("<br>%{customdata[1]:,} units; %{customdata[2]:.1%} of all compliers" if compliers
-                else "<br>%{customdata[1]:,} units (%{customdata[2]:.1%})"))
+    hover = "<b>%{customdata[0]}</b><br>posterior mean %{customdata[M]}<br>" + level + " %{customdata[I]}" \
+        "<br>P(effect > 0) = %{customdata[P]}<br>%{customdata[1]:,} units (%{customdata[2]:.1%} of units)"
+    if compliers and has_complier_share:
+        hover += "; %{customdata[C]} of all compliers"
     columns = [[_wrap(r, 60) if isinstance(g, str) else _rule(r, 60) for g, r in zip(ordered["subgroup"], ordered["rule"])],
                ordered["n_units"].astype(int),
                ordered["share"].astype(float), ordered["lower"].astype(float),
@@ -348,6 +352,12 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     if "uptake_share" in ordered.columns:  # complier-weighted draws
         hover += "<br>uptake in this subgroup (its complier share) %{customdata[7]:.1%}"
         columns.append(ordered["uptake_share"].astype(float))
+    # The numbers as every table prints them (one formatter): mean, interval, P(>0), share of compliers.
+    base = len(columns)
+    columns += [texts.loc[ordered.index, "mean_text"], texts.loc[ordered.index, "interval_text"],
+                texts.loc[ordered.index, "prob_text"], texts.loc[ordered.index, "complier_share_text"]]
+    for key, k in (("M", 0), ("I", 1), ("P", 2), ("C", 3)):
+        hover = hover.replace(f"customdata[{key}]", f"customdata[{base + k}]")
     hover += "<extra></extra>"
     custom = np.column_stack(columns).astype(object)
     is_marked = ordered["subgroup"].isin(marked).to_numpy()
