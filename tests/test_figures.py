@@ -864,3 +864,26 @@ def test_binned_kde_matches_scipy_gaussian_kde(n):
     grid = np.linspace(v.min(), v.max(), 97)
     ours, ref = F._kde(v, grid), gaussian_kde(v)(grid)
     assert np.abs(ours - ref).max() <= 2e-3 * ref.max()
+
+
+def test_coefficient_and_contrast_hovers_print_the_tables_numbers(draws):
+    """Hovers carry the numbers as every table prints them (core.numbers: digits from size and MCSE,
+    probabilities as <0.001 at the ends), not plotly's own .4g."""
+
+    lin = F.plot_coefficients(sw.summarize_linear(draws))
+    tree = summarize_tree(draws, max_depth=2)
+    first = int(tree.table()["subgroup"].iloc[0])
+    con = F.plot_contrasts(tree, first)
+    for fig, name, value, prob in ((lin, "coefficients", "mean", "prob_positive"),
+                                   (con, "contrasts", "difference", "prob_a_greater")):
+        tr = _trace(fig, name)
+        assert ".4g" not in tr.hovertemplate and ":.3f" not in tr.hovertemplate
+        values = tr.x if name == "coefficients" else [float(row[4]) for row in tr.customdata]
+        for row, v in zip(tr.customdata, values):
+            text = str(row[-3])
+            decimals = len(text.split(".")[1]) if "." in text else 0
+            assert abs(float(text.replace("\u2212", "-").replace(",", "")) - float(v)) <= 0.51 * 10 ** -decimals
+            assert str(row[-2]).startswith("[") and str(row[-1])[0] in "<>01"
+    curves = F.plot_curves(sw.summarize_additive(draws, lam=1.0))
+    hovers = [t.hovertemplate for t in curves.data if t.hovertemplate]
+    assert hovers and not any(".4g" in h for h in hovers)

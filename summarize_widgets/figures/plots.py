@@ -115,6 +115,16 @@ def _level_text(attrs: Mapping, level: float | None = None) -> str:
     return f"{pct} {'highest-density' if kind == 'highest-density' else 'credible'} interval".strip()
 
 
+def _number_texts(d: pd.DataFrame, value: str, prob: str) -> list:
+    """``value``, its interval and ``prob`` as every table prints them (core/numbers.py: digits from
+    the numbers' size and Monte Carlo error, probabilities with ``<0.001``-style ends), for hovers."""
+    dec, di = N.effect_decimals(d, value)
+    n = d.attrs.get("n_draws")
+    return [[N.fixed(v, dec) for v in d[value]],
+            [N.interval(lo, hi, di) for lo, hi in zip(d["lower"], d["upper"])],
+            [N.probability(p, n_draws=int(n) if n else None) for p in d[prob]]]
+
+
 def _require(df, columns, name: str) -> pd.DataFrame:
     if not isinstance(df, pd.DataFrame):
         raise SummaryError(f"`{name}` must be a pandas DataFrame; got {type(df).__name__}.")
@@ -575,8 +585,18 @@ _CURVE_COLS = ["covariate", "covariate_type", "x", "mean", "lower", "upper", "lo
 # Pointwise band over the simultaneous band: the two alphas stack to a visibly darker core.
 _POINTWISE_FILL = _rgba(BAND, 0.30)
 _JOINT_FILL = _rgba(BAND, 0.13)
-_HOVER_BANDS = ("<br>pointwise [%{customdata[0]:.4g}, %{customdata[1]:.4g}]"
-                "<br>simultaneous [%{customdata[2]:.4g}, %{customdata[3]:.4g}]<extra></extra>")
+_HOVER_BANDS = "mean %{customdata[0]}<br>pointwise %{customdata[1]}<br>simultaneous %{customdata[2]}<extra></extra>"
+
+
+def _curve_texts(d: pd.DataFrame) -> np.ndarray:
+    """Hover texts of a curve as the tables print numbers (core/numbers.py): the mean, the pointwise
+    and the simultaneous band, and x at its shortest decimal (4 significant digits at most)."""
+    dec, di = N.effect_decimals(d, "mean")
+    xs = [_esc(x) if not isinstance(x, (int, float, np.number)) else N.shortest(float(f"{float(x):.4g}")) for x in d["x"]]
+    return np.column_stack([[N.fixed(v, dec) for v in d["mean"]],
+                            [N.interval(a, b, di) for a, b in zip(d["lower"], d["upper"])],
+                            [N.interval(a, b, di) for a, b in zip(d["lower_joint"], d["upper_joint"])],
+                            xs]).astype(object)
 
 
 def _add_curve(fig, d: pd.DataFrame, *, row_col):
@@ -590,8 +610,8 @@ def _add_curve(fig, d: pd.DataFrame, *, row_col):
                                  fillcolor=fill, hoverinfo="skip", showlegend=False), **row_col)
     fig.add_trace(go.Scatter(
         x=x, y=d["mean"], mode="lines", line=dict(color=BAND, width=2.5), name="posterior mean",
-        showlegend=False, customdata=d[["lower", "upper", "lower_joint", "upper_joint"]].to_numpy(float),
-        hovertemplate="x = %{x:.4g}<br>mean %{y:.4g}" + _HOVER_BANDS,
+        showlegend=False, customdata=_curve_texts(d),
+        hovertemplate="x = %{customdata[3]}<br>" + _HOVER_BANDS,
     ), **row_col)
 
 
@@ -609,8 +629,8 @@ def _add_categories(fig, d: pd.DataFrame, *, row_col):
     fig.add_trace(go.Scatter(
         x=cats, y=m, mode="markers", showlegend=False, name="posterior mean",
         marker=dict(size=10, color="white", line=dict(color=BAND, width=2.5)),
-        customdata=d[["lower", "upper", "lower_joint", "upper_joint"]].to_numpy(float),
-        hovertemplate="%{x}<br>mean %{y:.4g}" + _HOVER_BANDS,
+        customdata=_curve_texts(d),
+        hovertemplate="%{x}<br>" + _HOVER_BANDS,
     ), **row_col)
     fig.update_xaxes(type="category", **row_col)
 
@@ -798,12 +818,11 @@ def coefficients_figure(table: pd.DataFrame, *, intercept: bool = False, per=Non
     level = _level_text(table.attrs)
     vmax = float(np.nanmax(np.abs(d["mean"].to_numpy(float))))
     custom = np.column_stack([labels, d["lower"].astype(float), d["upper"].astype(float),
-                              d["prob_positive"].astype(float)]).astype(object)
+                              d["prob_positive"].astype(float), *_number_texts(d, "mean", "prob_positive")]).astype(object)
     trace = _interval_rows(d, pos, value="mean", color=INK, fill=effect_color(_signed_values(d["mean"], table.attrs), vmax),
                            size=10, custom=custom, name="coefficients",
-                           hover=("<b>%{customdata[0]}</b><br>posterior mean %{x:.4g}<br>" + level +
-                          " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(coefficient > 0) = "
-                          "%{customdata[3]:.3f}<extra></extra>"))
+                           hover=("<b>%{customdata[0]}</b><br>posterior mean %{customdata[4]}<br>" + level +
+                          " %{customdata[5]}<br>P(coefficient > 0) = %{customdata[6]}<extra></extra>"))
     unit = table.attrs.get("unit")
     x_title = _effect_title({"unit": unit}, "Coefficient", f"mean and {level}")
     notes = [("numeric covariates per standard deviation (SD, given in each label); categories per switch "
@@ -918,12 +937,11 @@ def contrasts_figure(df: pd.DataFrame, subgroup, *, weak=(), title: str | None =
     custom = np.column_stack([[_wrap(r, 60) if isinstance(b, str) else _rule(r, 60) for b, r in zip(d["subgroup_b"], d["rule_b"])],
                               d["lower"].astype(float),
                               d["upper"].astype(float), d["prob_a_greater"].astype(float),
-                              d["difference"].astype(float)]).astype(object)
+                              d["difference"].astype(float), *_number_texts(d, "difference", "prob_a_greater")]).astype(object)
     trace = _interval_rows(shown, pos, value="difference", color=INK,
                            fill=effect_color(_signed_values(d["difference"], df.attrs), vmax), size=10, custom=custom,
-                           name="contrasts", hover=("minus <b>%{customdata[0]}</b><br>difference %{customdata[4]:.4g}<br>"
-                          + level + " [%{customdata[1]:.4g}, %{customdata[2]:.4g}]<br>P(A > B) = %{customdata[3]:.3f}"
-                          "<extra></extra>"))
+                           name="contrasts", hover=("minus <b>%{customdata[0]}</b><br>difference %{customdata[5]}<br>"
+                          + level + " %{customdata[6]}<br>P(A > B) = %{customdata[7]}<extra></extra>"))
     head = f"A: <span style='color:{ACCENT}'><b>{_wrap(name_a, 70)}</b></span>"
     if subgroup in weak:
         head += f" <span style='font-size:12px;color:{PALETTE[5]}'><b>\u2020 weak uptake: unstable</b></span>"
