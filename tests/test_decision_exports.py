@@ -54,6 +54,11 @@ def test_explorer_has_a_decisions_tab_that_follows_its_controls():
     study = sw.simulate_retrofit_study(300, 100, seed=3)
     e = sw.Explorer(study.effect_draws())
     assert "decisions" in e._panels
+    # The value of targeting (with its cross-fitted trees) is computed when its tab is opened, not
+    # before the first view: it costs more than the rest of the start-up together at scale.
+    assert e.decisions_panel.result is None
+    e._tabs.selected_index = list(e._panels).index("decisions")
+    assert e.decisions_panel.result is not None
     e._draw_panel(e._panels["decisions"])
     panel = e.decisions_panel
     assert panel.result is not None and "cross-fitted" in panel.tables.value

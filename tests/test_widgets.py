@@ -240,8 +240,10 @@ def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
     # the warm end marks the better direction, as in the figures: reversed stops when lower is better
     assert explorer.tree_view.palette["stops"] == (list(DIVERGING)[::-1] if draws.better == "lower" else list(DIVERGING))
     assert explorer.tree_view.colour_limit == pytest.approx(np.abs(tab["mean"]).max())
-    # Every panel was drawn at start, so a saved notebook shows them all.
-    assert all(p.key is not None for p in explorer._panels.values())
+    # Every panel but Decisions was drawn at start, so a saved notebook shows them; Decisions says
+    # that it is computed when its tab is opened.
+    assert all(p.key is not None for name, p in explorer._panels.items() if name != "decisions")
+    assert explorer._panels["decisions"].key is None and "when this tab is opened" in explorer.decisions_panel.status.value
     titles = [explorer._tabs.get_title(i) for i in range(len(explorer._tabs.children))]
     assert titles == ["Subgroup effects", "Fit by depth", "Trends", "Linear fit", "Table", "Contrasts", "Evidence", "Decisions"]
 

@@ -32,7 +32,8 @@ class DecisionsPanel(widgets.VBox):
         self.cost_control = widgets.FloatText(value=cost, description="Cost per offer", style={"description_width": "110px"})
         self.figure = widgets.Output()
         self.tables = widgets.HTML()
-        self.status = widgets.HTML()
+        self.status = widgets.HTML('<div style="color:#555">The value of targeting is computed when this tab is '
+                                   "opened (its cross-fitted trees take a while with many units).</div>")
         self._tree = None
         self._level = 0.95
         self._key = None

@@ -58,6 +58,10 @@ class _Panel:
         self.key = None
 
 
+#: Panels drawn only when their tab is opened (never as part of the first view).
+_DRAWN_WHEN_OPENED = ("decisions",)
+
+
 def _on_main_loop(fn) -> None:
     """Run ``fn`` on the IPython kernel's main loop (thread-safe hand-over), or at once outside a kernel."""
     loop = None
@@ -699,7 +703,9 @@ class Explorer(widgets.VBox):
         self._refresh_status()
         visible = self._tabs.selected_index or 0
         for i, panel in enumerate(self._panels.values()):
-            if all_panels or i == visible:
+            # The Decisions tab (value of targeting, with cross-fitted trees) is drawn when it is
+            # opened: at scale it costs more than the rest of the first view together.
+            if i == visible or (all_panels and panel.name not in _DRAWN_WHEN_OPENED):
                 self._draw_panel(panel)
 
     def _panel_key(self, name):
