@@ -16,19 +16,14 @@ main job; the stability check runs only on request (its cost is reported, not bo
 from __future__ import annotations
 
 import argparse
-import importlib.util
+import sys
 from pathlib import Path
 
 import numpy as np
 
 _HERE = Path(__file__).resolve().parent
-
-
-def _bench_summaries():
-    spec = importlib.util.spec_from_file_location("bench_summaries", _HERE / "bench_summaries.py")
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    return mod
+sys.path.insert(0, str(_HERE))
+import bench_summaries as B  # noqa: E402  (the shared simulated draws and timer)
 
 
 def main(argv=None):
@@ -47,13 +42,8 @@ def main(argv=None):
     from summarize_widgets.summaries.size_path import linear_size_path, tree_size_path
     from summarize_widgets.summaries.stability import structure_stability
 
-    B = _bench_summaries()
-    rng = np.random.default_rng(0)
     S, n = args.draws, args.units
-    print(f"building {S} x {n} float64 draws ({S * n * 8 / 2**30:.2f} GiB) and 10 covariates ...", flush=True)
-    T, X = B.make_draws(S, n, rng)
-    ref, _ = B.timed(lambda: T.sum(axis=1), repeat=3)
-    print(f"\nreference: one streaming pass (row sum)            {ref:8.3f} s   = 1.00 pass")
+    T, X, ref = B.draws_and_reference(S, n)
 
     def main_job():
         # What a user reads: the subgroup table and the linear terms, with their Monte Carlo error.

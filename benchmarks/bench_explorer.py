@@ -17,20 +17,15 @@ Targets (issue 11): first view within 2 passes plus the CART fit; each change < 
 from __future__ import annotations
 
 import argparse
-import importlib.util
+import sys
 import time
 from pathlib import Path
 
 import numpy as np
 
 _HERE = Path(__file__).resolve().parent
-
-
-def _bench_summaries():
-    spec = importlib.util.spec_from_file_location("bench_summaries", _HERE / "bench_summaries.py")
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    return mod
+sys.path.insert(0, str(_HERE))
+import bench_summaries as B  # noqa: E402  (the shared simulated draws and timer)
 
 
 def _median_ms(fn, n=5):
@@ -53,19 +48,14 @@ def main(argv=None):
     from sklearn.tree import DecisionTreeRegressor
     from summarize_widgets.widgets import Explorer
 
-    B = _bench_summaries()
-    rng = np.random.default_rng(0)
     S, n = args.draws, args.units
-    print(f"building {S} x {n} float64 draws ({S * n * 8 / 2**30:.2f} GiB) and 10 covariates ...", flush=True)
-    T, X = B.make_draws(S, n, rng)
-    ref, _ = B.timed(lambda: T.sum(axis=1), repeat=3)
+    T, X, ref = B.draws_and_reference(S, n)
     t_scan, d = B.timed(lambda: sw.EffectDraws(T, X))
     codes = np.column_stack([X[c].to_numpy(float) if X[c].dtype.kind in "biuf" else X[c].astype("category").cat.codes
                              for c in X.columns])
     mean = T.mean(axis=0)
     t_cart, _ = B.timed(lambda: DecisionTreeRegressor(max_depth=args.max_depth, min_samples_leaf=max(1, n // 100))
                         .fit(codes, mean), repeat=3)
-    print(f"\nreference: one streaming pass (row sum)          {ref:8.3f} s  = 1.00 pass")
     print(f"CART on the posterior mean (sklearn, depth {args.max_depth})     {t_cart:8.3f} s  = {t_cart / ref:5.2f} passes")
     print(f"validation scan (EffectDraws)                    {t_scan:8.3f} s  = {t_scan / ref:5.2f} passes")
 

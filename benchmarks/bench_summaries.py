@@ -51,6 +51,16 @@ def make_draws(S, n, rng):
     return T, X
 
 
+def draws_and_reference(S, n, seed=0):
+    """Simulated draws (S x n float64) and covariates, and the time of one streaming pass over them
+    (a row sum, best of 3): the reference every benchmark's ratios are taken against."""
+    print(f"building {S} x {n} float64 draws ({S * n * 8 / 2**30:.2f} GiB) and 10 covariates ...", flush=True)
+    T, X = make_draws(S, n, np.random.default_rng(seed))
+    ref, _ = timed(lambda: T.sum(axis=1), repeat=3)
+    print(f"\nreference: one streaming pass (row sum)            {ref:8.3f} s   = 1.00 pass")
+    return T, X, ref
+
+
 def timed(fn, repeat=1):
     best = np.inf
     out = None
@@ -79,14 +89,9 @@ def main(argv=None):
 
     import summarize_widgets as sw
 
-    rng = np.random.default_rng(0)
     S, n = args.draws, args.units
-    print(f"building {S} x {n} float64 draws ({S * n * 8 / 2**30:.2f} GiB) and 10 covariates ...", flush=True)
-    T, X = make_draws(S, n, rng)
+    T, X, ref = draws_and_reference(S, n)
     nbytes = T.nbytes
-
-    ref, _ = timed(lambda: T.sum(axis=1), repeat=3)
-    print(f"\nreference: one streaming pass (row sum)            {ref:8.3f} s   = 1.00 pass")
     t_scan, draws = timed(lambda: sw.EffectDraws(T, X))
     print(f"EffectDraws scan (finite check, means, sums)       {t_scan:8.3f} s   = {t_scan / ref:5.2f} passes")
     t_tree, tree = timed(lambda: sw.summarize_tree(draws, max_depth=6))

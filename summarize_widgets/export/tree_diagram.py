@@ -101,7 +101,7 @@ def tree_diagram_svg(tree, *, level: float = 0.95, interval: str = "equal-tailed
     steady = [abs(mean[n]) for n in y if leaf[n] and n not in weak and mean[n] == mean[n]]
     every = [abs(mean[n]) for n in y if leaf[n] and mean[n] == mean[n]]
     vmax = max(steady or every or [0.0])
-    sign = benefit_sign(getattr(tree.draws, "better", None))
+    sign = benefit_sign(tree.draws.better)
     x = {n: _PAD + depth[n] * (width + _GAP_X) for n in y}
     total_w = _PAD * 2 + (max(depth.values()) + 1) * width + max(depth.values()) * _GAP_X
     total_h = _PAD * 2 + row[0] * (_BOX_H + _GAP_Y) - _GAP_Y

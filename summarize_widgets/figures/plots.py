@@ -351,10 +351,12 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     x_range = _padded_range(basis["lower"], basis["upper"],
                             *([draws[s] for s in basis["subgroup"]] if draws is not None else []))
     shown, clip_traces, notes = _clip_to_axis(ordered, "mean", pos, heights, x_range)
-    hover = "<b>%{customdata[0]}</b><br>posterior mean %{customdata[M]}<br>" + level + " %{customdata[I]}" \
-        "<br>P(effect > 0) = %{customdata[P]}<br>%{customdata[1]:,} units (%{customdata[2]:.1%} of units)"
+    # The numbers as every table prints them (one formatter) follow the numeric columns (and uptake).
+    m, i, p, c = (f"%{{customdata[{k}]}}" for k in range(7 + compliers, 11 + compliers))
+    hover = (f"<b>%{{customdata[0]}}</b><br>posterior mean {m}<br>{level} {i}<br>P(effect > 0) = {p}"
+             "<br>%{customdata[1]:,} units (%{customdata[2]:.1%} of units)")
     if compliers and has_complier_share:
-        hover += "; %{customdata[C]} of all compliers"
+        hover += f"; {c} of all compliers"
     columns = [[_wrap(r, 60) if isinstance(g, str) else _rule(r, 60) for g, r in zip(ordered["subgroup"], ordered["rule"])],
                ordered["n_units"].astype(int),
                ordered["share"].astype(float), ordered["lower"].astype(float),
@@ -362,12 +364,7 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     if "uptake_share" in ordered.columns:  # complier-weighted draws
         hover += "<br>uptake in this subgroup (its complier share) %{customdata[7]:.1%}"
         columns.append(ordered["uptake_share"].astype(float))
-    # The numbers as every table prints them (one formatter): mean, interval, P(>0), share of compliers.
-    base = len(columns)
-    columns += [texts.loc[ordered.index, "mean_text"], texts.loc[ordered.index, "interval_text"],
-                texts.loc[ordered.index, "prob_text"], texts.loc[ordered.index, "complier_share_text"]]
-    for key, k in (("M", 0), ("I", 1), ("P", 2), ("C", 3)):
-        hover = hover.replace(f"customdata[{key}]", f"customdata[{base + k}]")
+    columns += [texts[name] for name in ("mean_text", "interval_text", "prob_text", "complier_share_text")]
     hover += "<extra></extra>"
     custom = np.column_stack(columns).astype(object)
     is_marked = ordered["subgroup"].isin(marked).to_numpy()
