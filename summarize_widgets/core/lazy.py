@@ -102,10 +102,7 @@ def _reduce_block(reducers, weights, start, stop, vals, den):
     """Run on a worker: one chunk of draws through every reducer's ``partial``."""
     from .draws import assemble_block
 
-    from .passes import widen_shared
-
     block = assemble_block(slice(start, stop), np.asarray(vals), None if den is None else np.asarray(den), weights)
-    block = widen_shared(block, reducers)
     return [r.partial(block) for r in reducers]
 
 

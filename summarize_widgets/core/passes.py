@@ -31,7 +31,8 @@ import numpy as np
 
 from .validate import SummaryError
 
-__all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts", "centred_block", "widen_shared"]
+__all__ = ["Reducer", "BlockReducer", "run_pass", "LeafSums", "LinearMap", "add_parts", "SLICE_UNITS",
+           "unit_slices", "block_slice"]
 
 
 class Reducer(Protocol):
@@ -75,22 +76,6 @@ def add_parts(a, b):
     if isinstance(a, tuple):
         return tuple(add_parts(x, y) for x, y in zip(a, b))
     return a + b
-
-
-def widen_shared(block, reducers):
-    """``block`` with float32 values widened to float64 once, when two or more reducers would each widen it.
-
-    Reducers say so with a true ``widens`` attribute (float64 matrix products, per-group sums);
-    without this each of them converts the same block again (the conversion costs about as much as
-    a float64 product with a few columns).
-    """
-    wt = block.wt
-    if wt.dtype != np.float32 or sum(bool(getattr(r, "widens", False)) for r in reducers) < 2:
-        return block
-    from .draws import DrawBlock
-
-    wt64 = wt.astype(np.float64)
-    return DrawBlock(block.rows, wt64, block.w, wt64 if block.values is wt else block.values, block.uptake)
 
 
 def _default_threads() -> int:
@@ -163,7 +148,7 @@ def _run_pass(draws, reducers, progress, threads, rows_per_block) -> None:
     sums = {}
 
     def work(start):
-        block = widen_shared(draws.block(slice(start, min(start + step, draws.n_draws))), reducers)
+        block = draws.block(slice(start, min(start + step, draws.n_draws)))
         parts = []
         for r in reducers:
             if hasattr(r, "partial"):
@@ -197,18 +182,38 @@ def _run_pass(draws, reducers, progress, threads, rows_per_block) -> None:
         reducers[k].store(None, total_part)
 
 
-def centred_block(block, centre):
-    """``w_si (T_si - c_s)`` of a block: its weighted draws with each draw's constant ``c_s`` taken out.
+#: Units per slice when a reducer works through a block piece by piece: float32 draws are widened,
+#: centred and bincounted one slice at a time, so the temporaries (a few MB) stay in cache instead
+#: of each costing a block-sized float64 copy (at 8,000,000 units a copy of one draw is 64 MB of
+#: fresh pages, slower than the reduction itself; benchmarks/bench_scale.py).
+SLICE_UNITS = 2**17
 
-    Summing these instead of ``w_si T_si`` keeps the digits of the spread when the effects carry a
-    large common offset (1e9 plus effects of 1e-3): the offset never enters a sum.
+
+def unit_slices(n_units: int, step: int = SLICE_UNITS):
+    """``(a, b)`` bounds of consecutive slices of at most ``step`` units covering ``0..n_units``."""
+    return [(a, min(a + step, n_units)) for a in range(0, n_units, step)]
+
+
+def block_slice(block, a: int, b: int, centre=None, *, weights: bool = False) -> np.ndarray:
+    """Units ``a:b`` of a block's weighted draws ``w_si T_si`` (or of its per-draw weights ``w_si``
+    with ``weights``), float64; with ``centre``, ``w_si (T_si - c_s)``.
+
+    Summing centred values instead of ``w_si T_si`` keeps the digits of the spread when the effects
+    carry a large common offset (1e9 plus effects of 1e-3): the offset never enters a sum.
     """
+    if weights:
+        w = block.w
+        return np.asarray(w[:, a:b] if w.ndim == 2 else w[None, a:b], dtype=np.float64)
+    if centre is None:
+        return np.asarray(block.wt[:, a:b], dtype=np.float64)
+    out = np.array(block.wt[:, a:b], dtype=np.float64)  # a copy: centred in place
     c = np.asarray(centre, dtype=np.float64)[block.rows, None]
-    wt = np.asarray(block.wt, dtype=np.float64)
     w = block.w
     if w is None:
-        return wt - c
-    return wt - c * (np.asarray(w, dtype=np.float64) if w.ndim == 2 else np.asarray(w, dtype=np.float64)[None, :])
+        out -= c
+    else:
+        out -= c * np.asarray(w[:, a:b] if w.ndim == 2 else w[None, a:b], dtype=np.float64)
+    return out
 
 
 class LeafSums(BlockReducer):
@@ -221,46 +226,47 @@ class LeafSums(BlockReducer):
     n_groups : int
     centre : None or ndarray, shape (n_draws,)
         Per-draw constants ``c_s``: the sums are then accumulated centred, ``sum_{i in g} w_si (T_si - c_s)``
-        (kept as ``centred_sums``), and ``sums`` is rebuilt from them (see :func:`centred_block`).
+        (kept as ``centred_sums``), and ``sums`` is rebuilt from them (see :func:`block_slice`).
     """
 
     def __init__(self, codes: np.ndarray, n_groups: int, centre=None):
         self.centre = centre
         codes = np.asarray(codes)
-        self._keep = None if (codes >= 0).all() else np.flatnonzero(codes >= 0)
-        kept = codes if self._keep is None else codes[self._keep]
-        # int32 codes halve the memory of millions of units (bincount accepts any integer type).
-        self.codes = kept.astype(np.int32 if n_groups < 2**31 else np.int64)
         self.n_groups = int(n_groups)
-
-    #: Per-group sums accumulate float64 weights (see :func:`widen_shared`).
-    widens = True
+        # Units left out (code -1) are counted in one extra group that is dropped at the end (no
+        # gather of the kept units); int32 codes halve the memory of millions of units.
+        self.codes = np.where(codes >= 0, codes, self.n_groups).astype(np.int32 if n_groups < 2**31 - 1 else np.int64)
 
     def start(self, n_draws: int) -> None:
         self.sums = np.zeros((n_draws, self.n_groups))
         self.centred_sums = None if self.centre is None else np.zeros((n_draws, self.n_groups))
         self.weights = None  # filled only when weights vary by draw
 
-    def _rows_bincount(self, mat):
-        codes, G = self.codes, self.n_groups
-        out = np.empty((mat.shape[0], G))
-        for j in range(mat.shape[0]):
-            row = mat[j] if self._keep is None else mat[j, self._keep]
-            out[j] = np.bincount(codes, weights=row, minlength=G)
-        return out
+    def _group_sums(self, block, *, centre=None, weights=False) -> np.ndarray:
+        """Per row and group, the sum over units of the block's (centred) weighted draws, or of
+        its weights: one bincount per row and slice of units (see :data:`SLICE_UNITS`)."""
+        G = self.n_groups + 1
+        rows = 1 if weights and (block.w is None or block.w.ndim == 1) else block.wt.shape[0]
+        out = np.zeros((rows, G))
+        for a, b in unit_slices(self.codes.size):
+            codes = self.codes[a:b].astype(np.intp)  # bincount would convert them once per row
+            if weights and block.w is None:
+                out[0] += np.bincount(codes, minlength=G)
+                continue
+            mat = block_slice(block, a, b, centre, weights=weights)
+            for j in range(mat.shape[0]):
+                out[j] += np.bincount(codes, weights=mat[j], minlength=G)
+            del mat  # before the next slice is made: one slice in memory at a time
+        return out[:, :self.n_groups]
 
     def partial(self, block):
         weights = None
         if block.w is not None and block.w.ndim == 2:
-            weights = self._rows_bincount(block.w)
+            weights = self._group_sums(block, weights=True)
         if self.centre is None:
-            return self._rows_bincount(block.wt), weights, None
-        centred = self._rows_bincount(centred_block(block, self.centre))
-        if weights is not None:
-            wg = weights
-        else:
-            w = np.ones(self.codes.size) if block.w is None else (block.w if self._keep is None else block.w[self._keep])
-            wg = np.bincount(self.codes, weights=w, minlength=self.n_groups)[None, :]
+            return self._group_sums(block), weights, None
+        centred = self._group_sums(block, centre=self.centre)
+        wg = weights if weights is not None else self._group_sums(block, weights=True)
         return centred + np.asarray(self.centre, dtype=np.float64)[block.rows, None] * wg, weights, centred
 
     def store(self, rows, part) -> None:
@@ -290,37 +296,43 @@ class LinearMap(BlockReducer):
     slice_units = 2**16
 
     def __init__(self, H: np.ndarray, *, with_weights: bool = False, centre=None):
-        self.centre = centre  # per-draw constants: ``(wt_s - c_s w_s) @ H`` instead (see centred_block)
+        self.centre = centre  # per-draw constants: ``(wt_s - c_s w_s) @ H`` instead (see block_slice)
         H = np.asarray(H)
         self.H = np.ascontiguousarray(H, dtype=np.float32 if H.dtype == np.float32 else np.float64)
         self.with_weights = with_weights
-
-    @property
-    def widens(self) -> bool:
-        """A float64 map widens float32 blocks (see :func:`widen_shared`)."""
-        return self.H.dtype == np.float64
 
     def start(self, n_draws: int) -> None:
         self.out = np.zeros((n_draws, self.H.shape[1]))
         self.weights_out = np.zeros((n_draws, self.H.shape[1])) if self.with_weights else None
 
-    def _product(self, mat):
+    def _product(self, block, *, centre=None, weights=False):
+        """``M @ H`` for the block's weighted draws M (centred with ``centre``), or its weights."""
         H = self.H
-        if H.dtype == np.float64:
-            return (mat if mat.dtype == np.float64 else mat.astype(np.float64)) @ H
+        mat = block.w if weights else block.wt
+        if weights and mat.ndim == 1:
+            mat = mat[None, :]
+        if centre is None and mat.dtype == np.float64 and H.dtype == np.float64:
+            return mat @ H  # nothing to convert: one product
+        # float32 draws, a float32 map or centring: slice by slice, so no block-sized float64 copy is
+        # made; a float32 map keeps float32 products over at most 2^16 units, added in float64.
+        step = self.slice_units if H.dtype == np.float32 else SLICE_UNITS
         out = np.zeros((mat.shape[0], H.shape[1]))
-        step = self.slice_units
-        for a in range(0, H.shape[0], step):
-            m = mat[:, a:a + step]
-            out += (m if m.dtype == np.float32 else m.astype(np.float32)) @ H[a:a + step]
+        for a, b in unit_slices(H.shape[0], step):
+            if centre is None and not weights:
+                m = block.wt[:, a:b]
+            else:
+                m = block_slice(block, a, b, centre, weights=weights)
+            out += (m if m.dtype == H.dtype else m.astype(H.dtype)) @ H[a:b]
+            del m  # before the next slice is made
         return out
 
     def partial(self, block):
-        out = self._product(block.wt if self.centre is None else centred_block(block, self.centre))
+        out = self._product(block, centre=self.centre)
         w_out = None
         if self.with_weights and block.w is not None:
-            w_out = self._product(block.w) if block.w.ndim == 2 else np.broadcast_to(
-                self._product(block.w[None, :])[0], out.shape).copy()
+            w_out = self._product(block, weights=True)
+            if block.w.ndim == 1:
+                w_out = np.broadcast_to(w_out[0], out.shape).copy()
         return out, w_out
 
     def store(self, rows, part) -> None:
