@@ -130,3 +130,13 @@ def test_reducers_work_through_float32_blocks_slice_by_slice(case):
         w_expect = np.stack([np.bincount(codes[kept], weights=w[j, kept], minlength=6) for j in range(rows)])
         np.testing.assert_allclose(weights, w_expect, rtol=1e-12, atol=1e-9)
         np.testing.assert_allclose(w_product, w @ H, rtol=1e-12, atol=1e-9)
+
+
+def test_fitted_tree_keeps_no_float64_copy_of_the_covariates(draws):
+    """What a tree keeps per unit: the float32 encoded matrix and each unit's leaf, not also a float64
+    copy of every column (rebuilt from the covariates when the rules are written)."""
+    tree = sw.summarize_tree(draws, max_depth=3)
+    n, k = draws.n_units, len(tree.columns)
+    per_unit = sum(v.nbytes for v in vars(tree._f).values() if isinstance(v, np.ndarray) and v.shape[:1] == (n,))
+    assert per_unit <= n * (4 * k + 8)
+    assert tree.nodes()["rule"].str.contains("age").any()  # rules still written from the raw values
