@@ -140,3 +140,20 @@ def test_fitted_tree_keeps_no_float64_copy_of_the_covariates(draws):
     per_unit = sum(v.nbytes for v in vars(tree._f).values() if isinstance(v, np.ndarray) and v.shape[:1] == (n,))
     assert per_unit <= n * (4 * k + 8)
     assert tree.nodes()["rule"].str.contains("age").any()  # rules still written from the raw values
+
+
+def test_large_linear_design_is_rebuilt_not_kept(draws, monkeypatch):
+    """Past FLOAT64_MAP_BYTES the linear summary keeps no copy of its design beside the map: fitted
+    values and the standardized scale come out as with the design held in full."""
+    whole = sw.summarize_linear(draws)
+    monkeypatch.setattr(projection, "FLOAT64_MAP_BYTES", 1000)
+    monkeypatch.setattr(projection, "CHUNK_UNITS", 400)
+    small = sw.summarize_linear(draws)
+    assert not isinstance(small.design_matrix, np.ndarray)
+    np.testing.assert_allclose(small.fitted_values(slice(0, 3)), whole.fitted_values(slice(0, 3)), rtol=1e-5, atol=1e-6)
+    assert small.spread == pytest.approx(whole.spread, rel=1e-12) and small.centre == pytest.approx(whole.centre, rel=1e-12)
+    from summarize_widgets.summaries.size_path import linear_size_path
+
+    a, b = linear_size_path(draws, small), linear_size_path(draws, whole)  # rebuilds the design when not held
+    assert a.steps == b.steps
+    np.testing.assert_allclose(a.r2_draws, b.r2_draws, rtol=1e-5, atol=1e-6)  # float32 map: float32 digits

@@ -260,22 +260,16 @@ class LinearSummary(SummaryResult, ProjectedFit):
 
     summary_type = "linear"
 
-    def __init__(self, draws, coef, r2, terms, specs, fill, design, keep, settings):
+    def __init__(self, draws, coef, r2, terms, specs, fill, design, keep, settings, scales=None):
         SummaryResult.__init__(self, draws, settings)
         ProjectedFit.__init__(self, coef, r2, design, keep)
         self.terms = list(terms)
         self.columns = [s.name for s in specs]
         self.reference = {s.name: s.categories[0] for s in specs if s.kind == "categorical"}
         self.fill = {k: v for k, v in fill.items() if any(s.name == k and s.n_missing for s in specs)}
-        numeric = {s.name for s in specs if s.kind == "numeric"}
-        w = np.asarray(draws.mean_weights, dtype=np.float64)[keep]
-        self.centre, self.spread = {}, {}
-        for j, term in enumerate(self.terms):
-            if term in numeric:
-                x = np.asarray(design[:, j], dtype=np.float64)
-                m = float(np.dot(w, x) / w.sum())
-                self.centre[term] = m
-                self.spread[term] = float(np.sqrt(np.dot(w, (x - m) ** 2) / w.sum()))
+        if scales is None:
+            scales = _term_scales(design, terms, specs, np.asarray(draws.mean_weights)[keep])
+        self.centre, self.spread = scales
 
     def standardized_draws(self) -> np.ndarray:
         """Coefficient draws on the standardized scale, shape (n_draws, n_terms).
@@ -371,6 +365,31 @@ def summarize_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_
     return project(draws, [plan], progress=progress)[0]
 
 
+def _term_scales(design, terms, specs, w) -> tuple[dict, dict]:
+    """Weighted mean and SD (divisor the summed weight) of each numeric covariate's design column."""
+    numeric = {s.name for s in specs if s.kind == "numeric"}
+    w = np.asarray(w, dtype=np.float64)
+    centre, spread = {}, {}
+    for j, term in enumerate(terms):
+        if term in numeric:
+            x = np.asarray(design[:, j], dtype=np.float64)
+            m = float(np.dot(w, x) / w.sum())
+            centre[term] = m
+            spread[term] = float(np.sqrt(np.dot(w, (x - m) ** 2) / w.sum()))
+    return centre, spread
+
+
+class _DesignRows:
+    """Rows ``a:b`` (among the units used) of the linear design, rebuilt from the covariates."""
+
+    def __init__(self, covariates, specs, fill, keep):
+        self.covariates, self.specs, self.fill = covariates, specs, dict(fill)
+        self.index = np.flatnonzero(keep)
+
+    def __call__(self, a, b):
+        return linear_design(self.covariates.iloc[self.index[a:b]], self.specs, fill=self.fill)[0]
+
+
 def plan_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_levels: int | None = None) -> SummaryPlan:
     """The fit-structure step of :func:`summarize_linear` (design, its QR; no pass over the draws)."""
     keep = check_draws(draws)
@@ -381,8 +400,11 @@ def plan_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_level
     Bk = B if keep.all() else B[keep]
     del B
     proj = FrozenProjection(draws, Bk, keep, intercept=0, terms=terms)
-    if Bk.nbytes > projection.FLOAT64_MAP_BYTES:  # kept for fitted_values only: float32 halves it
-        Bk = Bk.astype(np.float32)
+    scales = _term_scales(Bk, terms, specs, draws.mean_weights[keep])
+    if Bk.nbytes > projection.FLOAT64_MAP_BYTES:
+        # kept for fitted_values only: rebuilt from the covariates piece by piece when asked, not
+        # held beside the projection map (352 MB in float32 at 8,000,000 units and 11 terms)
+        Bk = projection.ChunkedDesign(_DesignRows(draws.covariates, specs, fill, keep), *Bk.shape)
     settings = {
         "columns": cols,
         "max_levels": max_levels,
@@ -399,6 +421,6 @@ def plan_linear(draws, *, columns=None, max_levels: int = MAX_LEVELS, pool_level
 
     def finish():
         coef, r2 = proj.finish(draws)
-        return LinearSummary(draws, coef, r2, terms, specs, fill, Bk, keep, settings)
+        return LinearSummary(draws, coef, r2, terms, specs, fill, Bk, keep, settings, scales=scales)
 
     return SummaryPlan(proj.reducers(draws), finish, "linear")
