@@ -157,3 +157,20 @@ def test_large_linear_design_is_rebuilt_not_kept(draws, monkeypatch):
     a, b = linear_size_path(draws, small), linear_size_path(draws, whole)  # rebuilds the design when not held
     assert a.steps == b.steps
     np.testing.assert_allclose(a.r2_draws, b.r2_draws, rtol=1e-5, atol=1e-6)  # float32 map: float32 digits
+
+
+def test_piecewise_additive_builds_each_design_piece_once(draws, monkeypatch):
+    """The model matrix of millions of units is the slow part of the additive fit: each piece is built
+    once (mapped and summed together), not once for the map and again for the column means."""
+    monkeypatch.setattr(projection, "CHUNK_UNITS", 400)  # four pieces of 1,500 units
+    built = []
+    real = additive.model_matrix
+
+    def counted(gam, X, *args, **kwargs):
+        if len(X) > 100:  # the pieces, not the 50-point grids of the curves
+            built.append(len(X))
+        return real(gam, X, *args, **kwargs)
+
+    monkeypatch.setattr(additive, "model_matrix", counted)
+    sw.summarize_additive(draws)
+    assert sorted(built) == [300, 400, 400, 400]

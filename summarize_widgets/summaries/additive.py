@@ -443,7 +443,14 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
     else:
         # kept for fitted values: rebuilds the features from the covariates when asked (not kept beside them)
         design = ChunkedDesign(_FeatureRows(gam, draws.covariates, specs, keep), n_kept, p)
-        R, Hk = weighted_map(lambda a, b: model_matrix(gam, X[a:b]), sw, p)
+        bsum = np.zeros(p)
+
+        def design_rows(a, b):  # each piece built once: mapped, and its weighted column sums taken
+            B = model_matrix(gam, X[a:b])
+            bsum[:] += np.asarray(B.T @ wk[a:b]).ravel()
+            return B
+
+        R, Hk = weighted_map(design_rows, sw, p)
         z_target = sum(Hk[a:a + projection.CHUNK_UNITS].T.astype(np.float64) @ (wk * target)[a:a + projection.CHUNK_UNITS]
                        for a in range(0, n_kept, projection.CHUNK_UNITS))
         mapping = {"map_": (R, Hk)}
@@ -460,10 +467,7 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
     penalty = penalty + _PYGAM_RIDGE * np.eye(p)
     proj = FrozenProjection(draws, None, keep, penalty=penalty, intercept=p - 1, **mapping)
     del mapping
-    if isinstance(design, ChunkedDesign):
-        bsum = sum(np.asarray(model_matrix(gam, X[a:a + projection.CHUNK_UNITS]).T @ wk[a:a + projection.CHUNK_UNITS]).ravel()
-                   for a in range(0, n_kept, projection.CHUNK_UNITS))
-    else:
+    if not isinstance(design, ChunkedDesign):
         bsum = np.asarray(design.T @ wk).ravel()
     bbar = bsum / wk.sum()
     C, C_missing = {}, {}
