@@ -212,3 +212,14 @@ def test_passes_keep_blas_to_one_thread_per_worker(lazy):
         after = blas()
     assert probe.seen == {1}
     assert after == before  # the caller's setting comes back after the pass
+
+
+def test_tall_skinny_qr_in_small_pieces_matches_one_piece(draws, monkeypatch):
+    """Pieces of the QR smaller than a design piece, ragged, some with fewer rows than columns."""
+    whole_lin, whole_add = sw.summarize_linear(draws).table(), sw.summarize_additive(draws)
+    monkeypatch.setattr(projection, "CHUNK_UNITS", 400)
+    monkeypatch.setattr(projection, "QR_ROWS", 37)
+    np.testing.assert_allclose(_numbers(sw.summarize_linear(draws).table()), _numbers(whole_lin), rtol=1e-8, atol=1e-10)
+    piece_add = sw.summarize_additive(draws)
+    np.testing.assert_allclose(_numbers(piece_add.curves()), _numbers(whole_add.curves()), rtol=1e-8, atol=1e-10)
+    np.testing.assert_allclose(piece_add.fit_r2, whole_add.fit_r2, rtol=1e-8)
