@@ -221,7 +221,8 @@ def weighted_map(design_rows, sw: np.ndarray, p: int):
     with threadpool_limits(limits=1, user_api="blas"):
         for a0 in range(0, n, CHUNK_UNITS):
             b0 = min(a0 + CHUNK_UNITS, n)
-            A = sw[a0:b0, None] * _dense(design_rows(a0, b0))
+            A = np.array(_dense(design_rows(a0, b0)), dtype=np.float64)  # own copy: weighted in place
+            A *= sw[a0:b0, None]
             for a in range(a0, b0, QR_ROWS):
                 b = min(a + QR_ROWS, b0)
                 Qk, Rk = np.linalg.qr(A[a - a0:b - a0])
