@@ -84,11 +84,14 @@ def _on_main_loop(fn) -> None:
 
 def _start_figure_import() -> threading.Thread:
     """Import plotly's FigureWidget on a thread: its first import pulls in nbformat and jsonschema
-    (about 1.4 s here), which the explorer's first view need not wait for when it overlaps the
-    tree's pass or whatever the notebook does after importing the widgets."""
+    (about 1.4 s here), and plotly's first figure reads its table of property validators (about
+    0.25 s); the explorer's first view need not wait for either when they overlap the tree's pass
+    or whatever the notebook does after importing the widgets."""
     def run():
         try:
             import plotly.graph_objs._figurewidget  # noqa: F401
+
+            go.Figure(data=[go.Scatter(x=[0], y=[0], mode="markers")], layout=dict(height=300, template="none"))
         except Exception:  # noqa: BLE001 - the main thread's own import reports the problem
             pass
     thread = threading.Thread(target=run, name="summarize-widgets-import", daemon=True)
