@@ -631,6 +631,10 @@ def test_first_view_needs_the_tree_only_and_the_extras_fill_in(draws, monkeypatc
     np.testing.assert_allclose(ex.linear.table()["mean"], ref.linear.table()["mean"], rtol=1e-10)
     np.testing.assert_allclose(ex.additive.curves()["mean"], ref.additive.curves()["mean"], rtol=1e-10)
     assert list(ex.covariate_control.options) == list(ref.additive.columns)
+    # One covariate chosen, as when everything is computed before the first view (not none: a blank control).
+    assert ex.covariate_control.value == ref.additive.columns[0] == ex._state["covariate"]
+    shown = {a.text for a in ex._panels["trends"].figure.layout.annotations}
+    assert not any(str(c) in shown for c in ref.additive.columns[1:])
     lin = ex._panels["linear"].figure
     assert any(len(t.y or ()) > 1 or len(t.x or ()) > 1 for t in lin.data)  # the coefficients are drawn
 

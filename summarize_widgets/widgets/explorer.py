@@ -575,8 +575,7 @@ class Explorer(widgets.VBox):
                     return
                 if self._options["trends"]:
                     names = res.additive.columns if res.additive is not None else []
-                    self._quietly(lambda names=names: setattr(self.covariate_control, "options", names))
-                    self._state["covariate"] = self.covariate_control.value
+                    self._set_covariates(names)
                 for i, panel in enumerate(self._panels.values()):
                     if panel.name in ("trends", "linear", "evidence"):
                         panel.key = None
@@ -756,8 +755,7 @@ class Explorer(widgets.VBox):
                 s["anchor"], s["selected"] = kept, res.follow(kept, s["depth"])
             if self._options["trends"]:
                 names = res.additive.columns if res.additive is not None else []
-                self._quietly(lambda: setattr(self.covariate_control, "options", names))
-                s["covariate"] = self.covariate_control.value
+                self._set_covariates(names)
             self._sync_controls()
             for i, p in enumerate(self._panels.values()):
                 p.key = None
@@ -780,6 +778,18 @@ class Explorer(widgets.VBox):
             self.min_size_control.value = self._res.tree.min_size
             self.columns_control.value = tuple(self._res.tree.columns)
         self._quietly(move)
+
+    def _set_covariates(self, names) -> None:
+        """Offer ``names`` in the Trends tab's covariate control, keeping the covariate shown if it is
+        still there, else the first (the options of a Dropdown alone leave no covariate chosen)."""
+        names = list(names)
+        keep = self._state["covariate"] if self._state["covariate"] in names else (names[0] if names else None)
+
+        def move():
+            self.covariate_control.options = names
+            self.covariate_control.value = keep
+        self._quietly(move)
+        self._state["covariate"] = keep
 
     def _anchor_rule(self):
         """The rule of the node last picked (None for no pick): what a recompute looks for."""
