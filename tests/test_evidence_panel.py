@@ -21,6 +21,7 @@ def draws():
 
 def test_explorer_mounts_the_evidence_tab_and_follows_the_depth(draws):
     ex = Explorer(draws, max_depth=3, background=False, trends=False)
+    assert ex.wait(60)  # tabs out of sight are drawn after the first view
     panel = ex.evidence_panel
     names = list(ex._panels)
     k = names.index("evidence")

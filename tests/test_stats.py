@@ -159,3 +159,27 @@ def test_tables_reuse_their_monte_carlo_error_at_a_level_already_computed(monkey
     assert calls == []
     other = tree.table(level=0.8)
     assert calls and not np.allclose(other["lower"], first["lower"])
+
+
+def test_a_node_table_after_the_subgroup_table_computes_only_the_inner_nodes(monkeypatch):
+    """The columns kept per node, level and interval type are reused one by one: the node table
+    read after the subgroup table at that setting computes the inner nodes only, with the same
+    numbers as a node table computed from nothing."""
+    from summarize_widgets.summaries import base
+
+    rng = np.random.default_rng(4)
+    X = household_covariates(400, rng)
+    draws = sw.EffectDraws(draws_around(np.where(X["age"] > 50, 2.0, 0.0) + 0.02 * X["age"], 200, rng), X)
+    fresh = sw.summarize_tree(draws, max_depth=3).nodes(level=0.9, interval="highest-density")
+    tree = sw.summarize_tree(draws, max_depth=3)
+    widths = []
+    real = base.summary_columns
+    monkeypatch.setattr(base, "summary_columns", lambda theta, **k: widths.append(theta.shape[1]) or real(theta, **k))
+    table = tree.table(level=0.9, interval="highest-density")
+    nodes = tree.nodes(level=0.9, interval="highest-density")
+    n_leaves, n_nodes = len(table), len(nodes)
+    assert n_nodes > n_leaves > 1
+    assert widths == [n_leaves, n_nodes - n_leaves]
+    pd.testing.assert_frame_equal(nodes, fresh)
+    tree.nodes(level=0.9, interval="highest-density")  # everything known: nothing computed
+    assert widths == [n_leaves, n_nodes - n_leaves]

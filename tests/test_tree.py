@@ -196,6 +196,17 @@ def test_nodes_describe_every_node_to_the_current_depth():
     assert root["n_units"] == X.shape[0] and root["mean"] == pytest.approx(T.mean())
 
 
+def test_outline_is_the_structure_of_nodes_at_every_depth():
+    T, X = _data(S=40)
+    grown = summarize_tree(sw.EffectDraws(T, X), max_depth=4, min_size=60)
+    for depth in range(1, 5):
+        tree = grown.at_depth(depth)
+        nodes, outline = tree.nodes(), tree.outline()
+        assert list(outline.columns) == ["node", "parent", "depth", "rule", "is_leaf"]
+        pd.testing.assert_frame_equal(outline, nodes[list(outline.columns)].reset_index(drop=True), check_dtype=False)
+        assert outline.loc[outline.is_leaf, "node"].tolist() == tree.leaf_ids.tolist()
+
+
 @pytest.mark.parametrize("kwargs, message", [
     ({"max_depth": 0}, r"`max_depth` must be between 1 and 8; got 0"),
     ({"max_depth": 2.5}, r"`max_depth` must be an integer"),

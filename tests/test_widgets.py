@@ -240,8 +240,11 @@ def test_explorer_shows_the_tree_at_the_chosen_depth(explorer, draws):
     # the warm end marks the better direction, as in the figures: reversed stops when lower is better
     assert explorer.tree_view.palette["stops"] == (list(DIVERGING)[::-1] if draws.better == "lower" else list(DIVERGING))
     assert explorer.tree_view.colour_limit == pytest.approx(np.abs(tab["mean"]).max())
-    # Every panel but Decisions was drawn at start, so a saved notebook shows them; Decisions says
-    # that it is computed when its tab is opened.
+    # The first view draws the tab in sight only; the others follow on the kernel's main loop, when
+    # opened, or in wait() (so a saved notebook shows them); Decisions says that it is computed when
+    # its tab is opened.
+    assert [name for name, p in explorer._panels.items() if p.key is not None] == ["effects"]
+    assert explorer.wait(timeout=60)
     assert all(p.key is not None for name, p in explorer._panels.items() if name != "decisions")
     assert explorer._panels["decisions"].key is None and "when this tab is opened" in explorer.decisions_panel.status.value
     titles = [explorer._tabs.get_title(i) for i in range(len(explorer._tabs.children))]
@@ -628,6 +631,10 @@ def test_first_view_needs_the_tree_only_and_the_extras_fill_in(draws, monkeypatc
     np.testing.assert_allclose(ex.linear.table()["mean"], ref.linear.table()["mean"], rtol=1e-10)
     np.testing.assert_allclose(ex.additive.curves()["mean"], ref.additive.curves()["mean"], rtol=1e-10)
     assert list(ex.covariate_control.options) == list(ref.additive.columns)
+    # One covariate chosen, as when everything is computed before the first view (not none: a blank control).
+    assert ex.covariate_control.value == ref.additive.columns[0] == ex._state["covariate"]
+    shown = {a.text for a in ex._panels["trends"].figure.layout.annotations}
+    assert not any(str(c) in shown for c in ref.additive.columns[1:])
     lin = ex._panels["linear"].figure
     assert any(len(t.y or ()) > 1 or len(t.x or ()) > 1 for t in lin.data)  # the coefficients are drawn
 
@@ -648,3 +655,129 @@ def test_a_failure_on_the_extras_thread_is_shown_in_their_tabs(draws, monkeypatc
         assert box.layout.display is None and "swx-status-error" in text.value and "disk on fire" in text.value
     fig = ex._panels["linear"].figure
     assert "disk on fire" in json.dumps(fig.to_dict()["layout"].get("annotations", []))
+
+
+# -- the explorer's structure reads, and who draws what when ----------------------------------------
+def test_results_structure_reads_match_the_node_tables(study):
+    from summarize_widgets.widgets.results import Results
+
+    d = study.complier_draws()  # weak-uptake subgroups: the colour limit leaves them out
+    res = Results.compute(d, max_depth=3, min_size=None, columns=None, trends=False, linear=False)
+    full = res.tree.nodes()
+    for node, rule in zip(full["node"], full["rule"]):
+        assert res.rule_of(int(node)) == rule
+        assert res.node_with_rule(rule) == int(full.loc[full["rule"] == rule, "node"].iloc[0])
+    assert res.rule_of(-1) is None and res.rule_of(10_000) is None
+    assert res.node_with_rule(None) is None and res.node_with_rule("no such rule") is None
+    for depth in (1, 2, 3):
+        leaves = res.leaf_ids(depth)
+        assert leaves == [int(i) for i in res.tree.at_depth(depth).leaf_ids]
+        # Inside, from the units: a subgroup lies in a node when all its units are the node's at its depth.
+        at_leaf = res.at(depth).assign(d.covariates).to_numpy()
+        for node, node_depth in zip(full["node"], full["depth"]):
+            if node_depth > depth:
+                continue
+            if node_depth == 0:
+                want = leaves  # the root holds every subgroup
+            else:
+                at_node = res.at(int(node_depth)).assign(d.covariates).to_numpy()
+                want = [leaf for leaf in leaves if np.all(at_node[at_leaf == leaf] == node)]
+            assert res.inside(int(node), depth) == want, (node, depth)
+            assert res.follow(int(node), depth) == int(node)
+        assert res.inside(-1, depth) == []
+        for leaf in res.leaf_ids(3):  # a deeper node shows as its ancestor at this depth
+            assert leaf in res.inside(res.follow(leaf, depth), 3)
+        table = res.table(depth, 0.9, "equal-tailed")
+        weak = {int(s) for s in table.loc[table["weak_uptake"].astype(bool), "subgroup"]}
+        assert res.weak_ids(depth, 0.9, "equal-tailed") == weak
+        steady = table[~table["subgroup"].isin(list(weak))]
+        assert res.colour_limit(depth, 0.9, "equal-tailed") == pytest.approx(
+            np.abs((steady if len(steady) else table)["mean"]).max())
+        assert res.records(depth, 0.9, "equal-tailed") == node_records(res.nodes(depth, 0.9, "equal-tailed"), weak=weak)
+    assert any(res.weak_ids(depth, 0.9, "equal-tailed") for depth in (1, 2, 3))
+
+
+class _Loop:
+    """Stands in for the kernel's main loop: callbacks wait until the test runs them (on its thread)."""
+
+    def __init__(self):
+        self.callbacks = []
+
+    def add_callback(self, fn):
+        self.callbacks.append(fn)
+
+    def run_one(self):
+        self.callbacks.pop(0)()
+
+    def run_all(self):
+        while self.callbacks:
+            self.run_one()
+
+
+def test_tabs_out_of_sight_are_drawn_on_the_main_loop_one_per_turn(draws, monkeypatch):
+    loop = _Loop()
+    monkeypatch.setattr(explorer_module, "_main_loop", lambda: loop)
+    ex = Explorer(draws, max_depth=3, depth=2, background=False, additive_options={"lam": 1.0})
+
+    def drawn():
+        return [name for name, p in ex._panels.items() if p.key is not None]
+    assert drawn() == ["effects"]  # the first view: the tab in sight
+    loop.run_one()
+    assert drawn() == ["effects", "fit"]
+    loop.run_all()
+    assert set(drawn()) == set(ex._panels) - {"decisions"}  # Decisions: when opened
+    assert ex._panels["trends"].figure.data and ex._panels["linear"].figure.data
+
+
+def test_figure_widgets_change_only_on_the_main_thread(draws, monkeypatch):
+    import threading
+
+    loop = _Loop()
+    monkeypatch.setattr(explorer_module, "_main_loop", lambda: loop)
+    threads = []
+    for name in ("show_figure", "set_width"):
+        real = getattr(P, name)
+        monkeypatch.setattr(P, name, lambda *a, real=real, **k: (threads.append(threading.current_thread()),
+                                                                  real(*a, **k))[1])
+    ex = Explorer(draws, max_depth=3, depth=2, additive_options={"lam": 1.0})  # extras on a worker
+    ex.tree_view.client_width = 900
+    ex.min_size_control.value = 150  # a recompute on a worker
+    for worker in (ex._worker, ex._extras_worker):
+        if worker is not None:
+            worker.join(60)
+    # Computed, handed over, not shown: the loop has not run yet.
+    assert ex.tree.min_size != 150 and not ex._panels["linear"].figure.data
+    loop.run_all()
+    assert ex.tree.min_size == 150
+    if ex._extras_worker is not None:  # the new results' extras
+        ex._extras_worker.join(60)
+    loop.run_all()
+    assert ex.pending == set() and ex.linear is not None and ex._panels["linear"].figure.data
+    assert ex.tree_view.leaf_ids == [int(i) for i in summarize_tree(draws, max_depth=3, min_size=150).at_depth(2).leaf_ids]
+    assert threads and all(t is threading.main_thread() for t in threads)
+    assert ex.wait(timeout=60)
+
+
+def test_wait_sends_what_the_main_loop_drew_between_cells_again(draws, monkeypatch):
+    loop = _Loop()
+    monkeypatch.setattr(explorer_module, "_main_loop", lambda: loop)
+    ex = Explorer(draws, max_depth=2, depth=1, trends=False, background=False)
+    loop.run_all()  # between cells: a headless run's saved state misses these messages
+    sent = {}
+    watched = {name: p.figure for name, p in ex._panels.items() if p.figure is not None}
+    watched["tree view"] = ex.tree_view
+    for name, w in watched.items():
+        monkeypatch.setattr(w, "send_state", lambda key=None, name=name: sent.setdefault(name, []).append(key))
+    assert ex.wait(timeout=10)
+    assert set(sent) == set(watched)
+    for name, keys in sent.items():
+        keys = set(keys[0])
+        assert "_esm" not in keys and not any(k.startswith(("_py2js", "_js2py")) for k in keys), name
+        assert ({"_widget_data", "_widget_layout"} if name != "tree view" else {"nodes", "selected"}) <= keys, name
+
+
+def test_wait_rejects_a_bad_timeout(explorer):
+    for bad in ("soon", -1, float("nan")):
+        with pytest.raises(SummaryError, match=r"`timeout` must be a number of seconds"):
+            explorer.wait(bad)
+    assert explorer.wait(0)

@@ -297,9 +297,14 @@ def subgroups_figure(df: pd.DataFrame, *, highlight=None, draws: Mapping | None 
     for p in pinned:
         if p not in ids:
             raise SummaryError(f"`pinned` {p!r} is not one of the subgroups: {ids}.")
-    rest = df[~df["subgroup"].isin(list(pinned))].sort_values("mean", kind="stable")
-    top = df.set_index("subgroup").loc[list(pinned)[::-1]].reset_index() if pinned else df.iloc[:0]
-    ordered = pd.concat([rest, top], ignore_index=True)  # bottom to top
+    if pinned:
+        rest = df[~df["subgroup"].isin(list(pinned))].sort_values("mean", kind="stable")
+        top = df.set_index("subgroup").loc[list(pinned)[::-1]].reset_index()
+        ordered = pd.concat([rest, top], ignore_index=True)  # bottom to top
+    else:  # no concatenation: with text columns it was most of a small figure's cost
+        rest = df.sort_values("mean", kind="stable")
+        top = df.iloc[:0]
+        ordered = rest.reset_index(drop=True)
     n = len(ordered)
 
     labels = []

@@ -58,21 +58,30 @@ class SummaryResult:
         """
         keys = list(keys)
         setting = (float(level), str(interval))
-        done = [self._columns.get((k, setting)) for k in keys]
-        if keys and all(c is not None for c in done):
-            return {name: np.array([c[name] for c in done]) for name in done[0]}
-        todo = [j for j, k in enumerate(keys) if k not in self._diagnostics]
-        if todo:
-            fresh = mc_diagnostics(theta[:, todo], self._draws.n_chains)
-            for pos, j in enumerate(todo):
-                self._diagnostics[keys[j]] = {name: values[pos] for name, values in fresh.items()}
-        diag = {name: np.array([self._diagnostics[k][name] for k in keys], dtype=np.float64)
-                for name in ("ess_bulk", "ess_tail", "rhat", "mcse_mean")}
-        cols = summary_columns(theta, level=level, interval=interval, n_chains=self._draws.n_chains,
-                               diagnostics=diag)
-        for j, k in enumerate(keys):
-            self._columns[(k, setting)] = {name: values[j] for name, values in cols.items()}
-        return cols
+        missing = [j for j, k in enumerate(keys) if (k, setting) not in self._columns]
+        if missing:
+            # Only the columns not seen at this setting (a node table after the subgroup table
+            # computes its inner nodes only): every statistic is computed column by column.
+            part = theta if len(missing) == len(keys) else theta[:, missing]
+            todo = [j for j in missing if keys[j] not in self._diagnostics]
+            if todo:
+                fresh = mc_diagnostics(theta[:, todo], self._draws.n_chains)
+                for pos, j in enumerate(todo):
+                    self._diagnostics[keys[j]] = {name: values[pos] for name, values in fresh.items()}
+            diag = {name: np.array([self._diagnostics[keys[j]][name] for j in missing], dtype=np.float64)
+                    for name in ("ess_bulk", "ess_tail", "rhat", "mcse_mean")}
+            cols = summary_columns(part, level=level, interval=interval, n_chains=self._draws.n_chains,
+                                   diagnostics=diag)
+            for pos, j in enumerate(missing):
+                self._columns[(keys[j], setting)] = {name: values[pos] for name, values in cols.items()}
+            if len(missing) == len(keys):
+                return cols
+        done = [self._columns[(k, setting)] for k in keys]
+        if not done:  # no columns
+            return summary_columns(theta, level=level, interval=interval, n_chains=self._draws.n_chains,
+                                   diagnostics={name: np.empty(0) for name in ("ess_bulk", "ess_tail", "rhat",
+                                                                               "mcse_mean")})
+        return {name: np.array([c[name] for c in done]) for name in done[0]}
 
     def r2_statistics(self, key, r2: np.ndarray, *, level: float, interval: str) -> dict:
         """:data:`FIT_COLUMNS` of a per-draw summary R^2 (one value each).

@@ -550,6 +550,21 @@ class TreeSummary(SummaryResult):
         out.attrs.update({"level": check_level(level), "interval": interval, **self._attrs()})
         return out
 
+    def outline(self) -> pd.DataFrame:
+        """Every node down to the current depth, structure only: ``node``, ``parent`` (-1 for the
+        root), ``depth``, ``rule``, ``is_leaf`` (a subgroup at the current depth), in the row order
+        of :meth:`nodes`. No per-draw work: what finding a node's ancestor or a rule's node needs."""
+        f = self._f
+        ids = np.flatnonzero(f.node_depth <= self._depth)
+        leaves = set(self.leaf_ids.tolist())
+        return pd.DataFrame({
+            "node": ids.astype(int),
+            "parent": f.parent[ids].astype(int),
+            "depth": f.node_depth[ids].astype(int),
+            "rule": [f.rules[i] for i in ids],
+            "is_leaf": [int(i) in leaves for i in ids],
+        })
+
     def best_subgroup(self, level: float = 0.95, interval: str = "equal-tailed") -> int:
         """Node id of the subgroup with the largest benefit in the draws' direction (``draws.better``):
         the lowest posterior mean when lower is better, else the highest; weak-uptake subgroups only

@@ -141,5 +141,8 @@ def explorer_style(scope: str = "swx-explorer") -> str:
         "border-color:#1d4e79;font-weight:600;}",
         f"{s} .swx-interval .widget-toggle-button.mod-active::before {{content:'\\2713\\00a0';}}",
         f"{s} .swx-covariates .widget-checkbox input {{accent-color:#1d4e79;}}",
+        # Tabs as wide as their titles (shrinking when the row is full), so "Linear fit (computing…)"
+        # is read whole instead of cut at ipywidgets' fixed tab width.
+        f"{s} .jupyter-widget-tab > .lm-TabBar .lm-TabBar-tab {{flex:0 1 auto;}}",
     ]
     return f"<style>{' '.join(rules)}</style>"

@@ -32,9 +32,8 @@ from ..summaries.bundle import DEFAULT_DEPTH
 from . import panels as P
 from .controls import CovariateChooser, explorer_style, in_control_words
 from .results import Results
-from .tree_view import TreeView, node_records
+from .tree_view import TreeView
 from .decisions_panel import DecisionsPanel
-from ..export.layout import subgroup_texts
 from .evidence_panel import EvidencePanel
 from ..export.view import write_view_folder
 
@@ -60,21 +59,53 @@ class _Panel:
 
 #: Panels drawn only when their tab is opened (never as part of the first view).
 _DRAWN_WHEN_OPENED = ("decisions",)
+#: Synced names wait() does not send again: fixed model names, front-end modules, plotly's edit messages.
+_NOT_RESENT = ("_model_", "_view_", "_esm", "_css", "_anywidget_id", "_py2js", "_js2py")
+
+
+def _main_loop():
+    """The IPython kernel's main loop, or None outside a kernel."""
+    try:
+        from IPython import get_ipython
+
+        return getattr(getattr(get_ipython(), "kernel", None), "io_loop", None)
+    except Exception:  # noqa: BLE001 - no IPython: no loop
+        return None
 
 
 def _on_main_loop(fn) -> None:
     """Run ``fn`` on the IPython kernel's main loop (thread-safe hand-over), or at once outside a kernel."""
-    loop = None
-    try:
-        from IPython import get_ipython
-
-        loop = getattr(getattr(get_ipython(), "kernel", None), "io_loop", None)
-    except Exception:  # noqa: BLE001 - no IPython: no loop
-        loop = None
+    loop = _main_loop()
     if loop is None:
         fn()
     else:
         loop.add_callback(fn)
+
+
+def _start_figure_import() -> threading.Thread:
+    """Import plotly's FigureWidget on a thread: its first import pulls in nbformat and jsonschema
+    (about 1.4 s here), and plotly's first figure reads its table of property validators (about
+    0.25 s); the explorer's first view need not wait for either when they overlap the tree's pass
+    or whatever the notebook does after importing the widgets."""
+    def run():
+        try:
+            import plotly.graph_objs._figurewidget  # noqa: F401
+
+            go.Figure(data=[go.Scatter(x=[0], y=[0], mode="markers")], layout=dict(height=300, template="none"))
+        except Exception:  # noqa: BLE001 - the main thread's own import reports the problem
+            pass
+    thread = threading.Thread(target=run, name="summarize-widgets-import", daemon=True)
+    thread.start()
+    return thread
+
+
+_FIGURE_IMPORT = _start_figure_import()
+
+
+def _figure_widget(**layout):
+    """A new plotly FigureWidget (waits for the import thread first)."""
+    _FIGURE_IMPORT.join()
+    return go.FigureWidget(layout=layout)
 
 
 class Explorer(widgets.VBox):
@@ -106,17 +137,23 @@ class Explorer(widgets.VBox):
         Extra keyword arguments for :func:`summarize_widgets.summarize_additive`
         (for example ``{"lam": 1.0}`` to skip the smoothing search).
     background : bool, default True
-        With ``fill_in_background``, show the first view once the tree is computed (one pass over the draws) and compute the
-        linear and additive summaries on a worker thread (one more pass, shared by both); their
-        tabs say "(computing…)" until they are ready. Recomputations triggered from the controls
-        also run there. False computes everything before the explorer is shown (one fused pass).
-        A notebook run headlessly (nbclient, nbconvert) should call :meth:`wait` before its
-        widget state is saved.
-    fill_in_background : bool, default False
-        With ``background``: show the first view after the tree's pass and fill in the linear
-        and additive tabs from a worker thread (their tabs say "computing" meanwhile); the tabs
-        are drawn on the kernel's main loop once the summaries are ready. Experimental: the
-        JupyterLab browser test does not pass with it yet, so it is off by default.
+        Run the work that reads the draws on worker threads: the linear and additive summaries
+        after the first view (with ``fill_in_background``) and the recomputations the controls
+        trigger, so the widget stays usable meanwhile. False computes everything before the
+        explorer is shown (one fused pass) and recomputes in the foreground.
+    fill_in_background : bool, default True
+        With ``background``: the first view (tree view and subgroup effects) appears after the
+        tree's pass, and the linear and additive summaries are computed on a worker thread
+        (one more pass, shared by both); their tabs say "(computing…)" and show a progress bar
+        until they are ready, then are drawn on the kernel's main loop. Tabs not in sight are
+        drawn after the first view (on the kernel's main loop) or when opened. False computes
+        every summary before the first view.
+
+    Notes
+    -----
+    Code that needs everything computed and drawn (a script reading :attr:`linear`, a notebook
+    run headlessly with nbclient or nbconvert before its widget state is saved) calls
+    :meth:`wait` first.
 
     Attributes
     ----------
@@ -129,7 +166,7 @@ class Explorer(widgets.VBox):
     def __init__(self, draws, *, max_depth: int = 4, depth: int | None = None, min_size: int | None = None,
                  columns=None, level: float = 0.95, interval: str = "equal-tailed", trends: bool = True,
                  linear: bool = True, additive_options: Mapping | None = None, background: bool = True,
-                 fill_in_background: bool = False):
+                 fill_in_background: bool = True):
         if not isinstance(draws, EffectDraws):
             raise SummaryError(f"`draws` must be an EffectDraws (see summarize_widgets.EffectDraws); "
                                f"got {type(draws).__name__}.")
@@ -144,9 +181,8 @@ class Explorer(widgets.VBox):
         self._draws = draws
         self._options = {"trends": bool(trends), "linear": bool(linear), "additive_options": dict(additive_options or {})}
         self._background = bool(background)
-        # Off by default: in JupyterLab (tests/browser) figure widgets updated from the worker thread
-        # stopped syncing (width and highlight never reached the page); until that is understood the
-        # first view waits for the one fused pass of every summary.
+        # Figure widgets are only ever changed on the kernel's main loop (the worker threads hand their
+        # results over): changed from a worker thread, they fell out of step with the browser.
         self._extras_later = self._background and bool(fill_in_background)
         self._lock = threading.RLock()  # one view update at a time (main thread or worker)
         self._pending = None
@@ -158,7 +194,8 @@ class Explorer(widgets.VBox):
 
         self._extras_pending = None  # Results whose linear/additive summaries are still to compute
         self._extras_worker: threading.Thread | None = None
-        self._extras_unshown = None  # Results computed on the worker whose tabs are still to draw
+        # View updates a worker thread prepared, waiting for the kernel's main loop (or wait()), in order.
+        self._handover: list = []
         # With a worker thread the first view needs the tree only (one pass); the linear and
         # additive summaries follow on the thread (one more pass, shared) and fill their tabs.
         self._res = Results.compute(draws, max_depth=max_depth, min_size=min_size, columns=columns,
@@ -174,8 +211,11 @@ class Explorer(widgets.VBox):
         super().__init__(children=[self._header, self._controls, self._status_row, self.tree_view, self._tabs,
                                    self._save_row])
         self.add_class("swx-explorer")
-        self._refresh(all_panels=True)
+        # The first view: the tree view and the tab in sight. The other tabs follow on the kernel's
+        # main loop once this cell has shown the explorer (or when opened, or in wait()).
+        self._refresh()
         self._start_extras(self._res)
+        self._draw_hidden_later()
 
     # -- public API --------------------------------------------------------------------------
     def apply(self, *, depth: int | None = None, level: float | None = None, interval: str | None = None,
@@ -230,20 +270,45 @@ class Explorer(widgets.VBox):
         self._regroup(min_size, columns, progress=None, raise_errors=True)
 
     def wait(self, timeout: float | None = None) -> bool:
-        """Wait for the background work (a recomputation, the linear and additive summaries) to finish;
-        True if none is running."""
+        """Block until the background work is done and every tab is drawn; True if so, False on timeout.
+
+        The background work is the linear and additive summaries computed after the first view
+        and any recomputation the controls started. Then every tab not drawn yet is drawn (the
+        Decisions tab excepted: it is computed when opened), so :attr:`linear`, :attr:`additive`
+        and a notebook's saved widget state hold everything. Call it in scripts, tests and
+        notebooks run headlessly (nbclient, nbconvert) before reading or saving the results.
+
+        Parameters
+        ----------
+        timeout : float, optional
+            Seconds to wait at most (default: no limit).
+        """
+        if timeout is not None:
+            try:
+                timeout = float(timeout)
+            except (TypeError, ValueError):
+                raise SummaryError(f"`timeout` must be a number of seconds or None; got {timeout!r}.") from None
+            if not timeout >= 0:
+                raise SummaryError(f"`timeout` must be a number of seconds >= 0 or None; got {timeout!r}.")
         end = None if timeout is None else time.monotonic() + timeout
         while True:
-            busy = [w for w in (self._worker, self._extras_worker) if w is not None and w.is_alive()]
+            busy = self._busy_workers()
             if not busy:
-                shown = self._extras_unshown
-                if shown is not None:  # computed, its tabs not drawn yet (the main loop is busy with this call)
-                    self._show_extras(shown)
+                # Results handed over but not drawn yet (the main loop is busy with this call); drawing
+                # a recompute's results can start the extras' worker, so look again afterwards.
+                self._run_handover()
+                if self._busy_workers():
+                    continue
+                self._draw_hidden()
+                self._send_view_state()
                 return True
             left = None if end is None else end - time.monotonic()
             if left is not None and left <= 0:
                 return False
             busy[0].join(left)
+
+    def _busy_workers(self) -> list:
+        return [w for w in (self._worker, self._extras_worker) if w is not None and w.is_alive()]
 
     @property
     def pending(self) -> set:
@@ -281,7 +346,7 @@ class Explorer(widgets.VBox):
             s = dict(self._state)
             res = self._res
             tree = res.at(s["depth"])
-            rule = self._rule_of(s["selected"])
+            rule = res.rule_of(s["selected"])
             view = {"depth": s["depth"], "min_size": tree.min_size, "columns": list(tree.columns),
                     "selected_rule": rule or "", "covariate": s["covariate"] or ""}
         return write_view_folder(folder, tree=tree, level=s["level"], interval=s["interval"], selected=s["selected"],
@@ -321,13 +386,6 @@ class Explorer(widgets.VBox):
                                                    f"{where.resolve() if hasattr(where, 'resolve') else where}.")
         finally:
             self.save_button.disabled = False
-
-    def _rule_of(self, node):
-        if node is None or node < 0:
-            return None
-        full = self._res.nodes(self._res.tree.max_depth, 0.95, "equal-tailed")
-        hit = full.loc[full["node"] == node, "rule"]
-        return str(hit.iloc[0]) if len(hit) else None
 
     # -- controls and panels -----------------------------------------------------------
     def _build_controls(self, max_depth, level, interval, columns):
@@ -372,7 +430,7 @@ class Explorer(widgets.VBox):
 
     def _build_panels(self):
         def fig_widget():
-            return go.FigureWidget(layout=dict(height=300, template="none"))
+            return _figure_widget(height=300, template="none")
 
         panels = []
         effects = fig_widget()
@@ -463,25 +521,61 @@ class Explorer(widgets.VBox):
                 for bar in bars:
                     bar.value = done / max(total, 1)
             res.fill_extras(self._draws, progress=progress)  # never raises: failures go to res.errors
-            # The widgets are updated on the kernel's main loop, between the messages it handles (the
-            # figures' size reports, clicks): updating them from this thread while the front end syncs
-            # left the figures out of step with the browser.
-            self._extras_unshown = res
-            _on_main_loop(lambda res=res: self._show_extras(res))
+            self._hand_over(lambda res=res: self._show_extras(res))
+
+    def _hand_over(self, action) -> None:
+        """Run ``action``, a view update prepared on a worker thread, on the kernel's main loop.
+
+        The widgets are updated there, between the messages the loop handles (the figures' size
+        reports, clicks): figure widgets changed from a worker thread while the front end synced
+        fell out of step with the browser. Queued actions run in order, each once: on the loop, or
+        in :meth:`wait` when it is called first (it holds the loop).
+        """
+        with self._lock:
+            self._handover.append(action)
+        _on_main_loop(self._run_handover)
+
+    def _run_handover(self) -> None:
+        while True:
+            with self._lock:
+                if not self._handover:
+                    return
+                action = self._handover.pop(0)
+            try:
+                action()
+            except Exception as exc:  # noqa: BLE001 - no output area to report to
+                self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
+
+    def _send_view_state(self) -> None:
+        """Send the synced state of every widget in the explorer once more.
+
+        A notebook run headlessly (nbclient, nbconvert) keeps only the widget messages sent while
+        a cell runs; what the main loop drew between cells (tabs out of sight, the extras) reaches
+        a live page but not the saved widget state. :meth:`wait`, run in a cell, sends it again.
+        plotly's edit messages and the front-end modules are not resent.
+        """
+        seen, stack = set(), [self]
+        while stack:
+            w = stack.pop()
+            if id(w) in seen or getattr(w, "comm", None) is None:
+                continue
+            seen.add(id(w))
+            if not isinstance(w, widgets.Output):  # an output area's content travels in its own messages
+                w.send_state([k for k in w.keys if not k.startswith(_NOT_RESENT)])
+            for k in w.keys:
+                value = getattr(w, k, None)
+                stack.extend(v for v in (value if isinstance(value, (list, tuple)) else (value,))
+                             if isinstance(v, widgets.Widget))
 
     def _show_extras(self, res) -> None:
         """Draw the linear and additive tabs of ``res`` once its extras are computed (main loop)."""
-        if self._extras_unshown is not res:  # drawn already (by wait()) or overtaken
-            return
-        self._extras_unshown = None
         try:
             with self._lock:
                 if res is not self._res:
                     return
                 if self._options["trends"]:
                     names = res.additive.columns if res.additive is not None else []
-                    self._quietly(lambda names=names: setattr(self.covariate_control, "options", names))
-                    self._state["covariate"] = self.covariate_control.value
+                    self._set_covariates(names)
                 for i, panel in enumerate(self._panels.values()):
                     if panel.name in ("trends", "linear", "evidence"):
                         panel.key = None
@@ -492,6 +586,36 @@ class Explorer(widgets.VBox):
                 self._refresh()
         except Exception as exc:  # noqa: BLE001 - no output area to report to
             self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
+
+    def _draw_hidden(self) -> None:
+        """Draw every tab whose drawing is behind the current view (the Decisions tab only when opened)."""
+        with self._lock:
+            for panel in self._panels.values():
+                if panel.name not in _DRAWN_WHEN_OPENED:
+                    self._draw_panel(panel)
+
+    def _draw_hidden_later(self) -> None:
+        """On the kernel's main loop, draw the tabs not in sight one per turn (clicks are handled between
+        them); outside a kernel nothing is shown, so they wait until opened or :meth:`wait`."""
+        loop = _main_loop()
+        if loop is None:
+            return
+        queue = [p for p in self._panels.values() if p.name not in _DRAWN_WHEN_OPENED]
+
+        def step():
+            try:
+                with self._lock:
+                    while queue:
+                        panel = queue.pop(0)
+                        if panel.key != self._panel_key(panel.name):
+                            self._draw_panel(panel)
+                            break
+            except Exception as exc:  # noqa: BLE001 - no output area to report to
+                self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
+                return
+            if queue:
+                loop.add_callback(step)
+        loop.add_callback(step)
 
     # -- event handlers ------------------------------------------------------------------
     def _guard(self, handler):
@@ -574,7 +698,7 @@ class Explorer(widgets.VBox):
                     return
             try:
                 self._regroup(*request, progress=self._progress_callback(time.monotonic()),
-                              stale=lambda: self._pending is not None)
+                              stale=lambda: self._pending is not None, hand_over=True)
             except Exception as exc:  # noqa: BLE001 - a worker thread has no output area to report to
                 self._show_error(f"Unexpected error ({type(exc).__name__}): {exc}")
 
@@ -587,7 +711,9 @@ class Explorer(widgets.VBox):
             self.progress.value = (k + done / max(total, 1)) / n_stages
         return progress
 
-    def _regroup(self, min_size, columns, *, progress, stale=lambda: False, raise_errors=False):
+    def _regroup(self, min_size, columns, *, progress, stale=lambda: False, raise_errors=False, hand_over=False):
+        """Recompute for ``min_size`` and ``columns``; the new results are drawn at once, or with
+        ``hand_over`` (on a worker thread) on the kernel's main loop, unless ``stale()`` by then."""
         before = {"min_size": self._res.tree.min_size, "columns": self._res.tree.columns}
         self.status.value = P.status_html("Recomputing the summaries (one pass over the draws each)\u2026", tone="busy")
         try:
@@ -609,25 +735,34 @@ class Explorer(widgets.VBox):
             self.progress.value = 0.0
         if stale():
             return
+        if hand_over:
+            self._hand_over(lambda: self._show_results(res, previous, stale))
+        else:
+            self._show_results(res, previous, stale)
+
+    def _show_results(self, res, previous, stale) -> None:
+        """Show a recompute's results (keeping the subgroup with the rule ``previous``) and start its extras."""
+        if stale():  # a newer request came while this waited for the main loop
+            return
         with self._lock:
             self._res = res
             s = self._state
             # Keep the user's subgroup when the new tree still has it (the same rule); else the standout.
-            kept = _node_with_rule(res, previous)
+            kept = res.node_with_rule(previous)
             if kept is None:
                 s["selected"] = s["anchor"] = res.standout(s["depth"])
             else:
                 s["anchor"], s["selected"] = kept, res.follow(kept, s["depth"])
             if self._options["trends"]:
                 names = res.additive.columns if res.additive is not None else []
-                self._quietly(lambda: setattr(self.covariate_control, "options", names))
-                s["covariate"] = self.covariate_control.value
+                self._set_covariates(names)
             self._sync_controls()
             for i, p in enumerate(self._panels.values()):
                 p.key = None
                 self._tabs.set_title(i, self._tab_title(p))
             self._refresh()
         self._start_extras(res)
+        self._draw_hidden_later()
 
     # -- drawing -------------------------------------------------------------------------------
     def _sync_controls(self):
@@ -644,14 +779,21 @@ class Explorer(widgets.VBox):
             self.columns_control.value = tuple(self._res.tree.columns)
         self._quietly(move)
 
+    def _set_covariates(self, names) -> None:
+        """Offer ``names`` in the Trends tab's covariate control, keeping the covariate shown if it is
+        still there, else the first (the options of a Dropdown alone leave no covariate chosen)."""
+        names = list(names)
+        keep = self._state["covariate"] if self._state["covariate"] in names else (names[0] if names else None)
+
+        def move():
+            self.covariate_control.options = names
+            self.covariate_control.value = keep
+        self._quietly(move)
+        self._state["covariate"] = keep
+
     def _anchor_rule(self):
         """The rule of the node last picked (None for no pick): what a recompute looks for."""
-        anchor = self._state["anchor"]
-        if anchor < 0:
-            return None
-        full = self._res.nodes(self._res.tree.max_depth, 0.95, "equal-tailed")
-        hit = full.loc[full["node"] == anchor, "rule"]
-        return str(hit.iloc[0]) if len(hit) else None
+        return self._res.rule_of(self._state["anchor"])
 
     def _show_error(self, text: str) -> None:
         self.status.value = P.status_html(text, tone="error")
@@ -667,7 +809,8 @@ class Explorer(widgets.VBox):
         if not bool(r["is_leaf"]):
             return P.status_html(f"Selected: {rule} (split further at this depth; click one of its coloured "
                                  "subgroups to compare it with the others).")
-        t = subgroup_texts(nodes).loc[row.index[0]]  # the tables' digits (one formatter for every output)
+        # the tables' digits (one formatter for every output)
+        t = self._res.texts(s["depth"], s["level"], s["interval"]).loc[row.index[0]]
         label = f"{r['label']}: " if r.get("label") else ""
         return P.status_html(f"Selected: {label}{rule} ({t['n_text']} units): posterior mean and "
                              f"{100 * s['level']:g}% interval {t['mean_text']} {t['interval_text']}.")
@@ -675,38 +818,33 @@ class Explorer(widgets.VBox):
     def _refresh_status(self):
         self.status.value = self._selection_text()
 
-    def _refresh(self, all_panels: bool = False):
-        """Redraw the tree view, the status line and the panels whose inputs changed."""
+    def _refresh(self):
+        """Redraw the tree view, the status line and the tab in sight if its inputs changed."""
         s = self._state
-        nodes = self._res.nodes(s["depth"], s["level"], s["interval"])
-        leaves = nodes[nodes["is_leaf"]]
+        view = (s["depth"], s["level"], s["interval"])
+        n_leaves = len(self._res.leaf_ids(s["depth"]))
         kind = "highest-density" if s["interval"] == "highest-density" else "equal-tailed"
-        weak = self._weak_ids()
-        steady = leaves[~leaves["node"].isin(list(weak))]
-        # The colour range comes from the subgroups whose ratio is stable (all of them if none is).
-        limit = P.vmax_of((steady if len(steady) else leaves)["mean"])
+        limit = self._res.colour_limit(*view)
         compliers = self._draws.is_complier_weighted
         shares = "units, shares of units and of compliers" if compliers else "units"
 
         def update_view():
             # Quietly: the view's "selected" observer is for clicks, not for the code's own moves.
             with self.tree_view.hold_sync():
-                self.tree_view.nodes = node_records(nodes, weak=weak)
+                self.tree_view.nodes = self._res.records(*view)
                 self.tree_view.selected = s["selected"]
                 self.tree_view.colour_limit = limit
                 self.tree_view.share_basis = "compliers" if compliers else "units"
                 self.tree_view.interval_label = f"{100 * s['level']:g}% {kind} interval"
-                self.tree_view.caption = (f"{len(leaves)} subgroups at depth {s['depth']}; boxes show {shares}, "
+                self.tree_view.caption = (f"{n_leaves} subgroups at depth {s['depth']}; boxes show {shares}, "
                                           f"posterior mean and {100 * s['level']:g}% {kind} interval. "
                                           "Click a subgroup to select it.")
         self._quietly(update_view)
         self._refresh_status()
-        visible = self._tabs.selected_index or 0
-        for i, panel in enumerate(self._panels.values()):
-            # The Decisions tab (value of targeting, with cross-fitted trees) is drawn when it is
-            # opened: at scale it costs more than the rest of the first view together.
-            if i == visible or (all_panels and panel.name not in _DRAWN_WHEN_OPENED):
-                self._draw_panel(panel)
+        # Tabs out of sight are drawn when opened (or after the first view, or in wait()). The
+        # Decisions tab (value of targeting, with cross-fitted trees) only when opened: at scale it
+        # costs more than the rest of the first view together.
+        self._draw_panel(list(self._panels.values())[self._tabs.selected_index or 0])
 
     def _panel_key(self, name):
         s = self._state
@@ -742,26 +880,12 @@ class Explorer(widgets.VBox):
     def _highlighted(self) -> list[int]:
         """The subgroups inside the selected node at the current depth (itself if it is one)."""
         s = self._state
-        if s["selected"] < 0:
-            return []
-        nodes = self._res.nodes(s["depth"], s["level"], s["interval"])
-        parent = dict(zip(nodes["node"].tolist(), nodes["parent"].tolist()))
-        out = []
-        for leaf in self._res.leaf_ids(s["depth"]):
-            node = leaf
-            while node != -1 and node != s["selected"]:
-                node = parent.get(node, -1)
-            if node == s["selected"]:
-                out.append(leaf)
-        return out
+        return self._res.inside(s["selected"], s["depth"])
 
     def _weak_ids(self) -> set[int]:
         """Subgroups at the current depth flagged for weak uptake (complier-weighted draws)."""
         s = self._state
-        table = self._res.table(s["depth"], s["level"], s["interval"])
-        if "weak_uptake" not in table.columns:
-            return set()
-        return {int(i) for i in table.loc[table["weak_uptake"].astype(bool), "subgroup"]}
+        return set(self._res.weak_ids(s["depth"], s["level"], s["interval"]))
 
     def _draw_effects(self, panel):
         s = self._state
@@ -828,12 +952,3 @@ class Explorer(widgets.VBox):
             fig = P.contrasts_figure(self._res.contrasts(s["depth"], s["level"], s["interval"], sel), sel,
                                      weak=self._weak_ids())
         self._show(panel, fig)
-
-
-def _node_with_rule(res, rule):
-    """The node of ``res``'s full tree whose rule is ``rule``, or None."""
-    if rule is None:
-        return None
-    full = res.nodes(res.tree.max_depth, 0.95, "equal-tailed")
-    hit = full.loc[full["rule"] == rule, "node"]
-    return int(hit.iloc[0]) if len(hit) else None

@@ -11,8 +11,10 @@ from collections.abc import Callable, Mapping
 import numpy as np
 import pandas as pd
 
+from ..export.layout import subgroup_texts
 from ..summaries.bundle import summarize_all, summarize_extras
 from ..summaries.tree import TreeSummary
+from .tree_view import node_records
 
 __all__ = ["Results"]
 
@@ -119,13 +121,44 @@ class Results:
     def linear_table(self, level: float, interval: str) -> pd.DataFrame:
         return self._cached(("linear", level, interval), lambda: self.linear.table(level=level, interval=interval))
 
+    def records(self, depth: int, level: float, interval: str) -> list[dict]:
+        """The tree view's node records at this view, the weak-uptake subgroups flagged."""
+        return self._cached(("records", depth, level, interval),
+                            lambda: node_records(self.nodes(depth, level, interval),
+                                                 weak=self.weak_ids(depth, level, interval)))
+
+    def texts(self, depth: int, level: float, interval: str) -> pd.DataFrame:
+        """The printed numbers of :meth:`nodes` (the tables' digits), row for row."""
+        return self._cached(("texts", depth, level, interval),
+                            lambda: subgroup_texts(self.nodes(depth, level, interval)))
+
+    def weak_ids(self, depth: int, level: float, interval: str) -> frozenset:
+        """Subgroups at ``depth`` flagged for weak uptake (complier-weighted draws; else none)."""
+        def make():
+            table = self.table(depth, level, interval)
+            if "weak_uptake" not in table.columns:
+                return frozenset()
+            return frozenset(int(i) for i in table.loc[table["weak_uptake"].astype(bool), "subgroup"])
+        return self._cached(("weak", depth, level, interval), make)
+
+    def colour_limit(self, depth: int, level: float, interval: str) -> float:
+        """The |posterior mean| given the full colour: the largest among the subgroups whose ratio is
+        stable (not flagged for weak uptake), or among all of them if every one is flagged."""
+        def make():
+            table = self.table(depth, level, interval)
+            steady = table[~table["subgroup"].isin(list(self.weak_ids(depth, level, interval)))]
+            values = (steady if len(steady) else table)["mean"].to_numpy(float)
+            v = np.abs(values[np.isfinite(values)])
+            return float(v.max()) if v.size else 0.0
+        return self._cached(("limit", depth, level, interval), make)
+
     def contrasts(self, depth: int, level: float, interval: str, subgroup: int) -> pd.DataFrame:
         return self._cached(("contrasts", depth, level, interval, subgroup),
                             lambda: self.at(depth).contrasts(level=level, interval=interval, subgroup=subgroup))
 
     # -- selection -----------------------------------------------------------------------------
     def leaf_ids(self, depth: int) -> list[int]:
-        return [int(i) for i in self.at(depth).leaf_ids]
+        return self._cached(("leaves", depth), lambda: [int(i) for i in self.at(depth).leaf_ids])
 
     def standout(self, depth: int) -> int:
         """The subgroup at ``depth`` whose posterior mean is farthest from zero in posterior sds.
@@ -138,13 +171,51 @@ class Results:
         score = np.abs(tab["mean"].to_numpy(float)) / np.where(sd > 0, sd, np.inf)
         return int(tab["subgroup"].iloc[int(np.argmax(np.nan_to_num(score, nan=-1.0)))])
 
+    def _outline(self) -> dict:
+        """The grown tree's structure (no statistics): node -> parent, depth and rule, rule -> node."""
+        def make():
+            full = self.tree.outline()
+            nodes = full["node"].tolist()
+            return {"parent": dict(zip(nodes, full["parent"].tolist())),
+                    "depth": dict(zip(nodes, full["depth"].tolist())),
+                    "rule": dict(zip(nodes, full["rule"].tolist())),
+                    "node": {rule: node for node, rule in zip(nodes[::-1], full["rule"].tolist()[::-1])}}
+        return self._cached(("outline",), make)
+
     def follow(self, node: int, depth: int) -> int:
         """The node to show for ``node`` at ``depth``: itself if shown, else its ancestor at ``depth``."""
         if node < 0:
             return node
-        full = self.nodes(self.tree.max_depth, 0.95, "equal-tailed")
-        parent = dict(zip(full["node"].tolist(), full["parent"].tolist()))
-        depth_of = dict(zip(full["node"].tolist(), full["depth"].tolist()))
+        out = self._outline()
+        parent, depth_of = out["parent"], out["depth"]
         while node in depth_of and depth_of[node] > depth:
             node = parent[node]
         return node
+
+    def rule_of(self, node) -> str | None:
+        """The rule of a node of the grown tree (None for -1 or an unknown node)."""
+        if node is None or node < 0:
+            return None
+        rule = self._outline()["rule"].get(int(node))
+        return None if rule is None else str(rule)
+
+    def node_with_rule(self, rule) -> int | None:
+        """The node of the grown tree whose rule is ``rule`` (the first in node order), or None."""
+        if rule is None:
+            return None
+        node = self._outline()["node"].get(rule)
+        return None if node is None else int(node)
+
+    def inside(self, node: int, depth: int) -> list[int]:
+        """The subgroups at ``depth`` inside ``node`` (itself if it is one; none for -1), in tree order."""
+        if node < 0:
+            return []
+        parent = self._outline()["parent"]
+        out = []
+        for leaf in self.leaf_ids(depth):
+            up = leaf
+            while up != -1 and up != node:
+                up = parent.get(up, -1)
+            if up == node:
+                out.append(leaf)
+        return out
