@@ -160,3 +160,42 @@ def test_whole_job_reads_each_block_in_memory_exactly_twice(study, monkeypatch):
     reads.clear()
     sw.summarize_linear(bundle.draws)
     assert set(reads.values()) == {1}
+
+
+def test_lazy_pass_keeps_few_partial_sums_alive(study, monkeypatch):
+    """Per-unit partial sums of a lazy pass on the local scheduler are absorbed as each chunk is done:
+    a bounded number are alive at once, however many chunks (as one graph, Dask read ahead and kept
+    them: 6.8 GiB at 1,000 x 8,000,000)."""
+    import weakref
+
+    import dask
+
+    from summarize_widgets.core.passes import BlockReducer, run_pass
+
+    X, T, _ = study
+    alive, most = [], [0]
+
+    class PerUnit(BlockReducer):
+        summed = True
+
+        def start(self, n_draws):
+            self.total = None
+
+        def partial(self, block):
+            part = np.asarray(block.wt, dtype=np.float64).sum(axis=0)
+            alive.append(weakref.ref(part))
+            most[0] = max(most[0], sum(r() is not None for r in alive))
+            return part
+
+        def store(self, rows, part):
+            self.total = part
+
+    monkeypatch.setattr(lazy, "LAZY_BLOCK_BYTES", 1)  # the store's own chunks: 60 of 2 draws
+    draws = sw.EffectDraws(da.from_array(T, chunks=(2, N)), X)
+    probe = PerUnit()
+    with dask.config.set(scheduler="threads", num_workers=2):
+        run_pass(draws, [probe])
+    assert len(alive) == -(-S // 2) and most[0] <= 4, most[0]
+    eager = PerUnit()
+    run_pass(sw.EffectDraws(T, X), [eager])  # the same sums from the in-memory path
+    np.testing.assert_allclose(probe.total, eager.total, rtol=1e-10)

@@ -2,11 +2,13 @@
 
 Nothing here loads the draws. :func:`lazy_matrix` turns such an input into a 2-D Dask
 array (draws x units) whose chunks span every unit; :func:`run_lazy_pass` runs the
-reducers of a pass (:mod:`summarize_widgets.core.passes`) as one Dask computation: each
-chunk of draws is reduced where it lives (``reducer.partial``), only the small per-draw
-results travel back, and per-unit sums are added in a tree on the workers. The active
-scheduler decides where that runs: Dask's threaded scheduler by default, a
-``dask.distributed`` ``LocalCluster`` or a remote ``Client(address)`` when one is active.
+reducers of a pass (:mod:`summarize_widgets.core.passes`) over its chunks: each chunk of
+draws is reduced where it lives (``reducer.partial``) and only the small per-draw results
+travel back. The active scheduler decides where that runs. On Dask's local schedulers
+(threaded, the default, or synchronous) a window of one chunk per worker thread is in flight
+and each result is absorbed when done, so memory holds a fixed number of chunks whatever
+their count; with a ``dask.distributed`` ``LocalCluster`` or a remote ``Client(address)``
+the pass is one Dask computation whose per-unit sums are added in a tree on the workers.
 """
 from __future__ import annotations
 
@@ -137,6 +139,55 @@ def _active_client():
     return owner if isinstance(owner, Client) else None
 
 
+def _local_workers():
+    """Worker threads when Dask's active scheduler is its threaded (or synchronous) one, else None."""
+    import os
+
+    import dask
+    import dask.base
+    import dask.local
+    import dask.threaded
+
+    sched = dask.base.get_scheduler()
+    if sched is dask.local.get_sync:
+        return 1
+    if sched is dask.threaded.get:
+        n = dask.config.get("num_workers", None)
+        return max(1, int(n) if n else (os.cpu_count() or 1))
+    return None
+
+
+def _run_window(reducers, edges, v_parts, d_parts, summed, store_rows, workers, weights):
+    """Reduce chunk by chunk on ``workers`` threads, at most ``workers`` chunks in flight."""
+    from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
+
+    from .passes import add_parts
+
+    def work(k):
+        vals = np.asarray(v_parts[k].compute(scheduler="synchronous"))
+        den = None if d_parts[k] is None else np.asarray(d_parts[k].compute(scheduler="synchronous"))
+        return k, _reduce_block(reducers, weights, int(edges[k]), int(edges[k + 1]), vals, den)
+
+    totals = [None] * len(reducers)
+    todo = iter(range(len(v_parts)))
+    with ThreadPoolExecutor(workers) as pool:
+        running = {pool.submit(work, k) for k in [k for _, k in zip(range(workers), todo)]}
+        while running:
+            done, running = wait(running, return_when=FIRST_COMPLETED)
+            for fut in done:
+                k, result = fut.result()
+                store_rows(k, result)
+                for j, (part, s) in enumerate(zip(result, summed)):
+                    if s:
+                        totals[j] = add_parts(totals[j], part)
+                nxt = next(todo, None)
+                if nxt is not None:
+                    running.add(pool.submit(work, nxt))
+    for r, part, s in zip(reducers, totals, summed):
+        if s:
+            r.store(None, part)
+
+
 def run_lazy_pass(draws, reducers, *, progress=None) -> None:
     """One Dask computation over the chunks of ``draws`` (reducers already started)."""
     import dask
@@ -163,11 +214,7 @@ def run_lazy_pass(draws, reducers, *, progress=None) -> None:
     w = delayed(draws.weights, traverse=False, name=f"pass-weights-{token}") if draws.weights is not None else None
     summed = [bool(getattr(r, "summed", False)) for r in reducers]
     per_draw = [not s for s in summed]
-    parts = [delayed(_reduce_block, pure=True)(red, w, int(edges[k]), int(edges[k + 1]), v_parts[k], d_parts[k])
-             for k in range(len(v_parts))]
-    row_parts = [delayed(_pick, pure=True)(p, per_draw) for p in parts]
-    total = _tree_sum([delayed(_pick, pure=True)(p, summed) for p in parts], _add_lists) if any(summed) else None
-    n = len(row_parts)
+    n = len(v_parts)
     done = [0]
 
     def store_rows(k, result, count=True):
@@ -181,6 +228,18 @@ def run_lazy_pass(draws, reducers, *, progress=None) -> None:
                 progress(done[0], n)
 
     client = _active_client()
+    local = None if client is not None else _local_workers()
+    if local is not None:
+        # Dask's local schedulers: a window of `local` chunks in flight, each read and reduced by one
+        # task and absorbed as soon as it is done. As one graph, the threaded scheduler read chunks and
+        # kept per-unit partial sums well ahead of the additions that free them (6.8 GiB at 1,000 x
+        # 8,000,000 in 250 chunks, against 1.3 GiB in 8 chunks).
+        _run_window(reducers, edges, v_parts, d_parts, summed, store_rows, local, draws.weights)
+        return
+    parts = [delayed(_reduce_block, pure=True)(red, w, int(edges[k]), int(edges[k + 1]), v_parts[k], d_parts[k])
+             for k in range(len(v_parts))]
+    row_parts = [delayed(_pick, pure=True)(p, per_draw) for p in parts]
+    total = _tree_sum([delayed(_pick, pure=True)(p, summed) for p in parts], _add_lists) if any(summed) else None
     if client is not None:
         from distributed import as_completed
 
