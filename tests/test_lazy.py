@@ -70,6 +70,10 @@ def test_zarr_store_stays_lazy_and_matches_memory_threaded(study, small_blocks):
 
 
 def test_zarr_store_on_a_two_worker_local_cluster(study, small_blocks):
+    import warnings
+
+    import dask
+
     distributed = pytest.importorskip("distributed")
     X, T, path = study
     expected = _job(sw.EffectDraws(T, X))
@@ -77,7 +81,11 @@ def test_zarr_store_on_a_two_worker_local_cluster(study, small_blocks):
                                   dashboard_address=None, worker_dashboard_address=None) as cluster, \
             distributed.Client(cluster) as client:
         assert len(client.scheduler_info()["workers"]) == 2
-        got = _job(sw.EffectDraws(da.from_zarr(str(path)), X))
+        # the reducers' maps reach the workers once, ahead of the graph: no graph large enough for
+        # Dask's warning even with its threshold at 20 kB (the maps here are larger)
+        with dask.config.set({"distributed.admin.large-graph-warning-threshold": "20kB"}), warnings.catch_warnings():
+            warnings.filterwarnings("error", message=".*large graph.*")
+            got = _job(sw.EffectDraws(da.from_zarr(str(path)), X))
         # the blocks were reduced on the workers: both ran tasks of the pass
         assert all(n > 0 for n in client.run(lambda dask_worker: len(dask_worker.data) + dask_worker.state.executed_count).values())
     _assert_same(expected, got)

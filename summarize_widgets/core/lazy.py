@@ -236,6 +236,12 @@ def run_lazy_pass(draws, reducers, *, progress=None) -> None:
         # 8,000,000 in 250 chunks, against 1.3 GiB in 8 chunks).
         _run_window(reducers, edges, v_parts, d_parts, summed, store_rows, local, draws.weights)
         return
+    if client is not None:
+        # The reducers' maps (n_units x k) go to every worker once, ahead of the graph, instead of
+        # inside it (Dask warned of a graph of 550 MB at 2,000,000 units).
+        red = client.scatter(reducers, broadcast=True, hash=False)
+        if draws.weights is not None:
+            w = client.scatter(draws.weights, broadcast=True, hash=False)
     parts = [delayed(_reduce_block, pure=True)(red, w, int(edges[k]), int(edges[k + 1]), v_parts[k], d_parts[k])
              for k in range(len(v_parts))]
     row_parts = [delayed(_pick, pure=True)(p, per_draw) for p in parts]
