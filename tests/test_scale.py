@@ -176,44 +176,6 @@ def test_piecewise_additive_builds_each_design_piece_once(draws, monkeypatch):
     assert sorted(built) == [300, 400, 400, 400]
 
 
-@pytest.mark.parametrize("lazy", [False, True])
-def test_passes_keep_blas_to_one_thread_per_worker(lazy):
-    """A pass runs one block per worker thread; BLAS's own threads on top of them oversubscribe the
-    cores (seen as 10-20x slower passes under load), so BLAS gets one thread while a pass runs."""
-    import dask.array as da
-    from threadpoolctl import threadpool_info, threadpool_limits
-
-    from summarize_widgets.core.passes import BlockReducer, run_pass
-
-    class BlasThreads(BlockReducer):
-        summed = False
-
-        def start(self, n_draws):
-            self.seen = set()
-
-        def partial(self, block):
-            self.seen.update(i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas")
-            return None
-
-        def store(self, rows, part):
-            pass
-
-    rng = np.random.default_rng(3)
-    X = household_covariates(300, rng)
-    T = rng.normal(size=(40, 300))
-    d = sw.EffectDraws(da.from_array(T, chunks=(5, 300)) if lazy else T, X)
-    probe = BlasThreads()
-    def blas():
-        return {i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"}
-
-    with threadpool_limits(limits=2, user_api="blas"):
-        before = blas()
-        run_pass(d, [probe], threads=2, rows_per_block=5)
-        after = blas()
-    assert probe.seen == {1}
-    assert after == before  # the caller's setting comes back after the pass
-
-
 def test_tall_skinny_qr_in_small_pieces_matches_one_piece(draws, monkeypatch):
     """Pieces of the QR smaller than a design piece, ragged, some with fewer rows than columns."""
     whole_lin, whole_add = sw.summarize_linear(draws).table(), sw.summarize_additive(draws)

@@ -117,15 +117,6 @@ def run_pass(draws, reducers: Sequence[Reducer], *, progress: Callable[[int, int
         raise SummaryError(_memory_message(draws, reducers, exc)) from None
 
 
-def _one_blas_thread():
-    """BLAS limited to one thread of its own while the pass runs: the pass already runs one block per
-    core, and OpenBLAS's own threads on top of them spin against each other (a pass over 2,000,000
-    units on 2 cores took 0.45-1.4 s per draw instead of 0.04-0.08; benchmarks/bench_scale.py)."""
-    from threadpoolctl import threadpool_limits
-
-    return threadpool_limits(limits=1, user_api="blas")
-
-
 def _memory_message(draws, reducers, exc) -> str:
     maps = sum(int(getattr(r, "H", np.empty(0)).nbytes) for r in reducers)
     lazy = getattr(draws, "is_lazy", False)
@@ -148,7 +139,7 @@ def _run_pass(draws, reducers, progress, threads, rows_per_block) -> None:
     if getattr(draws, "is_lazy", False):
         from .lazy import run_lazy_pass
 
-        with pass_progress(draws, progress) as tick, _one_blas_thread():
+        with pass_progress(draws, progress) as tick:
             run_lazy_pass(draws, reducers, progress=tick)
         return
     step = block_step(draws, reducers, rows_per_block)
@@ -183,7 +174,7 @@ def _run_pass(draws, reducers, progress, threads, rows_per_block) -> None:
                 absorb(*work(s))
                 tick(k, total)
         else:
-            with ThreadPoolExecutor(threads) as pool, _one_blas_thread():
+            with ThreadPoolExecutor(threads) as pool:
                 for k, result in enumerate(pool.map(work, starts), 1):
                     absorb(*result)
                     tick(k, total)

@@ -177,8 +177,11 @@ def project(draws, plans, *, progress=None) -> list:
 FLOAT64_MAP_BYTES = 256 * 2**20
 #: Units per piece when a design is built, factorized and mapped piecewise.
 CHUNK_UNITS = 2**18
-#: Rows per piece of the tall-skinny QR in :func:`weighted_map` (a piece of a design stays in cache).
-QR_ROWS = 2**12
+#: Rows per piece of the tall-skinny QR in :func:`weighted_map`. Smaller pieces stay in cache (0.6 s
+#: per 2^18 x 49 rows in pieces of 4,096 on one BLAS thread against 1.7 s whole), but with
+#: OpenBLAS's own threads small pieces are slower, and its thread count is not ours to change
+#: (changed from one thread while another runs BLAS, a notebook's kernel hung).
+QR_ROWS = 2**18
 
 
 def _dense(mat) -> np.ndarray:
@@ -211,25 +214,21 @@ def weighted_map(design_rows, sw: np.ndarray, p: int):
     normal equations, no inverse of ``R``, so designs with exactly collinear columns, such
     as spline bases beside an intercept, stay as stable as with one QR).
     """
-    from threadpoolctl import threadpool_limits
-
     n = sw.size
     H = np.empty((n, p), dtype=np.float32 if n * p * 8 > FLOAT64_MAP_BYTES else np.float64)
     triangles, spans = [], []
-    # Factorized in pieces of QR_ROWS rows that stay in cache, on one BLAS thread: a Householder QR
-    # of 2^18 x 49 sweeps 100 MB once per column (1.7 s on one thread here, 0.6 s in pieces).
-    with threadpool_limits(limits=1, user_api="blas"):
-        for a0 in range(0, n, CHUNK_UNITS):
-            b0 = min(a0 + CHUNK_UNITS, n)
-            A = np.array(_dense(design_rows(a0, b0)), dtype=np.float64)  # own copy: weighted in place
-            A *= sw[a0:b0, None]
-            for a in range(a0, b0, QR_ROWS):
-                b = min(a + QR_ROWS, b0)
-                Qk, Rk = np.linalg.qr(A[a - a0:b - a0])
-                H[a:b, :Qk.shape[1]] = Qk / sw[a:b, None]  # fewer columns when the piece has fewer rows than p
-                triangles.append(Rk)
-                spans.append((a, b))
-            del A
+    # Factorized in pieces of at most QR_ROWS rows (each piece's Q is mapped by its block of Qs).
+    for a0 in range(0, n, CHUNK_UNITS):
+        b0 = min(a0 + CHUNK_UNITS, n)
+        A = np.array(_dense(design_rows(a0, b0)), dtype=np.float64)  # own copy: weighted in place
+        A *= sw[a0:b0, None]
+        for a in range(a0, b0, QR_ROWS):
+            b = min(a + QR_ROWS, b0)
+            Qk, Rk = np.linalg.qr(A[a - a0:b - a0])
+            H[a:b, :Qk.shape[1]] = Qk / sw[a:b, None]  # fewer columns when the piece has fewer rows than p
+            triangles.append(Rk)
+            spans.append((a, b))
+        del A
     Qs, R = np.linalg.qr(np.vstack(triangles))
     row = 0
     for (a, b), Rk in zip(spans, triangles):
