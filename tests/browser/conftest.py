@@ -269,3 +269,18 @@ def _run_for_expected(browser, server: LabServer, notebook: str, viewport: dict)
 def run_for_expected():
     """``run_for_expected(browser, server, notebook, viewport)`` -> (page, the notebook's EXPECTED values)."""
     return _run_for_expected
+
+
+@pytest.fixture(scope="session")
+def open_explorer(lab_server, browser, write_notebook):
+    """``open_explorer(notebook, cells)`` -> (page, explorer locator, EXPECTED values): writes the
+    notebook, runs it in JupyterLab and waits for the explorer to show (close the page when done)."""
+    def open_(notebook, cells, viewport=None):
+        from playwright.sync_api import expect
+
+        write_notebook(lab_server, notebook, cells)
+        page, expected = _run_for_expected(browser, lab_server, notebook, viewport or {"width": 1400, "height": 2200})
+        explorer = page.locator(".swx-explorer")
+        expect(explorer).to_be_visible()
+        return page, explorer, expected
+    return open_

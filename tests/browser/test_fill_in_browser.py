@@ -32,13 +32,8 @@ VISIBLE_PLOT = ".widget-tab-contents > :not(.lm-mod-hidden) .js-plotly-plot"
 
 
 @pytest.fixture(scope="module")
-def fill_in_page(lab_server, browser, run_for_expected, write_notebook):
-    from playwright.sync_api import expect
-
-    write_notebook(lab_server, NOTEBOOK, CELLS)
-    page, expected = run_for_expected(browser, lab_server, NOTEBOOK, {"width": 1400, "height": 2200})
-    explorer = page.locator(".swx-explorer")
-    expect(explorer).to_be_visible()
+def fill_in_page(open_explorer):
+    page, explorer, expected = open_explorer(NOTEBOOK, CELLS)
     yield page, explorer, expected
     page.close()
 
