@@ -11,9 +11,7 @@ what refitting the same model to each draw would give. Weights: see
 """
 from __future__ import annotations
 
-import contextlib
 import functools
-import io
 import operator
 import warnings
 from numbers import Real
@@ -21,6 +19,7 @@ from numbers import Real
 import numpy as np
 import pandas as pd
 
+from ..core.quiet import quiet_stdout
 from ..core.design import MAX_LEVELS, ColumnSpec, category_codes, classify_columns, numeric_values
 from ..core.validate import SummaryError, check_columns, check_int, check_levels
 from ..core.intervals import simultaneous_band
@@ -429,7 +428,7 @@ def plan_additive(draws, *, columns=None, n_splines: int = 10, lam=None, grid_si
     fit_rows = _compile_rows(X, COMPILE_UNITS)
     # pygam prints "did not converge" and divides by zero on a constant target (no heterogeneity);
     # that case is reported by fit_r2, and the frozen smoother below never relies on pygam's iterations.
-    with warnings.catch_warnings(), contextlib.redirect_stdout(io.StringIO()):
+    with warnings.catch_warnings(), quiet_stdout():  # this thread only: a cell's prints meanwhile stay
         warnings.simplefilter("ignore", RuntimeWarning)
         gam.fit(X[fit_rows], target[fit_rows], weights=wk[fit_rows])  # compiles the terms, sets pygam's state
     sw = np.sqrt(wk)
