@@ -208,10 +208,6 @@ def run_lazy_pass(draws, reducers, *, progress=None) -> None:
     v_parts = vals.to_delayed().ravel()
     d_parts = den.to_delayed().ravel() if den is not None else [None] * len(v_parts)
     edges = np.concatenate([[0], np.cumsum(vals.chunks[0])]).astype(int)
-    # Named explicitly: hashing the reducers' maps (n_units x k) to name them would cost a copy.
-    token = uuid.uuid4().hex
-    red = delayed(reducers, traverse=False, name=f"pass-reducers-{token}")
-    w = delayed(draws.weights, traverse=False, name=f"pass-weights-{token}") if draws.weights is not None else None
     summed = [bool(getattr(r, "summed", False)) for r in reducers]
     per_draw = [not s for s in summed]
     n = len(v_parts)
@@ -236,6 +232,10 @@ def run_lazy_pass(draws, reducers, *, progress=None) -> None:
         # 8,000,000 in 250 chunks, against 1.3 GiB in 8 chunks).
         _run_window(reducers, edges, v_parts, d_parts, summed, store_rows, local, draws.weights)
         return
+    # Named explicitly: hashing the reducers' maps (n_units x k) to name them would cost a copy.
+    token = uuid.uuid4().hex
+    red = delayed(reducers, traverse=False, name=f"pass-reducers-{token}")
+    w = delayed(draws.weights, traverse=False, name=f"pass-weights-{token}") if draws.weights is not None else None
     if client is not None:
         # The reducers' maps (n_units x k) go to every worker once, ahead of the graph, instead of
         # inside it (Dask warned of a graph of 550 MB at 2,000,000 units).

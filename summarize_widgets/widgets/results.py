@@ -14,6 +14,7 @@ import pandas as pd
 from ..export.layout import subgroup_texts
 from ..summaries.bundle import summarize_all, summarize_extras
 from ..summaries.tree import TreeSummary
+from .panels import vmax_of
 from .tree_view import node_records
 
 __all__ = ["Results"]
@@ -147,9 +148,7 @@ class Results:
         def make():
             table = self.table(depth, level, interval)
             steady = table[~table["subgroup"].isin(list(self.weak_ids(depth, level, interval)))]
-            values = (steady if len(steady) else table)["mean"].to_numpy(float)
-            v = np.abs(values[np.isfinite(values)])
-            return float(v.max()) if v.size else 0.0
+            return vmax_of((steady if len(steady) else table)["mean"])
         return self._cached(("limit", depth, level, interval), make)
 
     def contrasts(self, depth: int, level: float, interval: str, subgroup: int) -> pd.DataFrame:
